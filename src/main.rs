@@ -1,0 +1,3 @@
+fn main() {
+    println!("baroc {}", env!("CARGO_PKG_VERSION"));
+}
