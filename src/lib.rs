@@ -7,3 +7,4 @@
 //! of the language.
 
 pub mod constants;
+pub mod mime;
