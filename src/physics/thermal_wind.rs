@@ -1,0 +1,113 @@
+//! Thermal wind, shear, ageostrophic wind, turning of the wind with height.
+//!
+//! Thermal wind of a layer (field guide, "Formulas"):
+//!   V_T = V_g(p_t) - V_g(p_b) = (g0/f) k x grad(Z_t - Z_b)
+//!       = (Rd/f) ln(p_b/p_t) k x grad(Tbar)
+//! so both routes are `balanced_wind` with a different scale:
+//!   thickness route        scale g0 applied to the thickness dz (m),
+//!   mean-temperature route scale Rd ln(p_b/p_t) applied to Tbar (K).
+//! Differential form: dV_g/d(ln p) = -(Rd/f) k x grad_p T (scale -Rd on T).
+
+use ndarray::{Array3, ArrayView3, Zip};
+
+use super::geostrophic::balanced_wind;
+use crate::constants::Constants;
+use crate::grid::Grid;
+
+/// Thermal wind (u_T, v_T) of a layer from its thickness (m) on
+/// [slice, lat, lon]. Masking as in `balanced_wind`.
+pub fn thermal_wind_from_thickness(grid: &Grid, constants: &Constants, thickness: ArrayView3<f32>, equator_band: f64) -> (Array3<f32>, Array3<f32>) {
+    balanced_wind(grid, constants, thickness, constants.gravity, equator_band)
+}
+
+/// Thermal wind of the layer bottom..top (Pa) from its layer-mean
+/// temperature (K).
+pub fn thermal_wind_from_mean_temperature(
+    grid: &Grid,
+    constants: &Constants,
+    mean_temperature: ArrayView3<f32>,
+    bottom: f64,
+    top: f64,
+    equator_band: f64,
+) -> (Array3<f32>, Array3<f32>) {
+    let scale = constants.dry_air_gas_constant * (bottom / top).ln().abs();
+    balanced_wind(grid, constants, mean_temperature, scale, equator_band)
+}
+
+/// Per-level geostrophic shear dV_g/d(ln p) (m s-1 per unit ln p) from
+/// temperature (K) on each slice: -(Rd/f) k x grad T. Negative values of the
+/// eastward component mean westerlies strengthening upward (ln p decreases
+/// upward).
+pub fn geostrophic_shear_per_log_pressure(grid: &Grid, constants: &Constants, temperature: ArrayView3<f32>, equator_band: f64) -> (Array3<f32>, Array3<f32>) {
+    balanced_wind(grid, constants, temperature, -constants.dry_air_gas_constant, equator_band)
+}
+
+/// Element-wise a - b (vector differences: shear, ageostrophic wind).
+pub fn difference(a: ArrayView3<f32>, b: ArrayView3<f32>) -> Array3<f32> {
+    let mut out = a.to_owned();
+    Zip::from(&mut out).and(b).par_for_each(|x, &y| *x -= y);
+    out
+}
+
+/// Signed turning angle (degrees) from the wind at the bottom of a layer to
+/// the wind at its top. Positive = veering (clockwise with height), negative =
+/// backing (anticlockwise). Veering and backing are defined by the sense of
+/// rotation alone, in both hemispheres (fact of the trade); what they imply
+/// for advection depends on the hemisphere (see `advection`). NaN where
+/// either wind is missing or calm.
+pub fn turning_angle(u_bottom: f32, v_bottom: f32, u_top: f32, v_top: f32) -> f32 {
+    let (ub, vb, ut, vt) = (u_bottom as f64, v_bottom as f64, u_top as f64, v_top as f64);
+    let cross = ub * vt - vb * ut; // k . (V_b x V_t): positive = anticlockwise
+    let dot = ub * ut + vb * vt;
+    if (ub == 0.0 && vb == 0.0) || (ut == 0.0 && vt == 0.0) || cross.is_nan() {
+        return f32::NAN;
+    }
+    (-cross.atan2(dot).to_degrees()) as f32
+}
+
+/// Turning angle on whole arrays; see `turning_angle`.
+pub fn turning(u_bottom: ArrayView3<f32>, v_bottom: ArrayView3<f32>, u_top: ArrayView3<f32>, v_top: ArrayView3<f32>) -> Array3<f32> {
+    let mut out = Array3::<f32>::zeros(u_bottom.dim());
+    Zip::from(&mut out)
+        .and(u_bottom)
+        .and(v_bottom)
+        .and(u_top)
+        .and(v_top)
+        .par_for_each(|o, &ub, &vb, &ut, &vt| *o = turning_angle(ub, vb, ut, vt));
+    out
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::constants::DRY_AIR_GAS_CONSTANT as RD;
+
+    #[test]
+    fn worked_value_1_k_per_100_km_at_45_north() {
+        // Field guide worked value (derived): at 45 N (f ~ 1.0313e-4 s-1), a
+        // layer-mean temperature falling 1 K per 100 km poleward over 1000-500
+        // hPa gives u_T = (Rd/f) ln 2 * 1e-5 = 19.29 m/s westerly.
+        let c = Constants::default();
+        let lats: Vec<f64> = (0..21).map(|j| 44.0 + 0.1 * j as f64).collect();
+        let grid = Grid::new(lats.clone(), (0..7).map(|i| i as f64 * 0.1).collect());
+        let per_radian = -1.0 / 1.0e5 * c.earth_radius;
+        let tbar = Array3::from_shape_fn((1, 21, 7), |(_, j, _)| (260.0 + per_radian * (lats[j] - 45.0).to_radians()) as f32);
+        let (u, v) = thermal_wind_from_mean_temperature(&grid, &c, tbar.view(), 100000.0, 50000.0, 5.0);
+        assert!((u[[0, 10, 3]] - 19.3).abs() < 0.05, "u_T = {}", u[[0, 10, 3]]);
+        assert!(v[[0, 10, 3]].abs() < 1e-3);
+        // Same case through the thickness route: dz = (Rd/g0) ln2 Tbar.
+        let dz = tbar.mapv(|t| (RD / c.gravity * 2f64.ln() * t as f64) as f32);
+        let (u2, _) = thermal_wind_from_thickness(&grid, &c, dz.view(), 5.0);
+        assert!((u2[[0, 10, 3]] - u[[0, 10, 3]]).abs() < 0.01);
+    }
+
+    #[test]
+    fn veering_and_backing_signs() {
+        // South-westerly below (wind from SW, blowing toward NE: u>0, v>0) and
+        // westerly above: the wind turns clockwise with height, i.e. veers.
+        assert!((turning_angle(1.0, 1.0, 1.0, 0.0) - 45.0).abs() < 1e-4);
+        // Westerly below, south-westerly above: anticlockwise, backing.
+        assert!((turning_angle(1.0, 0.0, 1.0, 1.0) + 45.0).abs() < 1e-4);
+        assert!(turning_angle(0.0, 0.0, 1.0, 0.0).is_nan());
+    }
+}

@@ -1,0 +1,306 @@
+//! The vertical: interpolation and integration in ln p, hydrostatic
+//! thickness, layer means, masking below ground.
+//!
+//! Every vertical operation here is linear in the level values, so it is
+//! computed once as a set of weights on the data levels and then applied to
+//! every column in parallel (`apply_weights`). This keeps the hot loop a
+//! plain weighted sum and lets layer boundaries fall between data levels.
+//!
+//! Sources: hydrostatic balance with the ideal gas law, dPhi/d(ln p) = -Rd T;
+//! hypsometric thickness dz = (Rd/g0) Tbar ln(p_b/p_t) with Tbar the
+//! ln p-weighted layer mean (field guide, "Formulas"); trapezoid rule in ln p.
+
+use ndarray::{Array3, ArrayView4, Axis, Zip};
+use rayon::prelude::*;
+
+/// A linear functional of a column: value = sum of weight * level value.
+#[derive(Debug, Clone, PartialEq)]
+pub struct LevelWeights {
+    pub terms: Vec<(usize, f64)>,
+}
+
+/// Why a vertical operation cannot be done; each says what is available.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum VerticalError {
+    #[error("{pressure} hPa is outside the data's levels ({lowest} to {highest} hPa); Baroc interpolates between levels but does not extrapolate")]
+    OutsideLevels { pressure: f64, lowest: f64, highest: f64 },
+    #[error("a layer needs two different pressures; got {bottom} hPa and {top} hPa")]
+    EmptyLayer { bottom: f64, top: f64 },
+    #[error("pressure must be positive and finite, got {0} Pa")]
+    BadPressure(f64),
+    #[error("no pressure levels in the data")]
+    NoLevels,
+}
+
+fn hpa(p: f64) -> f64 {
+    (p / 100.0 * 1000.0).round() / 1000.0
+}
+
+/// Levels sorted by decreasing pressure, as (original index, pressure).
+fn sorted_levels(levels: &[f64]) -> Vec<(usize, f64)> {
+    let mut sorted: Vec<(usize, f64)> = levels.iter().copied().enumerate().collect();
+    sorted.sort_by(|a, b| b.1.total_cmp(&a.1));
+    sorted
+}
+
+fn check_pressure(levels: &[f64], pressure: f64) -> Result<(), VerticalError> {
+    if !(pressure.is_finite() && pressure > 0.0) {
+        return Err(VerticalError::BadPressure(pressure));
+    }
+    if levels.is_empty() {
+        return Err(VerticalError::NoLevels);
+    }
+    let (lo, hi) = levels.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &p| (a.min(p), b.max(p)));
+    // A relative tolerance lets 500 hPa match a level stored as 50000.0001 Pa.
+    if pressure < lo * (1.0 - 1e-9) || pressure > hi * (1.0 + 1e-9) {
+        return Err(VerticalError::OutsideLevels { pressure: hpa(pressure), lowest: hpa(lo), highest: hpa(hi) });
+    }
+    Ok(())
+}
+
+/// Weights for the value at `pressure`, linear in ln p between the two
+/// neighbouring data levels (exactly the level's value on a data level).
+/// Fails when the pressure is outside the levels (no extrapolation).
+pub fn interpolation_weights(levels: &[f64], pressure: f64) -> Result<LevelWeights, VerticalError> {
+    check_pressure(levels, pressure)?;
+    let sorted = sorted_levels(levels);
+    if let Some(&(k, _)) = sorted.iter().find(|(_, p)| (p - pressure).abs() <= 1e-9 * pressure) {
+        return Ok(LevelWeights { terms: vec![(k, 1.0)] });
+    }
+    let lnp = pressure.ln();
+    for pair in sorted.windows(2) {
+        let ((kb, pb), (kt, pt)) = (pair[0], pair[1]);
+        if pressure <= pb && pressure >= pt {
+            let w = (pb.ln() - lnp) / (pb.ln() - pt.ln()); // weight of the upper level
+            return Ok(LevelWeights { terms: vec![(kb, 1.0 - w), (kt, w)] });
+        }
+    }
+    let (lo, hi) = (sorted[sorted.len() - 1].1, sorted[0].1);
+    Err(VerticalError::OutsideLevels { pressure: hpa(pressure), lowest: hpa(lo), highest: hpa(hi) })
+}
+
+/// Weights of the integral of a column over ln p from `top` to `bottom`
+/// (pressures in Pa, bottom > top), by the trapezoid rule on the data levels
+/// inside the layer, with the boundaries interpolated linearly in ln p.
+/// The result is in (column units) x (ln p units), e.g. K for temperature.
+pub fn layer_integral_weights(levels: &[f64], bottom: f64, top: f64) -> Result<LevelWeights, VerticalError> {
+    if (bottom - top).abs() <= 1e-9 * bottom.max(top) {
+        return Err(VerticalError::EmptyLayer { bottom: hpa(bottom), top: hpa(top) });
+    }
+    let (bottom, top) = if bottom > top { (bottom, top) } else { (top, bottom) };
+    check_pressure(levels, bottom)?;
+    check_pressure(levels, top)?;
+    // Nodes of the piecewise-linear (in ln p) profile inside the layer.
+    let mut nodes: Vec<(f64, LevelWeights)> = vec![(bottom, interpolation_weights(levels, bottom)?)];
+    for (k, p) in sorted_levels(levels) {
+        if p < bottom * (1.0 - 1e-9) && p > top * (1.0 + 1e-9) {
+            nodes.push((p, LevelWeights { terms: vec![(k, 1.0)] }));
+        }
+    }
+    nodes.push((top, interpolation_weights(levels, top)?));
+    let mut weights = vec![0.0; levels.len()];
+    for pair in nodes.windows(2) {
+        let d = pair[0].0.ln() - pair[1].0.ln();
+        for node in pair {
+            for &(k, w) in &node.1.terms {
+                weights[k] += 0.5 * d * w;
+            }
+        }
+    }
+    Ok(LevelWeights { terms: weights.into_iter().enumerate().filter(|(_, w)| *w != 0.0).collect() })
+}
+
+/// Applies level weights to every column of a [time, level, lat, lon] array,
+/// giving [time, lat, lon]; `factor` multiplies the result and `transform`
+/// maps each level value first (identity for most uses). Sums in f64. A NaN
+/// at any level with a non-zero weight makes the column's result NaN.
+pub fn apply_weights(data: ArrayView4<f32>, weights: &LevelWeights, factor: f64) -> Array3<f32> {
+    apply_weights_with(data, None, weights, factor, |t, _| t)
+}
+
+/// As `apply_weights`, combining each level value with a second array of the
+/// same shape (`companion`, e.g. specific humidity for virtual temperature)
+/// through `transform(value, companion_value)`.
+pub fn apply_weights_with<F>(
+    data: ArrayView4<f32>,
+    companion: Option<ArrayView4<f32>>,
+    weights: &LevelWeights,
+    factor: f64,
+    transform: F,
+) -> Array3<f32>
+where
+    F: Fn(f64, f64) -> f64 + Sync,
+{
+    let (nt, _, ny, nx) = data.dim();
+    let mut out = Array3::<f32>::zeros((nt, ny, nx));
+    out.axis_iter_mut(Axis(0)).into_par_iter().enumerate().for_each(|(t, mut out_t)| {
+        // Accumulate level by level over whole rows: contiguous, vectorisable.
+        out_t.axis_iter_mut(Axis(0)).into_par_iter().enumerate().for_each(|(j, mut out_row)| {
+            let mut sum = vec![0.0f64; nx];
+            for &(k, w) in &weights.terms {
+                let row = data.slice(ndarray::s![t, k, j, ..]);
+                match companion {
+                    None => Zip::from(&mut sum[..]).and(row).for_each(|s, &v| *s += w * transform(v as f64, 0.0)),
+                    Some(c) => {
+                        let crow = c.slice(ndarray::s![t, k, j, ..]);
+                        Zip::from(&mut sum[..]).and(row).and(crow).for_each(|s, &v, &q| *s += w * transform(v as f64, q as f64))
+                    }
+                }
+            }
+            Zip::from(&mut out_row).and(&sum[..]).for_each(|o, &s| *o = (s * factor) as f32);
+        });
+    });
+    out
+}
+
+/// Virtual temperature from temperature (K) and specific humidity (kg/kg):
+/// Tv = T (1 + 0.608 q)   (field guide; 0.608 = (1 - epsilon)/epsilon).
+#[inline]
+pub fn virtual_temperature(temperature: f64, specific_humidity: f64) -> f64 {
+    temperature * (1.0 + 0.608 * specific_humidity)
+}
+
+/// Virtual temperature from mixing ratio r (kg/kg):
+/// Tv = T (1 + r/epsilon) / (1 + r)   (field guide).
+#[inline]
+pub fn virtual_temperature_from_mixing_ratio(temperature: f64, mixing_ratio: f64) -> f64 {
+    temperature * (1.0 + mixing_ratio / crate::constants::EPSILON) / (1.0 + mixing_ratio)
+}
+
+/// Hypsometric thickness (m) of the layer from `bottom` to `top` (Pa) from
+/// temperature on levels, [time, level, lat, lon] -> [time, lat, lon]; with
+/// `specific_humidity` the virtual temperature is used.
+/// dz = (Rd/g0) * integral of T d ln p.
+pub fn thickness_from_temperature(
+    levels: &[f64],
+    temperature: ArrayView4<f32>,
+    specific_humidity: Option<ArrayView4<f32>>,
+    bottom: f64,
+    top: f64,
+    dry_air_gas_constant: f64,
+    gravity: f64,
+) -> Result<Array3<f32>, VerticalError> {
+    let weights = layer_integral_weights(levels, bottom, top)?;
+    let factor = dry_air_gas_constant / gravity;
+    Ok(match specific_humidity {
+        None => apply_weights(temperature, &weights, factor),
+        Some(q) => apply_weights_with(temperature, Some(q), &weights, factor, virtual_temperature),
+    })
+}
+
+/// Thickness (m) from geopotential (m2 s-2) or geopotential height (m):
+/// (Phi(top) - Phi(bottom)) / g0, boundaries interpolated in ln p.
+/// `to_metres` is 1/g0 for geopotential and 1 for geopotential height.
+pub fn thickness_from_geopotential(levels: &[f64], geopotential: ArrayView4<f32>, bottom: f64, top: f64, to_metres: f64) -> Result<Array3<f32>, VerticalError> {
+    let (bottom, top) = if bottom > top { (bottom, top) } else { (top, bottom) };
+    let mut weights = interpolation_weights(levels, top)?;
+    for (k, w) in interpolation_weights(levels, bottom)?.terms {
+        weights.terms.push((k, -w));
+    }
+    Ok(apply_weights(geopotential, &weights, to_metres))
+}
+
+/// Layer-mean temperature (K) from thickness (m):
+/// Tbar = g0 dz / (Rd ln(p_b/p_t))   (field guide).
+pub fn mean_temperature_from_thickness(thickness: &Array3<f32>, bottom: f64, top: f64, dry_air_gas_constant: f64, gravity: f64) -> Array3<f32> {
+    let factor = gravity / (dry_air_gas_constant * (bottom / top).ln().abs());
+    thickness.mapv(|dz| (dz as f64 * factor) as f32)
+}
+
+/// Values at `pressure` (Pa) interpolated in ln p, [time, level, lat, lon] ->
+/// [time, lat, lon]. With `surface_pressure` ([time, lat, lon], Pa), points
+/// where the pressure is greater than the surface pressure are below ground
+/// and become NaN.
+pub fn interpolate_to_pressure(
+    levels: &[f64],
+    data: ArrayView4<f32>,
+    pressure: f64,
+    surface_pressure: Option<ndarray::ArrayView3<f32>>,
+) -> Result<Array3<f32>, VerticalError> {
+    let weights = interpolation_weights(levels, pressure)?;
+    let mut out = apply_weights(data, &weights, 1.0);
+    if let Some(ps) = surface_pressure {
+        mask_below_ground(&mut out, ps, pressure);
+    }
+    Ok(out)
+}
+
+/// Sets to NaN the points of a [time, lat, lon] field at `pressure` that lie
+/// below ground (pressure > surface pressure). Shapes must match; a surface
+/// pressure with one time step applies to all.
+pub fn mask_below_ground(values: &mut Array3<f32>, surface_pressure: ndarray::ArrayView3<f32>, pressure: f64) {
+    let nt = values.dim().0;
+    for t in 0..nt {
+        let ts = if surface_pressure.dim().0 == 1 { 0 } else { t };
+        Zip::from(values.index_axis_mut(Axis(0), t)).and(surface_pressure.index_axis(Axis(0), ts)).for_each(|v, &ps| {
+            if (ps as f64) < pressure {
+                *v = f32::NAN;
+            }
+        });
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::constants::{DRY_AIR_GAS_CONSTANT as RD, STANDARD_GRAVITY as G0};
+    use ndarray::Array4;
+
+    const LEVELS: [f64; 6] = [100000.0, 85000.0, 70000.0, 50000.0, 30000.0, 20000.0];
+
+    #[test]
+    fn isothermal_thickness_is_exact() {
+        // dz = (Rd/g0) T ln(pb/pt) exactly for an isothermal column (hypsometric
+        // equation); boundaries off the data levels included.
+        let t = Array4::from_elem((1, 6, 1, 1), 250.0f32);
+        let dz = thickness_from_temperature(&LEVELS, t.view(), None, 92500.0, 40000.0, RD, G0).unwrap();
+        let expected = RD / G0 * 250.0 * (92500.0f64 / 40000.0).ln();
+        assert!((dz[[0, 0, 0]] as f64 - expected).abs() < 1e-3, "{} vs {expected}", dz[[0, 0, 0]]);
+    }
+
+    #[test]
+    fn one_kelvin_changes_1000_500_thickness_by_20_3_m() {
+        // Field guide (derived): Rd ln 2 / g0 = 20.29 m per kelvin of layer mean.
+        let warm = Array4::from_elem((1, 6, 1, 1), 261.0f32);
+        let cold = Array4::from_elem((1, 6, 1, 1), 260.0f32);
+        let a = thickness_from_temperature(&LEVELS, warm.view(), None, 100000.0, 50000.0, RD, G0).unwrap();
+        let b = thickness_from_temperature(&LEVELS, cold.view(), None, 100000.0, 50000.0, RD, G0).unwrap();
+        assert!(((a[[0, 0, 0]] - b[[0, 0, 0]]) as f64 - 20.29).abs() < 0.02);
+    }
+
+    #[test]
+    fn levels_in_either_order_give_the_same_thickness() {
+        let reversed: Vec<f64> = LEVELS.iter().rev().copied().collect();
+        let profile = [288.0f32, 280.0, 272.0, 255.0, 230.0, 218.0];
+        let t1 = Array4::from_shape_fn((1, 6, 1, 1), |(_, k, _, _)| profile[k]);
+        let t2 = Array4::from_shape_fn((1, 6, 1, 1), |(_, k, _, _)| profile[5 - k]);
+        let a = thickness_from_temperature(&LEVELS, t1.view(), None, 100000.0, 30000.0, RD, G0).unwrap();
+        let b = thickness_from_temperature(&reversed, t2.view(), None, 30000.0, 100000.0, RD, G0).unwrap();
+        assert!((a[[0, 0, 0]] - b[[0, 0, 0]]).abs() < 1e-3);
+    }
+
+    #[test]
+    fn virtual_temperature_raises_thickness() {
+        // Tv = T(1 + 0.608 q): with q = 0.01, Tv exceeds T by 0.608 percent.
+        assert!((virtual_temperature(300.0, 0.01) - 301.824).abs() < 1e-9);
+        // Mixing-ratio form agrees with the specific-humidity form to first
+        // order (q = r/(1+r)).
+        let r = 0.01;
+        assert!((virtual_temperature_from_mixing_ratio(300.0, r) - virtual_temperature(300.0, r / (1.0 + r))).abs() < 0.01);
+    }
+
+    #[test]
+    fn outside_levels_is_an_error_naming_the_range() {
+        let err = interpolation_weights(&LEVELS, 105000.0).unwrap_err();
+        assert_eq!(err.to_string(), "1050 hPa is outside the data's levels (200 to 1000 hPa); Baroc interpolates between levels but does not extrapolate");
+    }
+
+    #[test]
+    fn below_ground_points_are_masked() {
+        let data = Array4::from_elem((1, 6, 1, 2), 5.0f32);
+        let ps = ndarray::Array3::from_shape_vec((1, 1, 2), vec![98000.0f32, 101000.0]).unwrap();
+        let out = interpolate_to_pressure(&LEVELS, data.view(), 100000.0, Some(ps.view())).unwrap();
+        assert!(out[[0, 0, 0]].is_nan());
+        assert_eq!(out[[0, 0, 1]], 5.0);
+    }
+}
