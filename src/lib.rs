@@ -4,7 +4,13 @@
 //! text -> `lang` (grammar, syntax tree, check, evaluate) -> values ->
 //! `render` (MIME bundles) -> front ends (`kernel`, `evcxr`, CLI).
 //! The physics (`physics`) works on plain arrays and grids and knows nothing
-//! of the language.
+//! of the language; `diagnostics` applies it to fields read through `io`.
 
+pub mod calendar;
 pub mod constants;
+pub mod demo;
+pub mod diagnostics;
+pub mod grid;
+pub mod io;
 pub mod mime;
+pub mod physics;

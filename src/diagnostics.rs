@@ -1,0 +1,552 @@
+//! The diagnostics engine on fields: reads what a diagnostic needs from a
+//! dataset (only the levels, times and region asked for), calls the plain
+//! array functions of `physics`, and returns fields with coordinates, units
+//! and metadata. The language's evaluator, the CLI and the demo all come
+//! through here.
+
+use std::sync::Arc;
+
+use ndarray::{Array3, Array4};
+
+use crate::constants::Constants;
+use crate::grid::{Field, VectorField};
+use crate::io::{DataError, Dataset, Role, Selection};
+use crate::physics::geostrophic::{self, GeopotentialKind, DEFAULT_EQUATOR_BAND};
+use crate::physics::sampling::{self, AreaStatistics, Region};
+use crate::physics::{advection, differences, smoothing, stability, thermal_wind, vertical};
+
+/// A pressure layer, bottom (larger pressure) to top, in Pa.
+#[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
+pub struct Layer {
+    pub bottom: f64,
+    pub top: f64,
+}
+
+impl Layer {
+    /// Builds a layer from two pressures in either order; the flag says
+    /// whether they were swapped to put the larger pressure at the bottom.
+    pub fn new(first: f64, second: f64) -> (Layer, bool) {
+        if first >= second {
+            (Layer { bottom: first, top: second }, false)
+        } else {
+            (Layer { bottom: second, top: first }, true)
+        }
+    }
+
+    /// ln(p_b / p_t).
+    pub fn log_ratio(&self) -> f64 {
+        (self.bottom / self.top).ln()
+    }
+
+    /// "1000-500 hPa".
+    pub fn label(&self) -> String {
+        format!("{}-{} hPa", trim(self.bottom / 100.0), trim(self.top / 100.0))
+    }
+
+    /// "1000_500hPa", for variable names.
+    pub fn tag(&self) -> String {
+        format!("{}_{}hPa", trim(self.bottom / 100.0), trim(self.top / 100.0)).replace('.', "p")
+    }
+}
+
+fn trim(x: f64) -> String {
+    let s = format!("{x:.2}");
+    s.trim_end_matches('0').trim_end_matches('.').to_string()
+}
+
+/// How thickness (and so the thermal wind) is obtained.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, serde::Serialize, serde::Deserialize)]
+pub enum ThicknessRoute {
+    /// Hypsometric integral of temperature (virtual temperature when specific
+    /// humidity is in the data).
+    Temperature,
+    /// Hypsometric integral of dry-bulb temperature, ignoring humidity.
+    DryTemperature,
+    /// Difference of geopotential (or geopotential height) at the boundaries.
+    Geopotential,
+}
+
+/// Engine errors: data errors, or a diagnostic that the data cannot support.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum DiagnosticError {
+    #[error(transparent)]
+    Data(#[from] DataError),
+    #[error(transparent)]
+    Vertical(#[from] vertical::VerticalError),
+    #[error(transparent)]
+    Sampling(#[from] sampling::SamplingError),
+    #[error("{0}")]
+    Unsupported(String),
+}
+
+type Result<T> = std::result::Result<T, DiagnosticError>;
+
+/// A case: a dataset, the part of it under study (times and region) and the
+/// settings diagnostics share.
+pub struct Case {
+    pub dataset: Arc<Dataset>,
+    pub constants: Constants,
+    /// Half-width (degrees) of the equatorial band where balanced winds are
+    /// masked.
+    pub equator_band: f64,
+    /// Time steps and region to read; levels are chosen per diagnostic.
+    pub selection: Selection,
+}
+
+impl Case {
+    pub fn new(dataset: Arc<Dataset>) -> Self {
+        Self { dataset, constants: Constants::default(), equator_band: DEFAULT_EQUATOR_BAND, selection: Selection::default() }
+    }
+
+    /// The same case restricted to other times or another region.
+    pub fn with_selection(&self, selection: Selection) -> Case {
+        Case { dataset: self.dataset.clone(), constants: self.constants, equator_band: self.equator_band, selection }
+    }
+
+    fn selection_with_levels(&self, levels: Option<Vec<f64>>) -> Selection {
+        Selection { levels, ..self.selection.clone() }
+    }
+
+    /// Reads a variable (by name or role) over all its levels.
+    pub fn field(&self, name: &str) -> Result<Field> {
+        Ok(self.dataset.read(name, &self.selection)?)
+    }
+
+    /// The levels (Pa) of a variable, by name or role.
+    pub fn levels_of(&self, name: &str) -> Result<Vec<f64>> {
+        let info = self.dataset.resolve(name)?;
+        info.levels.clone().ok_or_else(|| DiagnosticError::Data(DataError::NoLevels { variable: info.name.clone() }))
+    }
+
+    /// Reads only the data levels that `weights` need, returning the field
+    /// and the weights re-indexed onto the levels read.
+    fn read_weighted(&self, name: &str, weights: &vertical::LevelWeights) -> Result<(Field, vertical::LevelWeights)> {
+        let levels = self.levels_of(name)?;
+        let mut needed: Vec<usize> = weights.terms.iter().map(|t| t.0).collect();
+        needed.sort_unstable();
+        needed.dedup();
+        let field = self.dataset.read(name, &self.selection_with_levels(Some(needed.iter().map(|&k| levels[k]).collect())))?;
+        let remapped = vertical::LevelWeights {
+            terms: weights.terms.iter().map(|&(k, w)| (needed.iter().position(|&n| n == k).expect("needed"), w)).collect(),
+        };
+        Ok((field, remapped))
+    }
+
+    /// A variable at one pressure (interpolated in ln p between data levels
+    /// when it is not one); the level dimension is removed. Below-ground
+    /// points are NaN when the data hold surface pressure and
+    /// `mask_below_ground` is set.
+    pub fn at_pressure(&self, name: &str, pressure: f64, mask_below_ground: bool) -> Result<Field> {
+        let levels = self.levels_of(name)?;
+        let weights = vertical::interpolation_weights(&levels, pressure)?;
+        let (field, weights) = self.read_weighted(name, &weights)?;
+        let mut data = vertical::apply_weights(field.data.view(), &weights, 1.0);
+        if mask_below_ground {
+            if let Some(ps) = self.surface_pressure()? {
+                vertical::mask_below_ground(&mut data, ps.data.index_axis(ndarray::Axis(1), 0), pressure);
+            }
+        }
+        let mut out = field.derived_without_levels(&field.name, &field.units, expand(data)).map_err(DiagnosticError::Unsupported)?;
+        out.long_name = field.long_name.clone();
+        out.standard_name = field.standard_name.clone();
+        out.attributes.push(("pressure_level".into(), format!("{} hPa", trim(pressure / 100.0))));
+        Ok(out)
+    }
+
+    fn surface_pressure(&self) -> Result<Option<Field>> {
+        match self.dataset.find_role(Role::SurfacePressure) {
+            None => Ok(None),
+            Some(info) => {
+                let name = info.name.clone();
+                let mut field = self.dataset.read(&name, &self.selection)?;
+                let factor = crate::io::cf::pressure_factor(&field.units).unwrap_or(1.0);
+                if factor != 1.0 {
+                    field.data.mapv_inplace(|p| (p as f64 * factor) as f32);
+                    field.units = "Pa".into();
+                }
+                Ok(Some(field))
+            }
+        }
+    }
+
+    /// The variable carrying geopotential or geopotential height, and which.
+    fn geopotential_source(&self) -> Result<(String, GeopotentialKind)> {
+        if let Some(v) = self.dataset.find_role(Role::Geopotential) {
+            return Ok((v.name.clone(), GeopotentialKind::Geopotential));
+        }
+        if let Some(v) = self.dataset.find_role(Role::GeopotentialHeight) {
+            return Ok((v.name.clone(), GeopotentialKind::Height));
+        }
+        Err(DataError::MissingRole {
+            role: "geopotential or geopotential_height".into(),
+            sources: self.dataset.labels().join(", "),
+            found: self.dataset.roles().iter().map(|(r, v)| format!("{} ({v})", r.name())).collect(),
+        }
+        .into())
+    }
+
+    fn role_name(&self, role: Role) -> Result<String> {
+        Ok(self.dataset.resolve(role.name())?.name.clone())
+    }
+
+    fn vector(&self, u: Field, v: Field) -> Result<VectorField> {
+        VectorField::new(u, v).map_err(DiagnosticError::Unsupported)
+    }
+
+    /// Geostrophic wind at a pressure level (m s-1).
+    pub fn geostrophic_wind(&self, pressure: f64) -> Result<VectorField> {
+        let (name, kind) = self.geopotential_source()?;
+        let z = self.at_pressure(&name, pressure, false)?;
+        self.geostrophic_wind_of(&z, kind, &format!("at {} hPa", trim(pressure / 100.0)))
+    }
+
+    /// Geostrophic wind of any geopotential or geopotential-height field.
+    pub fn geostrophic_wind_of(&self, z: &Field, kind: GeopotentialKind, where_: &str) -> Result<VectorField> {
+        let (u, v) = geostrophic::geostrophic_wind(&z.grid, &self.constants, z.horizontal_slices(), kind, self.equator_band);
+        let band = format!("{} degrees", self.equator_band);
+        let u = z
+            .derived("geostrophic_eastward_wind", "m s-1", reshape_like(u, z))
+            .map_err(DiagnosticError::Unsupported)?
+            .with_long_name(format!("eastward geostrophic wind {where_}").trim())
+            .with_attribute("equatorial_mask_half_width", band.clone());
+        let v = z
+            .derived("geostrophic_northward_wind", "m s-1", reshape_like(v, z))
+            .map_err(DiagnosticError::Unsupported)?
+            .with_long_name(format!("northward geostrophic wind {where_}").trim())
+            .with_attribute("equatorial_mask_half_width", band);
+        self.vector(u, v)
+    }
+
+    /// Hypsometric thickness (m) of a layer by the chosen route.
+    pub fn thickness(&self, layer: Layer, route: ThicknessRoute) -> Result<Field> {
+        let c = &self.constants;
+        let (data, template, method) = match route {
+            ThicknessRoute::Temperature | ThicknessRoute::DryTemperature => {
+                let t_name = self.role_name(Role::Temperature)?;
+                let levels = self.levels_of(&t_name)?;
+                let weights = vertical::layer_integral_weights(&levels, layer.bottom, layer.top)?;
+                let (t, w) = self.read_weighted(&t_name, &weights)?;
+                let humidity = match route {
+                    ThicknessRoute::Temperature => match self.dataset.find_role(Role::SpecificHumidity) {
+                        Some(q) if q.levels.as_ref().is_some_and(|l| *l == levels) => {
+                            let q_name = q.name.clone();
+                            Some(self.read_weighted(&q_name, &weights)?.0)
+                        }
+                        _ => None,
+                    },
+                    _ => None,
+                };
+                let factor = c.dry_air_gas_constant / c.gravity;
+                let (data, method) = match &humidity {
+                    Some(q) => (
+                        vertical::apply_weights_with(t.data.view(), Some(q.data.view()), &w, factor, vertical::virtual_temperature),
+                        "hypsometric integral of virtual temperature in ln p",
+                    ),
+                    None => (vertical::apply_weights(t.data.view(), &w, factor), "hypsometric integral of temperature in ln p"),
+                };
+                (data, t, method)
+            }
+            ThicknessRoute::Geopotential => {
+                let (name, kind) = self.geopotential_source()?;
+                let levels = self.levels_of(&name)?;
+                let mut weights = vertical::interpolation_weights(&levels, layer.top)?;
+                for (k, w) in vertical::interpolation_weights(&levels, layer.bottom)?.terms {
+                    weights.terms.push((k, -w));
+                }
+                let (z, w) = self.read_weighted(&name, &weights)?;
+                let to_metres = match kind {
+                    GeopotentialKind::Geopotential => 1.0 / c.gravity,
+                    GeopotentialKind::Height => 1.0,
+                };
+                (vertical::apply_weights(z.data.view(), &w, to_metres), z, "difference of geopotential height at the layer boundaries")
+            }
+        };
+        Ok(template
+            .derived_without_levels(&format!("thickness_{}", layer.tag()), "m", expand(data))
+            .map_err(DiagnosticError::Unsupported)?
+            .with_long_name(format!("thickness of the {} layer", layer.label()))
+            .with_attribute("layer", layer.label())
+            .with_attribute("method", method))
+    }
+
+    /// Layer-mean (virtual) temperature (K) from thickness:
+    /// Tbar = g0 dz / (Rd ln(p_b/p_t)).
+    pub fn layer_mean_temperature(&self, layer: Layer, route: ThicknessRoute) -> Result<Field> {
+        let dz = self.thickness(layer, route)?;
+        let factor = self.constants.gravity / (self.constants.dry_air_gas_constant * layer.log_ratio());
+        let data = dz.data.mapv(|x| (x as f64 * factor) as f32);
+        let mut out = dz.derived(&format!("mean_temperature_{}", layer.tag()), "K", data).map_err(DiagnosticError::Unsupported)?;
+        out.long_name = format!("layer-mean temperature of the {} layer", layer.label());
+        Ok(out)
+    }
+
+    /// Thermal wind of a layer (m s-1). `ThicknessRoute::Geopotential` takes
+    /// the thickness route from geopotential; the temperature routes take the
+    /// layer-mean temperature gradient.
+    pub fn thermal_wind(&self, layer: Layer, route: ThicknessRoute) -> Result<VectorField> {
+        let dz = self.thickness(layer, route)?;
+        let (u, v) = thermal_wind::thermal_wind_from_thickness(&dz.grid, &self.constants, dz.horizontal_slices(), self.equator_band);
+        let how = match route {
+            ThicknessRoute::Geopotential => "from the thickness gradient (geopotential)",
+            _ => "from the layer-mean temperature gradient",
+        };
+        let label = layer.label();
+        let make = |name: &str, component: &str, data: Array3<f32>| -> Result<Field> {
+            Ok(dz
+                .derived(&format!("{name}_{}", layer.tag()), "m s-1", reshape_like(data, &dz))
+                .map_err(DiagnosticError::Unsupported)?
+                .with_long_name(format!("{component} thermal wind of the {label} layer {how}"))
+                .with_attribute("equatorial_mask_half_width", format!("{} degrees", self.equator_band)))
+        };
+        self.vector(make("thermal_eastward_wind", "eastward", u)?, make("thermal_northward_wind", "northward", v)?)
+    }
+
+    /// Per-level geostrophic shear dV_g/d(ln p) from temperature at a level.
+    pub fn geostrophic_shear(&self, pressure: f64) -> Result<VectorField> {
+        let t = self.at_pressure(&self.role_name(Role::Temperature)?, pressure, false)?;
+        let (u, v) = thermal_wind::geostrophic_shear_per_log_pressure(&t.grid, &self.constants, t.horizontal_slices(), self.equator_band);
+        let at = trim(pressure / 100.0);
+        let u = t.derived("geostrophic_shear_eastward", "m s-1", reshape_like(u, &t)).map_err(DiagnosticError::Unsupported)?;
+        let v = t.derived("geostrophic_shear_northward", "m s-1", reshape_like(v, &t)).map_err(DiagnosticError::Unsupported)?;
+        self.vector(
+            u.with_long_name(format!("eastward geostrophic shear per unit ln p at {at} hPa")),
+            v.with_long_name(format!("northward geostrophic shear per unit ln p at {at} hPa")),
+        )
+    }
+
+    /// The analysed wind at a pressure.
+    pub fn wind(&self, pressure: f64) -> Result<VectorField> {
+        let u = self.at_pressure(&self.role_name(Role::EastwardWind)?, pressure, false)?;
+        let v = self.at_pressure(&self.role_name(Role::NorthwardWind)?, pressure, false)?;
+        self.vector(u, v)
+    }
+
+    /// Analysed-wind shear across a layer: V(top) - V(bottom).
+    pub fn wind_shear(&self, layer: Layer) -> Result<VectorField> {
+        let (bottom, top) = (self.wind(layer.bottom)?, self.wind(layer.top)?);
+        self.vector(
+            named_difference(&top.eastward, &bottom.eastward, &format!("wind_shear_eastward_{}", layer.tag()), &format!("eastward wind shear of the {} layer", layer.label()))?,
+            named_difference(&top.northward, &bottom.northward, &format!("wind_shear_northward_{}", layer.tag()), &format!("northward wind shear of the {} layer", layer.label()))?,
+        )
+    }
+
+    /// Ageostrophic wind V - V_g at a pressure.
+    pub fn ageostrophic_wind(&self, pressure: f64) -> Result<VectorField> {
+        let (v, g) = (self.wind(pressure)?, self.geostrophic_wind(pressure)?);
+        let at = trim(pressure / 100.0);
+        self.vector(
+            named_difference(&v.eastward, &g.eastward, "ageostrophic_eastward_wind", &format!("eastward ageostrophic wind at {at} hPa"))?,
+            named_difference(&v.northward, &g.northward, "ageostrophic_northward_wind", &format!("northward ageostrophic wind at {at} hPa"))?,
+        )
+    }
+
+    /// Ageostrophic shear (V_t - V_b) - V_T of a layer.
+    pub fn ageostrophic_shear(&self, layer: Layer, route: ThicknessRoute) -> Result<VectorField> {
+        let (shear, thermal) = (self.wind_shear(layer)?, self.thermal_wind(layer, route)?);
+        self.vector(
+            named_difference(&shear.eastward, &thermal.eastward, &format!("ageostrophic_shear_eastward_{}", layer.tag()), &format!("eastward ageostrophic shear of the {} layer", layer.label()))?,
+            named_difference(&shear.northward, &thermal.northward, &format!("ageostrophic_shear_northward_{}", layer.tag()), &format!("northward ageostrophic shear of the {} layer", layer.label()))?,
+        )
+    }
+
+    /// Geostrophic temperature advection at a level (K s-1).
+    pub fn temperature_advection(&self, pressure: f64) -> Result<Field> {
+        let t = self.at_pressure(&self.role_name(Role::Temperature)?, pressure, false)?;
+        let g = self.geostrophic_wind(pressure)?;
+        let mut out = advect(&t, &g, &self.constants)?;
+        out.name = "geostrophic_temperature_advection".into();
+        out.long_name = format!("geostrophic temperature advection at {} hPa", trim(pressure / 100.0));
+        Ok(out)
+    }
+
+    /// Layer-mean geostrophic temperature advection (K s-1):
+    /// -Vbar_g . grad(Tbar), Vbar_g the mean of the boundary geostrophic winds
+    /// and Tbar from the thickness of the same geopotential, so that it equals
+    /// -(f/(Rd ln(p_b/p_t))) k . (V_b x V_t) (see physics::advection).
+    pub fn layer_temperature_advection(&self, layer: Layer) -> Result<Field> {
+        let (b, t) = (self.geostrophic_wind(layer.bottom)?, self.geostrophic_wind(layer.top)?);
+        let tbar = self.layer_mean_temperature(layer, ThicknessRoute::Geopotential)?;
+        let mean = |a: &Field, b: &Field| -> Array4<f32> { (&a.data + &b.data).mapv(|x| 0.5 * x) };
+        let u = tbar.derived("mean_geostrophic_eastward_wind", "m s-1", mean(&b.eastward, &t.eastward)).map_err(DiagnosticError::Unsupported)?;
+        let v = tbar.derived("mean_geostrophic_northward_wind", "m s-1", mean(&b.northward, &t.northward)).map_err(DiagnosticError::Unsupported)?;
+        let mut out = advect(&tbar, &self.vector(u, v)?, &self.constants)?;
+        out.name = format!("layer_temperature_advection_{}", layer.tag());
+        out.long_name = format!("layer-mean geostrophic temperature advection of the {} layer", layer.label());
+        out.attributes.push(("layer".into(), layer.label()));
+        Ok(out)
+    }
+
+    /// Turning of the geostrophic wind across a layer (degrees; veering, i.e.
+    /// clockwise with height, positive; backing negative).
+    pub fn turning(&self, layer: Layer) -> Result<Field> {
+        let (b, t) = (self.geostrophic_wind(layer.bottom)?, self.geostrophic_wind(layer.top)?);
+        let slices = |f: &Field| f.horizontal_slices().to_owned();
+        let angle = thermal_wind::turning(slices(&b.eastward).view(), slices(&b.northward).view(), slices(&t.eastward).view(), slices(&t.northward).view());
+        Ok(b.eastward
+            .derived(&format!("geostrophic_turning_{}", layer.tag()), "degree", reshape_like(angle, &b.eastward))
+            .map_err(DiagnosticError::Unsupported)?
+            .with_long_name(format!("turning of the geostrophic wind across the {} layer (veering positive)", layer.label()))
+            .with_attribute("layer", layer.label()))
+    }
+
+    /// Potential temperature (K) at a pressure.
+    pub fn potential_temperature(&self, pressure: f64) -> Result<Field> {
+        let t = self.at_pressure(&self.role_name(Role::Temperature)?, pressure, false)?;
+        let data = t.data.mapv(|x| stability::potential_temperature(x as f64, pressure) as f32);
+        let mut out = t.derived("potential_temperature", "K", data).map_err(DiagnosticError::Unsupported)?;
+        out.long_name = format!("potential temperature at {} hPa", trim(pressure / 100.0));
+        out.standard_name = Some("air_potential_temperature".into());
+        Ok(out)
+    }
+
+    /// Static stability N^2 (s-2) of a layer.
+    pub fn static_stability(&self, layer: Layer) -> Result<Field> {
+        let t_name = self.role_name(Role::Temperature)?;
+        let (tb, tt) = (self.at_pressure(&t_name, layer.bottom, false)?, self.at_pressure(&t_name, layer.top, false)?);
+        let tm = self.layer_mean_temperature(layer, ThicknessRoute::Temperature)?;
+        let n2 = stability::layer_static_stability(&self.constants, tb.horizontal_slices(), tt.horizontal_slices(), tm.horizontal_slices(), layer.bottom, layer.top);
+        Ok(tm
+            .derived(&format!("static_stability_{}", layer.tag()), "s-2", reshape_like(n2, &tm))
+            .map_err(DiagnosticError::Unsupported)?
+            .with_long_name(format!("static stability N^2 of the {} layer", layer.label())))
+    }
+
+    /// Maximum Eady growth rate (s-1) of a layer.
+    pub fn eady_growth_rate(&self, layer: Layer) -> Result<Field> {
+        let n2 = self.static_stability(layer)?;
+        let vt = self.thermal_wind(layer, ThicknessRoute::Temperature)?;
+        let dz = self.thickness(layer, ThicknessRoute::Temperature)?;
+        let sigma = stability::eady_growth_rate(
+            &self.constants,
+            &n2.grid.latitudes,
+            n2.horizontal_slices(),
+            vt.eastward.horizontal_slices(),
+            vt.northward.horizontal_slices(),
+            dz.horizontal_slices(),
+        );
+        Ok(n2
+            .derived(&format!("eady_growth_rate_{}", layer.tag()), "s-1", reshape_like(sigma, &n2))
+            .map_err(DiagnosticError::Unsupported)?
+            .with_long_name(format!("maximum Eady growth rate of the {} layer", layer.label())))
+    }
+}
+
+/// -V . grad(s) for fields on one grid.
+pub fn advect(scalar: &Field, wind: &VectorField, constants: &Constants) -> Result<Field> {
+    same_shape(scalar, &wind.eastward)?;
+    let a = advection::advection(&scalar.grid, constants.earth_radius, scalar.horizontal_slices(), wind.eastward.horizontal_slices(), wind.northward.horizontal_slices());
+    let mut out = scalar.derived(&format!("advection_of_{}", scalar.name), &per_second(&scalar.units), reshape_like(a, scalar)).map_err(DiagnosticError::Unsupported)?;
+    out.long_name = format!("advection of {}", scalar.long_name);
+    out.standard_name = None;
+    Ok(out)
+}
+
+fn per_second(units: &str) -> String {
+    match crate::units::Unit::parse(units).and_then(|u| u.divide(&crate::units::Unit::parse("s")?)) {
+        Ok(u) => u.to_string(),
+        Err(_) => format!("{units} s-1"),
+    }
+}
+
+fn per_metre(units: &str) -> String {
+    match crate::units::Unit::parse(units).and_then(|u| u.divide(&crate::units::Unit::parse("m")?)) {
+        Ok(u) => u.to_string(),
+        Err(_) => format!("{units} m-1"),
+    }
+}
+
+fn same_shape(a: &Field, b: &Field) -> Result<()> {
+    if a.data.shape() != b.data.shape() || a.grid != b.grid {
+        return Err(DiagnosticError::Unsupported(format!(
+            "`{}` {:?} and `{}` {:?} are not on the same grid",
+            a.name,
+            a.data.shape(),
+            b.name,
+            b.data.shape()
+        )));
+    }
+    Ok(())
+}
+
+/// Horizontal gradient of a field, per metre.
+pub fn gradient(field: &Field, constants: &Constants) -> Result<VectorField> {
+    let (dx, dy) = differences::gradient(&field.grid, constants.earth_radius, field.horizontal_slices());
+    let units = per_metre(&field.units);
+    let mut u = field.derived(&format!("{}_gradient_eastward", field.name), &units, reshape_like(dx, field)).map_err(DiagnosticError::Unsupported)?;
+    u.long_name = format!("eastward gradient of {}", field.long_name);
+    u.standard_name = None;
+    let mut v = field.derived(&format!("{}_gradient_northward", field.name), &units, reshape_like(dy, field)).map_err(DiagnosticError::Unsupported)?;
+    v.long_name = format!("northward gradient of {}", field.long_name);
+    v.standard_name = None;
+    VectorField::new(u, v).map_err(DiagnosticError::Unsupported)
+}
+
+/// Divergence of a vector field.
+pub fn divergence(wind: &VectorField, constants: &Constants) -> Result<Field> {
+    let d = differences::divergence(&wind.eastward.grid, constants.earth_radius, wind.eastward.horizontal_slices(), wind.northward.horizontal_slices());
+    let mut out = wind.eastward.derived("divergence", &per_metre(&wind.eastward.units), reshape_like(d, &wind.eastward)).map_err(DiagnosticError::Unsupported)?;
+    out.long_name = format!("divergence of {}", wind.eastward.long_name.replace("eastward ", ""));
+    out.standard_name = None;
+    Ok(out)
+}
+
+/// Relative vorticity of a vector field.
+pub fn vorticity(wind: &VectorField, constants: &Constants) -> Result<Field> {
+    let z = differences::vorticity(&wind.eastward.grid, constants.earth_radius, wind.eastward.horizontal_slices(), wind.northward.horizontal_slices());
+    let mut out = wind.eastward.derived("relative_vorticity", &per_metre(&wind.eastward.units), reshape_like(z, &wind.eastward)).map_err(DiagnosticError::Unsupported)?;
+    out.long_name = format!("relative vorticity of {}", wind.eastward.long_name.replace("eastward ", ""));
+    out.standard_name = None;
+    Ok(out)
+}
+
+/// Laplacian of a field (units per square metre).
+pub fn laplacian(field: &Field, constants: &Constants) -> Result<Field> {
+    let l = differences::laplacian(&field.grid, constants.earth_radius, field.horizontal_slices());
+    let mut out = field.derived(&format!("{}_laplacian", field.name), &per_metre(&per_metre(&field.units)), reshape_like(l, field)).map_err(DiagnosticError::Unsupported)?;
+    out.long_name = format!("Laplacian of {}", field.long_name);
+    out.standard_name = None;
+    Ok(out)
+}
+
+/// Gaussian smoothing with standard deviation `sigma_metres`.
+pub fn smooth(field: &Field, constants: &Constants, sigma_metres: f64) -> Result<Field> {
+    let s = smoothing::smooth(&field.grid, constants.earth_radius, field.horizontal_slices(), sigma_metres);
+    let mut out = field.derived(&field.name, &field.units, reshape_like(s, field)).map_err(DiagnosticError::Unsupported)?;
+    out.long_name = format!("{} smoothed over {} km", field.long_name, trim(sigma_metres / 1000.0));
+    Ok(out)
+}
+
+/// Value of each time/level slice at a point (bilinear).
+pub fn point_values(field: &Field, latitude: f64, longitude: f64) -> Result<Vec<f32>> {
+    let slices = field.horizontal_slices();
+    slices
+        .outer_iter()
+        .map(|s| sampling::bilinear(&field.grid, s, latitude, longitude).map_err(DiagnosticError::from))
+        .collect()
+}
+
+/// cos(lat)-weighted statistics of each time/level slice over a region.
+pub fn area_statistics(field: &Field, region: &Region) -> Result<Vec<AreaStatistics>> {
+    let slices = field.horizontal_slices();
+    slices.outer_iter().map(|s| sampling::area_statistics(&field.grid, s, region).map_err(DiagnosticError::from)).collect()
+}
+
+fn named_difference(a: &Field, b: &Field, name: &str, long_name: &str) -> Result<Field> {
+    same_shape(a, b)?;
+    let data = &a.data - &b.data;
+    let mut out = a.derived(name, &a.units, data).map_err(DiagnosticError::Unsupported)?;
+    out.long_name = long_name.into();
+    out.standard_name = None;
+    Ok(out)
+}
+
+/// [time, lat, lon] -> [time, 1, lat, lon].
+fn expand(data: Array3<f32>) -> Array4<f32> {
+    data.insert_axis(ndarray::Axis(1))
+}
+
+/// [slices, lat, lon] -> the 4-D shape of `like`.
+fn reshape_like(data: Array3<f32>, like: &Field) -> Array4<f32> {
+    let shape = like.data.dim();
+    data.into_shape_with_order(shape).expect("operators keep the slice count")
+}

@@ -1,0 +1,141 @@
+//! Reading and writing gridded data.
+//!
+//! File access sits behind the small `DataSource` trait, so a reader can be
+//! swapped (for example for a pure-Rust one) without touching the physics.
+//! `Dataset` combines several sources into one view (one variable per file,
+//! or one time per file) and finds variables by name or by physical role.
+//!
+//! Invariants: inputs are opened read-only; the reader applies
+//! scale_factor/add_offset and turns _FillValue, missing_value and values
+//! outside valid_range into NaN, once, here; coordinates come out in the
+//! canonical units (degrees, Pa) whatever the file used.
+
+pub mod cf;
+pub mod dataset;
+pub mod netcdf_source;
+pub mod writer;
+
+pub use dataset::{Dataset, Role};
+
+use std::sync::Arc;
+
+use crate::grid::{Field, Grid, TimeAxis};
+use crate::physics::sampling::Region;
+
+/// What a reader knows of one variable before reading any data.
+#[derive(Debug, Clone)]
+pub struct VariableInfo {
+    pub name: String,
+    pub long_name: Option<String>,
+    pub units: String,
+    pub standard_name: Option<String>,
+    /// Pressure levels (Pa) in file order, if the variable has a vertical
+    /// dimension.
+    pub levels: Option<Vec<f64>>,
+    pub times: Option<TimeAxis>,
+    pub grid: Arc<Grid>,
+    /// The variable's own attributes, for provenance.
+    pub attributes: Vec<(String, String)>,
+    /// True if stored as packed integers (scale_factor / add_offset).
+    pub packed: bool,
+}
+
+impl VariableInfo {
+    /// Dimensions by canonical name, with lengths, for messages.
+    pub fn describe_dimensions(&self) -> String {
+        let mut parts = Vec::new();
+        if let Some(t) = &self.times {
+            parts.push(format!("time {}", t.values.len()));
+        }
+        if let Some(l) = &self.levels {
+            parts.push(format!("pressure {}", l.len()));
+        }
+        parts.push(format!("latitude {}", self.grid.latitudes.len()));
+        parts.push(format!("longitude {}", self.grid.longitudes.len()));
+        parts.join(", ")
+    }
+}
+
+/// Which part of a variable to read. `None` means all of that dimension.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct Selection {
+    /// Time step indices, in the order wanted.
+    pub times: Option<Vec<usize>>,
+    /// Pressure levels (Pa) that must be data levels.
+    pub levels: Option<Vec<f64>>,
+    /// A latitude-longitude box.
+    pub region: Option<Region>,
+}
+
+/// A source of gridded variables (one file, for the NetCDF reader).
+pub trait DataSource: Send + Sync {
+    /// A label for messages and provenance (the path, for files).
+    fn label(&self) -> String;
+    fn variables(&self) -> &[VariableInfo];
+    /// Reads a selection of one variable as a field.
+    fn read(&self, variable: &str, selection: &Selection) -> Result<Field, DataError>;
+    /// Global attributes, for provenance.
+    fn global_attributes(&self) -> Vec<(String, String)>;
+}
+
+/// Everything that can go wrong getting data; every message says what would
+/// be valid.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum DataError {
+    #[error("cannot open {path}: {message}")]
+    Open { path: String, message: String },
+    #[error("{path}: variable `{name}` not found{suggestion}; available variables: {}", available.join(", "))]
+    MissingVariable { path: String, name: String, available: Vec<String>, suggestion: String },
+    #[error("no variable plays the role `{role}` in {sources}; roles found: {}", if found.is_empty() { "none".to_string() } else { found.join(", ") })]
+    MissingRole { role: String, sources: String, found: Vec<String> },
+    #[error("{path}: variable `{variable}` has no recognisable {axis} coordinate (looked for units {expected}, standard_name, axis, and the usual names); its dimensions are: {}", dimensions.join(", "))]
+    NoCoordinate { path: String, variable: String, axis: String, expected: String, dimensions: Vec<String> },
+    #[error("{path}: `{variable}` has units `{units}`, which is not a pressure (expected Pa, hPa or millibar)")]
+    NotAPressure { path: String, variable: String, units: String },
+    #[error("{variable}: {requested} hPa is not a data level; available levels (hPa): {}", available.iter().map(|p| format!("{p}")).collect::<Vec<_>>().join(", "))]
+    LevelNotInData { variable: String, requested: f64, available: Vec<f64> },
+    #[error("{variable} has no pressure levels, so a level cannot be selected")]
+    NoLevels { variable: String },
+    #[error("{variable}: time step {index} is out of range (0 to {last})")]
+    TimeOutOfRange { variable: String, index: usize, last: usize },
+    #[error("the region {south}..{north} N, {west}..{east} E holds no grid points of {variable} (grid: {grid})")]
+    EmptyRegion { variable: String, south: f64, north: f64, west: f64, east: f64, grid: String },
+    #[error("grids do not match: {first} has {first_grid}, but {second} has {second_grid}")]
+    GridMismatch { first: String, first_grid: String, second: String, second_grid: String },
+    #[error("{path}: {message}")]
+    Netcdf { path: String, message: String },
+    #[error("{0}")]
+    Invalid(String),
+}
+
+/// A plain-text description of a dataset: sources, variables with roles,
+/// units and dimensions, grid, levels and times.
+pub fn describe(dataset: &Dataset) -> String {
+    let mut out = String::new();
+    out.push_str(&format!("sources: {}\n", dataset.labels().join(", ")));
+    let roles = dataset.roles();
+    out.push_str("variables:\n");
+    for v in dataset.variables() {
+        let role = roles.iter().find(|(_, name)| *name == v.name).map(|(r, _)| format!(" [{}]", r.name())).unwrap_or_default();
+        out.push_str(&format!(
+            "  {}{}: {} ({}){}; {}\n",
+            v.name,
+            role,
+            v.long_name.clone().unwrap_or_default(),
+            v.units,
+            if v.packed { ", packed" } else { "" },
+            v.describe_dimensions()
+        ));
+    }
+    if let Some(v) = dataset.variables().next() {
+        out.push_str(&format!("grid: {}\n", v.grid.describe()));
+    }
+    if let Some(levels) = dataset.variables().find_map(|v| v.levels.clone()) {
+        out.push_str(&format!("levels (hPa): {}\n", levels.iter().map(|p| format!("{}", p / 100.0)).collect::<Vec<_>>().join(", ")));
+    }
+    if let Some(times) = dataset.variables().find_map(|v| v.times.clone()) {
+        let labels = times.labels();
+        out.push_str(&format!("times: {} steps, {} to {}\n", labels.len(), labels.first().cloned().unwrap_or_default(), labels.last().cloned().unwrap_or_default()));
+    }
+    out
+}

@@ -1,0 +1,432 @@
+//! A `DataSource` over one NetCDF file (NetCDF-3 classic or NetCDF-4),
+//! through the netcdf crate. The file is opened read-only, scanned once for
+//! coordinates and variables, and reopened for each read (cheap, and keeps
+//! the source `Send + Sync`; the netcdf crate serialises netCDF-C calls
+//! behind one lock, so reads run on one thread and the physics in parallel).
+
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
+
+use ndarray::{Array4, ArrayD, Axis as NdAxis, IxDyn};
+use netcdf::Extent;
+
+use super::cf::{self, Axis};
+use super::{DataError, DataSource, Selection, VariableInfo};
+use crate::grid::{Field, Grid, TimeAxis};
+
+/// How one variable's dimensions map onto the canonical axes.
+#[derive(Debug, Clone)]
+struct Layout {
+    /// For each file dimension of the variable: its axis, or None for a
+    /// dimension of length 1 that Baroc ignores.
+    axes: Vec<Option<Axis>>,
+}
+
+/// Unpacking and masking rules of one variable (CF section 8.1 and 2.5.1).
+#[derive(Debug, Clone, Copy, Default)]
+struct Packing {
+    scale_factor: Option<f64>,
+    add_offset: Option<f64>,
+    fill_value: Option<f64>,
+    missing_value: Option<f64>,
+    valid_min: Option<f64>,
+    valid_max: Option<f64>,
+}
+
+#[derive(Debug)]
+pub struct NetcdfSource {
+    path: PathBuf,
+    variables: Vec<VariableInfo>,
+    layouts: Vec<Layout>,
+    packings: Vec<Packing>,
+    global_attributes: Vec<(String, String)>,
+}
+
+fn netcdf_error(path: &Path, e: impl std::fmt::Display) -> DataError {
+    DataError::Netcdf { path: path.display().to_string(), message: e.to_string() }
+}
+
+/// A coordinate found in the file: its axis and values in canonical units.
+#[derive(Debug, Clone)]
+struct Coordinate {
+    axis: Axis,
+    values: Vec<f64>,
+    units: String,
+    calendar: String,
+}
+
+impl NetcdfSource {
+    /// Opens `path` read-only and scans it. Fails if the file cannot be
+    /// opened, or if it holds no variable on a recognisable latitude-longitude
+    /// grid (the error names the dimensions found).
+    pub fn open(path: impl AsRef<Path>) -> Result<Self, DataError> {
+        let path = path.as_ref().to_path_buf();
+        let file = netcdf::open(&path).map_err(|e| DataError::Open { path: path.display().to_string(), message: e.to_string() })?;
+        // Coordinate variables: one-dimensional, named like their dimension.
+        let mut coordinates: Vec<(String, Coordinate)> = Vec::new();
+        for variable in file.variables() {
+            let dims = variable.dimensions();
+            if dims.len() != 1 || dims[0].name() != variable.name() {
+                continue;
+            }
+            let Some(axis) = cf::classify_coordinate(&variable) else { continue };
+            let raw: Vec<f64> = variable.get_values::<f64, _>(..).map_err(|e| netcdf_error(&path, e))?;
+            let units = cf::attribute_text(&variable, "units").unwrap_or_default();
+            let values = match axis {
+                Axis::Pressure => {
+                    let factor = cf::pressure_factor(&units).ok_or_else(|| DataError::NotAPressure {
+                        path: path.display().to_string(),
+                        variable: variable.name(),
+                        units: units.clone(),
+                    })?;
+                    raw.iter().map(|p| p * factor).collect()
+                }
+                _ => raw,
+            };
+            let calendar = cf::attribute_text(&variable, "calendar").unwrap_or_else(|| "standard".into());
+            coordinates.push((variable.name(), Coordinate { axis, values, units, calendar }));
+        }
+        let find = |dim: &str| coordinates.iter().find(|(n, _)| n == dim).map(|(_, c)| c);
+
+        let mut variables = Vec::new();
+        let mut layouts = Vec::new();
+        let mut packings = Vec::new();
+        let mut rejected: Vec<String> = Vec::new();
+        for variable in file.variables() {
+            let name = variable.name();
+            if coordinates.iter().any(|(n, _)| *n == name) || variable.dimensions().len() < 2 {
+                continue;
+            }
+            let mut axes = Vec::new();
+            let (mut lat, mut lon, mut lev, mut time) = (None, None, None, None);
+            let mut usable = true;
+            for dim in variable.dimensions() {
+                match find(&dim.name()) {
+                    Some(c) => {
+                        match c.axis {
+                            Axis::Latitude => lat = Some(c),
+                            Axis::Longitude => lon = Some(c),
+                            Axis::Pressure => lev = Some(c),
+                            Axis::Time => time = Some(c),
+                        }
+                        axes.push(Some(c.axis));
+                    }
+                    None if dim.len() == 1 => axes.push(None),
+                    None => {
+                        usable = false;
+                        break;
+                    }
+                }
+            }
+            let (Some(lat), Some(lon), true) = (lat, lon, usable) else {
+                rejected.push(format!("{name}({})", variable.dimensions().iter().map(|d| d.name()).collect::<Vec<_>>().join(", ")));
+                continue;
+            };
+            let grid = Arc::new(Grid::new(lat.values.clone(), lon.values.clone()));
+            let packing = Packing {
+                scale_factor: cf::attribute_number(&variable, "scale_factor").and_then(|v| v.first().copied()),
+                add_offset: cf::attribute_number(&variable, "add_offset").and_then(|v| v.first().copied()),
+                fill_value: cf::attribute_number(&variable, "_FillValue").and_then(|v| v.first().copied()),
+                missing_value: cf::attribute_number(&variable, "missing_value").and_then(|v| v.first().copied()),
+                valid_min: cf::attribute_number(&variable, "valid_range")
+                    .and_then(|v| v.first().copied())
+                    .or_else(|| cf::attribute_number(&variable, "valid_min").and_then(|v| v.first().copied())),
+                valid_max: cf::attribute_number(&variable, "valid_range")
+                    .and_then(|v| v.get(1).copied())
+                    .or_else(|| cf::attribute_number(&variable, "valid_max").and_then(|v| v.first().copied())),
+            };
+            variables.push(VariableInfo {
+                name: name.clone(),
+                long_name: cf::attribute_text(&variable, "long_name"),
+                units: cf::attribute_text(&variable, "units").unwrap_or_default(),
+                standard_name: cf::attribute_text(&variable, "standard_name"),
+                levels: lev.map(|c| c.values.clone()),
+                times: time.map(|c| TimeAxis { values: c.values.clone(), units: c.units.clone(), calendar: c.calendar.clone() }),
+                grid,
+                attributes: cf::all_attributes(&variable),
+                packed: packing.scale_factor.is_some() || packing.add_offset.is_some(),
+            });
+            layouts.push(Layout { axes });
+            packings.push(packing);
+        }
+        if variables.is_empty() {
+            let dims: Vec<String> = file.dimensions().map(|d| format!("{} ({})", d.name(), d.len())).collect();
+            let axis = if coordinates.iter().any(|(_, c)| c.axis == Axis::Latitude) { "longitude" } else { "latitude" };
+            return Err(DataError::NoCoordinate {
+                path: path.display().to_string(),
+                variable: if rejected.is_empty() { "(any)".into() } else { rejected.join(", ") },
+                axis: axis.into(),
+                expected: if axis == "latitude" { "degrees_north".into() } else { "degrees_east".into() },
+                dimensions: dims,
+            });
+        }
+        let global_attributes = file
+            .attributes()
+            .filter_map(|a| {
+                let value = a.value().ok()?;
+                let text = match value {
+                    netcdf::AttributeValue::Str(s) => s,
+                    other => cf::attribute_numbers(&other)?.iter().map(|x| x.to_string()).collect::<Vec<_>>().join(" "),
+                };
+                Some((a.name().to_string(), text))
+            })
+            .collect();
+        Ok(Self { path, variables, layouts, packings, global_attributes })
+    }
+
+    pub fn path(&self) -> &Path {
+        &self.path
+    }
+
+    fn index_of(&self, name: &str) -> Result<usize, DataError> {
+        self.variables.iter().position(|v| v.name == name).ok_or_else(|| DataError::MissingVariable {
+            path: self.label(),
+            name: name.to_string(),
+            available: self.variables.iter().map(|v| v.name.clone()).collect(),
+            suggestion: String::new(),
+        })
+    }
+}
+
+/// Contiguous runs of indices, as (first index, length).
+fn runs(indices: &[usize]) -> Vec<(usize, usize)> {
+    let mut out: Vec<(usize, usize)> = Vec::new();
+    for &i in indices {
+        match out.last_mut() {
+            Some((start, len)) if *start + *len == i => *len += 1,
+            _ => out.push((i, 1)),
+        }
+    }
+    out
+}
+
+/// Longitude indices of a region, ordered west to east, with the output
+/// longitudes made monotonic across the seam.
+fn longitude_selection(longitudes: &[f64], region: &crate::physics::sampling::Region) -> (Vec<usize>, Vec<f64>) {
+    let inside: Vec<usize> = (0..longitudes.len()).filter(|&i| region.contains(0.5 * (region.south + region.north), longitudes[i])).collect();
+    if inside.is_empty() {
+        return (inside, Vec::new());
+    }
+    // If the selection wraps past the end of the file's axis, start after the
+    // gap so the box reads west to east.
+    let mut order = inside.clone();
+    if let Some(gap) = inside.windows(2).position(|w| w[1] != w[0] + 1) {
+        order = inside[gap + 1..].iter().chain(inside[..=gap].iter()).copied().collect();
+    }
+    let mut values: Vec<f64> = order.iter().map(|&i| longitudes[i]).collect();
+    for k in 1..values.len() {
+        while values[k] < values[k - 1] {
+            values[k] += 360.0;
+        }
+    }
+    // Prefer the convention that keeps the region's western edge.
+    let west = region.west;
+    while values[0] - 360.0 >= west - 1e-9 {
+        values.iter_mut().for_each(|v| *v -= 360.0);
+    }
+    (order, values)
+}
+
+impl DataSource for NetcdfSource {
+    fn label(&self) -> String {
+        self.path.display().to_string()
+    }
+
+    fn variables(&self) -> &[VariableInfo] {
+        &self.variables
+    }
+
+    fn global_attributes(&self) -> Vec<(String, String)> {
+        self.global_attributes.clone()
+    }
+
+    fn read(&self, name: &str, selection: &Selection) -> Result<Field, DataError> {
+        let k = self.index_of(name)?;
+        let info = &self.variables[k];
+        let layout = &self.layouts[k];
+        let packing = self.packings[k];
+
+        // Indices wanted along each canonical axis.
+        let time_count = info.times.as_ref().map_or(1, |t| t.values.len());
+        let time_indices: Vec<usize> = match &selection.times {
+            Some(wanted) if info.times.is_some() => {
+                for &i in wanted {
+                    if i >= time_count {
+                        return Err(DataError::TimeOutOfRange { variable: name.into(), index: i, last: time_count - 1 });
+                    }
+                }
+                wanted.clone()
+            }
+            _ => (0..time_count).collect(),
+        };
+        let level_indices: Vec<usize> = match (&selection.levels, &info.levels) {
+            (Some(wanted), Some(levels)) => wanted
+                .iter()
+                .map(|&p| {
+                    levels.iter().position(|&l| (l - p).abs() <= 1e-6 * p.abs().max(1.0)).ok_or_else(|| DataError::LevelNotInData {
+                        variable: name.into(),
+                        requested: p / 100.0,
+                        available: levels.iter().map(|l| l / 100.0).collect(),
+                    })
+                })
+                .collect::<Result<_, _>>()?,
+            (Some(_), None) => return Err(DataError::NoLevels { variable: name.into() }),
+            (None, levels) => (0..levels.as_ref().map_or(1, |l| l.len())).collect(),
+        };
+        let grid = &info.grid;
+        let (lat_indices, lon_indices, out_lons) = match &selection.region {
+            Some(region) => {
+                let lat: Vec<usize> = (0..grid.latitudes.len())
+                    .filter(|&j| grid.latitudes[j] >= region.south - 1e-9 && grid.latitudes[j] <= region.north + 1e-9)
+                    .collect();
+                let (lon, lons) = longitude_selection(&grid.longitudes, region);
+                if lat.is_empty() || lon.is_empty() {
+                    let (south, north, west, east) = (region.south, region.north, region.west, region.east);
+                    return Err(DataError::EmptyRegion { variable: name.into(), south, north, west, east, grid: grid.describe() });
+                }
+                (lat, lon, lons)
+            }
+            None => ((0..grid.latitudes.len()).collect(), (0..grid.longitudes.len()).collect(), grid.longitudes.clone()),
+        };
+
+        let file = netcdf::open(&self.path).map_err(|e| netcdf_error(&self.path, e))?;
+        let variable = file.variable(name).ok_or_else(|| netcdf_error(&self.path, format!("variable {name} vanished")))?;
+        let shape = (time_indices.len(), level_indices.len(), lat_indices.len(), lon_indices.len());
+        let mut data = Array4::<f32>::zeros(shape);
+
+        let wanted = |axis: Axis| -> &Vec<usize> {
+            match axis {
+                Axis::Time => &time_indices,
+                Axis::Pressure => &level_indices,
+                Axis::Latitude => &lat_indices,
+                Axis::Longitude => &lon_indices,
+            }
+        };
+        let canonical = |axis: Axis| match axis {
+            Axis::Time => 0,
+            Axis::Pressure => 1,
+            Axis::Latitude => 2,
+            Axis::Longitude => 3,
+        };
+        // The runs along each file dimension, and the Cartesian product of
+        // them: one read per block.
+        let dim_runs: Vec<Vec<(usize, usize)>> = layout.axes.iter().map(|a| a.map_or(vec![(0, 1)], |a| runs(wanted(a)))).collect();
+        let mut block = vec![0usize; dim_runs.len()];
+        loop {
+            let extents: Vec<Extent> = block
+                .iter()
+                .zip(&dim_runs)
+                .map(|(&b, r)| {
+                    let (start, len) = r[b];
+                    Extent::from(start..start + len)
+                })
+                .collect();
+            let raw: ArrayD<f32> = variable.get::<f32, _>(extents).map_err(|e| netcdf_error(&self.path, e))?;
+            // Output offsets of this block along each canonical axis.
+            let mut offsets = [0usize; 4];
+            for (d, axis) in layout.axes.iter().enumerate() {
+                if let Some(axis) = axis {
+                    offsets[canonical(*axis)] = dim_runs[d][..block[d]].iter().map(|r| r.1).sum();
+                }
+            }
+            // Drop ignored singleton dims, then order the axes canonically.
+            let mut view = raw.view();
+            let mut present: Vec<usize> = Vec::new();
+            for (d, axis) in layout.axes.iter().enumerate().rev() {
+                match axis {
+                    None => view = view.index_axis_move(NdAxis(d), 0),
+                    Some(a) => present.insert(0, canonical(*a)),
+                }
+            }
+            let mut order: Vec<usize> = (0..present.len()).collect();
+            order.sort_by_key(|&i| present[i]);
+            let mut view = view.permuted_axes(IxDyn(&order));
+            let sorted_present: Vec<usize> = order.iter().map(|&i| present[i]).collect();
+            for c in 0..4 {
+                if !sorted_present.contains(&c) {
+                    view = view.insert_axis(NdAxis(c));
+                }
+            }
+            let view = view.into_dimensionality::<ndarray::Ix4>().map_err(|e| netcdf_error(&self.path, e))?;
+            let (a, b, c, d) = view.dim();
+            data.slice_mut(ndarray::s![
+                offsets[0]..offsets[0] + a,
+                offsets[1]..offsets[1] + b,
+                offsets[2]..offsets[2] + c,
+                offsets[3]..offsets[3] + d
+            ])
+            .assign(&view);
+            // Next block (odometer over the runs).
+            let mut d = block.len();
+            loop {
+                if d == 0 {
+                    break;
+                }
+                d -= 1;
+                block[d] += 1;
+                if block[d] < dim_runs[d].len() {
+                    break;
+                }
+                block[d] = 0;
+            }
+            if block.iter().all(|&b| b == 0) {
+                break;
+            }
+        }
+
+        unpack(&mut data, packing);
+
+        let times = info.times.as_ref().map(|t| t.select(&time_indices));
+        let levels = info.levels.as_ref().map(|l| level_indices.iter().map(|&i| l[i]).collect());
+        let out_grid = if selection.region.is_some() {
+            Arc::new(Grid::new(lat_indices.iter().map(|&j| grid.latitudes[j]).collect(), out_lons))
+        } else {
+            grid.clone()
+        };
+        let mut field = Field::new(name, info.units.clone(), data, times, levels, out_grid).map_err(DataError::Invalid)?;
+        field.long_name = info.long_name.clone().unwrap_or_else(|| name.to_string());
+        field.standard_name = info.standard_name.clone();
+        Ok(field)
+    }
+}
+
+/// Applies CF unpacking and masking in place: stored values equal to
+/// _FillValue or missing_value, or outside valid_min/valid_max (compared in
+/// stored units, as CF section 2.5.1 asks), become NaN; the rest become
+/// stored * scale_factor + add_offset (CF section 8.1), computed in f64.
+fn unpack(data: &mut Array4<f32>, packing: Packing) {
+    let scale = packing.scale_factor.unwrap_or(1.0);
+    let offset = packing.add_offset.unwrap_or(0.0);
+    let fill = packing.fill_value.map(|v| v as f32);
+    let missing = packing.missing_value.map(|v| v as f32);
+    let (lo, hi) = (packing.valid_min.unwrap_or(f64::NEG_INFINITY), packing.valid_max.unwrap_or(f64::INFINITY));
+    let trivial = scale == 1.0 && offset == 0.0;
+    data.par_mapv_inplace(|raw| {
+        if Some(raw) == fill || Some(raw) == missing || (raw as f64) < lo || (raw as f64) > hi {
+            f32::NAN
+        } else if trivial {
+            raw
+        } else {
+            (raw as f64 * scale + offset) as f32
+        }
+    });
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn runs_split_at_gaps() {
+        assert_eq!(runs(&[0, 1, 2, 5, 6, 9]), vec![(0, 3), (5, 2), (9, 1)]);
+    }
+
+    #[test]
+    fn longitude_box_across_the_seam_reads_west_to_east() {
+        let lons: Vec<f64> = (0..36).map(|i| i as f64 * 10.0).collect();
+        let region = crate::physics::sampling::Region { south: 0.0, north: 10.0, west: -20.0, east: 20.0 };
+        let (idx, values) = longitude_selection(&lons, &region);
+        assert_eq!(idx, vec![34, 35, 0, 1, 2]);
+        assert_eq!(values, vec![-20.0, -10.0, 0.0, 10.0, 20.0]);
+    }
+}
