@@ -14,3 +14,4 @@ pub mod grid;
 pub mod io;
 pub mod mime;
 pub mod physics;
+pub mod units;
