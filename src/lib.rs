@@ -8,4 +8,5 @@
 
 pub mod constants;
 pub mod mime;
+pub mod calendar;
 pub mod units;
