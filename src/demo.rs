@@ -226,7 +226,7 @@ pub fn write(directory: &Path) -> Result<PathBuf, crate::io::DataError> {
         .tempfile_in(directory)
         .map_err(|e| demo_error(&path, e))?
         .into_temp_path();
-    write_file(&temporary, &fields).map_err(|e| demo_error(&path, e))?;
+    crate::io::netcdf_thread::call(|| write_file(&temporary, &fields).map_err(|e| e.to_string())).map_err(|e| demo_error(&path, e))?;
     temporary.persist(&path).map_err(|e| demo_error(&path, e.error))?;
     Ok(path)
 }

@@ -13,6 +13,7 @@
 pub mod cf;
 pub mod dataset;
 pub mod netcdf_source;
+pub mod netcdf_thread;
 pub mod writer;
 
 pub use dataset::{Dataset, Role};

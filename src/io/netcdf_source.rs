@@ -61,6 +61,10 @@ impl NetcdfSource {
     /// grid (the error names the dimensions found).
     pub fn open(path: impl AsRef<Path>) -> Result<Self, DataError> {
         let path = path.as_ref().to_path_buf();
+        super::netcdf_thread::call(move || Self::open_here(path))
+    }
+
+    fn open_here(path: PathBuf) -> Result<Self, DataError> {
         let file = netcdf::open(&path).map_err(|e| DataError::Open { path: path.display().to_string(), message: e.to_string() })?;
         // Coordinate variables: one-dimensional, named like their dimension.
         let mut coordinates: Vec<(String, Coordinate)> = Vec::new();
@@ -241,6 +245,12 @@ impl DataSource for NetcdfSource {
     }
 
     fn read(&self, name: &str, selection: &Selection) -> Result<Field, DataError> {
+        super::netcdf_thread::call(|| self.read_here(name, selection))
+    }
+}
+
+impl NetcdfSource {
+    fn read_here(&self, name: &str, selection: &Selection) -> Result<Field, DataError> {
         let k = self.index_of(name)?;
         let info = &self.variables[k];
         let layout = &self.layouts[k];

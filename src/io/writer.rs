@@ -68,7 +68,7 @@ pub fn write_fields(path: &Path, fields: &[&Field], options: &WriteOptions) -> R
         .tempfile_in(directory)
         .map_err(|e| write_error(path, e))?
         .into_temp_path();
-    write_into(&temporary, fields, options).map_err(|e| write_error(path, e))?;
+    super::netcdf_thread::call(|| write_into(&temporary, fields, options).map_err(|e| e.to_string())).map_err(|e| write_error(path, e))?;
     temporary.persist(path).map_err(|e| write_error(path, e.error))?;
     Ok(())
 }

@@ -1,0 +1,266 @@
+//! The diagnostics engine on the demo case and on files of other layouts,
+//! end to end through the NetCDF reader and writer.
+
+use std::path::PathBuf;
+use std::sync::{Arc, OnceLock};
+
+use baroc::diagnostics::{Case, Layer, ThicknessRoute};
+use baroc::io::writer::{write_fields, Format, WriteOptions};
+use baroc::io::{DataError, Dataset, Selection};
+
+/// The demo case, written once per test binary.
+fn demo_path() -> &'static PathBuf {
+    static PATH: OnceLock<PathBuf> = OnceLock::new();
+    PATH.get_or_init(|| {
+        let dir = std::env::temp_dir().join(format!("baroc-engine-tests-{}", std::process::id()));
+        baroc::demo::write(&dir).expect("demo case writes")
+    })
+}
+
+fn demo_case() -> Case {
+    Case::new(Arc::new(Dataset::open(&[demo_path()]).unwrap()))
+}
+
+fn max_abs_difference(a: &ndarray::Array4<f32>, b: &ndarray::Array4<f32>) -> (f32, usize) {
+    let mut worst = 0.0f32;
+    let mut compared = 0;
+    for (x, y) in a.iter().zip(b.iter()) {
+        if x.is_finite() && y.is_finite() {
+            worst = worst.max((x - y).abs());
+            compared += 1;
+        }
+    }
+    (worst, compared)
+}
+
+#[test]
+fn both_thermal_wind_routes_agree_on_a_hydrostatic_case() {
+    // The demo's geopotential is the hydrostatic integral of its virtual
+    // temperature (trapezoid in ln p, as Baroc integrates), so the thickness
+    // route and the mean-temperature route must agree up to the packing of
+    // geopotential into shorts (scale ~ 2 m2 s-2, about 0.1 m of height).
+    let case = demo_case();
+    for (bottom, top) in [(100000.0, 50000.0), (85000.0, 30000.0), (92500.0, 70000.0)] {
+        let layer = Layer::new(bottom, top).0;
+        let a = case.thermal_wind(layer, ThicknessRoute::Temperature).unwrap();
+        let b = case.thermal_wind(layer, ThicknessRoute::Geopotential).unwrap();
+        let (du, n) = max_abs_difference(&a.eastward.data, &b.eastward.data);
+        let (dv, _) = max_abs_difference(&a.northward.data, &b.northward.data);
+        assert!(n > 20_000, "compared {n} points");
+        // Packing noise of +-0.9 m2 s-2 gives about 0.1 m/s in the interior;
+        // the one-sided edge stencils (weights 3/2, 2, 1/2) and the small f
+        // of the southern edge (25 N) amplify it up to about ten times.
+        assert!(du < 1.5 && dv < 1.5, "{}: routes differ by {du} and {dv} m/s", layer.label());
+        let interior = |f: &baroc::grid::Field| f.data.slice(ndarray::s![.., .., 2..59, 2..105]).to_owned();
+        let (du, _) = max_abs_difference(&interior(&a.eastward), &interior(&b.eastward));
+        assert!(du < 0.5, "{}: interior routes differ by {du} m/s", layer.label());
+    }
+}
+
+#[test]
+fn thermal_wind_is_the_difference_of_geostrophic_winds() {
+    // Field guide: V_T = V_g(p_t) - V_g(p_b), exactly for the thickness route
+    // (the same finite differences applied to a linear combination).
+    let case = demo_case();
+    let layer = Layer::new(100000.0, 50000.0).0;
+    let vt = case.thermal_wind(layer, ThicknessRoute::Geopotential).unwrap();
+    let (top, bottom) = (case.geostrophic_wind(50000.0).unwrap(), case.geostrophic_wind(100000.0).unwrap());
+    let difference = &top.eastward.data - &bottom.eastward.data;
+    let (worst, n) = max_abs_difference(&vt.eastward.data, &difference);
+    // f32 storage of geopotential (~0.004 m2 s-2 of rounding at 50 000)
+    // amplified by the derivative is the only source of difference.
+    assert!(n > 20_000 && worst < 5e-3, "worst {worst}");
+}
+
+#[test]
+fn packed_shorts_and_fill_values_are_decoded() {
+    // CF 8.1: value = stored * scale_factor + add_offset; _FillValue and
+    // missing_value become NaN. Compare with the generator's own arrays.
+    let truth = baroc::demo::generate();
+    let case = demo_case();
+    let z = case.field("z").unwrap();
+    let g0 = baroc::constants::STANDARD_GRAVITY as f32;
+    let expected = truth.height.mapv(|h| h * g0);
+    let (worst, n) = max_abs_difference(&z.data, &expected);
+    assert_eq!(n, expected.len());
+    assert!(worst < 2.0, "packing error {worst} m2 s-2");
+    let t = case.field("temperature").unwrap();
+    let (gt, gk, ref gy, ref gx) = baroc::demo::GAP;
+    assert!(t.data[[gt, gk, gy.start, gx.start]].is_nan());
+    assert!(t.data[[0, gk, gy.start, gx.start]].is_finite());
+    let q = case.field("specific_humidity").unwrap();
+    assert!(q.data.slice(ndarray::s![.., 9, .., ..]).iter().all(|x| x.is_nan()));
+    assert!(q.data.slice(ndarray::s![.., 0, .., ..]).iter().all(|x| x.is_finite()));
+    // Levels came in millibar and are held in Pa.
+    assert_eq!(t.levels.as_ref().unwrap()[0], 100000.0);
+}
+
+#[test]
+fn roles_resolve_by_standard_name() {
+    let case = demo_case();
+    let roles = case.dataset.roles();
+    let names: Vec<(&str, &str)> = roles.iter().map(|(r, v)| (r.name(), v.as_str())).collect();
+    for pair in [("temperature", "t"), ("geopotential", "z"), ("eastward_wind", "u"), ("northward_wind", "v"), ("specific_humidity", "q"), ("surface_pressure", "sp")] {
+        assert!(names.contains(&pair), "{pair:?} not in {names:?}");
+    }
+}
+
+#[test]
+fn boundaries_between_levels_are_interpolated_in_ln_p() {
+    // A layer whose boundaries are not data levels lies between the layers
+    // bracketing it, and splitting a layer adds up (the ln p integral is
+    // additive).
+    let case = demo_case().with_selection(Selection { times: Some(vec![0]), ..Default::default() });
+    let t = |b: f64, top: f64| case.thickness(Layer::new(b, top).0, ThicknessRoute::Temperature).unwrap().data;
+    let whole = t(95000.0, 45000.0);
+    let sum = &t(95000.0, 65000.0) + &t(65000.0, 45000.0);
+    let (worst, n) = max_abs_difference(&whole, &sum);
+    assert!(n > 5000 && worst < 0.05, "{worst}");
+}
+
+#[test]
+fn below_ground_points_are_masked_where_surface_pressure_is_lower() {
+    let case = demo_case();
+    let masked = case.at_pressure("temperature", 100000.0, true).unwrap();
+    let ps = case.field("surface_pressure").unwrap();
+    let mut below = 0;
+    for (m, p) in masked.data.iter().zip(ps.data.iter()) {
+        if *p < 100000.0 {
+            assert!(m.is_nan());
+            below += 1;
+        } else {
+            assert!(m.is_finite());
+        }
+    }
+    assert!(below > 50, "the demo's low should put 1000 hPa below ground somewhere ({below})");
+}
+
+#[test]
+fn errors_name_what_is_available() {
+    let case = demo_case();
+    let err = case.field("temperatur").unwrap_err().to_string();
+    assert!(err.contains("did you mean `temperature`?") && err.contains("available variables: t, u, v, q, z, sp"), "{err}");
+    let err = case.at_pressure("t", 105000.0, false).unwrap_err().to_string();
+    assert_eq!(err, "1050 hPa is outside the data's levels (200 to 1000 hPa); Baroc interpolates between levels but does not extrapolate");
+    let err = case.dataset.read("t", &Selection { levels: Some(vec![55000.0]), ..Default::default() }).unwrap_err().to_string();
+    assert!(err.contains("550 hPa is not a data level; available levels (hPa): 1000, 925, 850, 700, 600, 500, 400, 300, 250, 200"), "{err}");
+}
+
+fn scratch(name: &str) -> PathBuf {
+    let dir = std::env::temp_dir().join(format!("baroc-engine-scratch-{}", std::process::id()));
+    std::fs::create_dir_all(&dir).unwrap();
+    dir.join(name)
+}
+
+#[test]
+fn a_file_without_latitude_is_refused_clearly() {
+    let path = scratch("no-latitude.nc");
+    // netCDF-C calls go through Baroc's netCDF thread (see io::netcdf_thread).
+    baroc::io::netcdf_thread::call(|| {
+        let mut f = netcdf::create(&path).unwrap();
+        f.add_dimension("y", 3).unwrap();
+        f.add_dimension("x", 4).unwrap();
+        let mut v = f.add_variable::<f32>("t", &["y", "x"]).unwrap();
+        v.put_attribute("units", "K").unwrap();
+        v.put_values(&[0.0f32; 12], ..).unwrap();
+    });
+    let err = Dataset::open(&[&path]).unwrap_err().to_string();
+    assert!(err.contains("no recognisable latitude coordinate") && err.contains("y (3), x (4)"), "{err}");
+}
+
+#[test]
+fn a_level_axis_in_kelvin_is_not_a_pressure() {
+    let path = scratch("bad-levels.nc");
+    baroc::io::netcdf_thread::call(|| {
+        let mut f = netcdf::create(&path).unwrap();
+        for (d, n) in [("plev", 2), ("lat", 2), ("lon", 2)] {
+            f.add_dimension(d, n).unwrap();
+        }
+        let mut p = f.add_variable::<f64>("plev", &["plev"]).unwrap();
+        p.put_attribute("standard_name", "air_pressure").unwrap();
+        p.put_attribute("units", "K").unwrap();
+        p.put_values(&[1.0, 2.0], ..).unwrap();
+        let mut la = f.add_variable::<f64>("lat", &["lat"]).unwrap();
+        la.put_attribute("units", "degrees_north").unwrap();
+        la.put_values(&[1.0, 2.0], ..).unwrap();
+        let mut lo = f.add_variable::<f64>("lon", &["lon"]).unwrap();
+        lo.put_attribute("units", "degrees_east").unwrap();
+        lo.put_values(&[1.0, 2.0], ..).unwrap();
+    });
+    let err = Dataset::open(&[&path]).unwrap_err();
+    assert!(matches!(err, DataError::NotAPressure { .. }), "{err}");
+    assert!(err.to_string().contains("has units `K`, which is not a pressure (expected Pa, hPa or millibar)"));
+}
+
+#[test]
+fn split_files_combine_and_mismatched_grids_do_not() {
+    // One variable per file, and one time per file, give the same numbers as
+    // the single file.
+    let case = demo_case();
+    let t = case.field("t").unwrap();
+    let z = case.field("z").unwrap();
+    let t_path = scratch("only-t.nc");
+    let z_paths: Vec<PathBuf> = (0..t.time_count()).map(|k| scratch(&format!("z-step-{k}.nc"))).collect();
+    write_fields(&t_path, &[&t], &WriteOptions::default()).unwrap();
+    for (k, p) in z_paths.iter().enumerate().rev() {
+        // Written in reverse order: the dataset must sort them by time.
+        write_fields(p, &[&z.at_time_index(k).unwrap()], &WriteOptions { format: Format::Classic, ..Default::default() }).unwrap();
+    }
+    let mut paths = vec![t_path.clone()];
+    paths.extend(z_paths.iter().rev().cloned());
+    let combined = Case::new(Arc::new(Dataset::open(&paths).unwrap()));
+    let layer = Layer::new(100000.0, 50000.0).0;
+    let a = case.thermal_wind(layer, ThicknessRoute::Geopotential).unwrap();
+    let b = combined.thermal_wind(layer, ThicknessRoute::Geopotential).unwrap();
+    let (worst, n) = max_abs_difference(&a.eastward.data, &b.eastward.data);
+    assert!(n > 20_000 && worst < 1e-4, "{worst}");
+    assert_eq!(combined.field("z").unwrap().times, z.times);
+
+    // A grid on other longitudes does not combine.
+    let mut shifted = t.clone();
+    let mut grid = (*t.grid).clone();
+    grid.longitudes.iter_mut().for_each(|x| *x += 0.5);
+    shifted.grid = Arc::new(grid);
+    shifted.name = "t_shifted".into();
+    let shifted_path = scratch("shifted.nc");
+    write_fields(&shifted_path, &[&shifted], &WriteOptions::default()).unwrap();
+    let err = Dataset::open(&[&t_path, &shifted_path]).unwrap_err().to_string();
+    assert!(err.starts_with("grids do not match: t in "), "{err}");
+}
+
+#[test]
+fn written_results_read_back_with_units_and_missing_values() {
+    let case = demo_case();
+    let layer = Layer::new(100000.0, 50000.0).0;
+    let vt = case.thermal_wind(layer, ThicknessRoute::Temperature).unwrap();
+    let t = case.field("t").unwrap();
+    let path = scratch("results.nc");
+    let options = WriteOptions { history: "baroc test".into(), ..Default::default() };
+    write_fields(&path, &[&vt.eastward, &vt.northward, &t], &options).unwrap();
+    let back = Dataset::open(&[&path]).unwrap();
+    let u = back.read(&vt.eastward.name, &Selection::default()).unwrap();
+    assert_eq!(u.units, "m s-1");
+    let (worst, n) = max_abs_difference(&u.data, &vt.eastward.data);
+    assert!(n > 20_000 && worst == 0.0);
+    let t_back = back.read("t", &Selection::default()).unwrap();
+    assert_eq!(t_back.data.iter().filter(|x| x.is_nan()).count(), t.data.iter().filter(|x| x.is_nan()).count());
+    // No temporary file is left beside the result.
+    let leftovers: Vec<_> = std::fs::read_dir(path.parent().unwrap()).unwrap().filter_map(|e| e.ok()).filter(|e| e.file_name().to_string_lossy().ends_with(".partial")).collect();
+    assert!(leftovers.is_empty());
+}
+
+#[test]
+fn a_region_reads_only_its_box() {
+    let case = demo_case();
+    let region = baroc::physics::sampling::Region { south: 45.0, north: 55.0, west: -40.0, east: -20.0 };
+    let boxed = case.with_selection(Selection { region: Some(region), ..Default::default() });
+    let t = boxed.field("t").unwrap();
+    let (s, n, w, e) = t.grid.extent();
+    assert!(s >= 45.0 && n <= 55.0 && w >= -40.0 && e <= -20.0);
+    assert_eq!(t.grid.shape(), (14, 27));
+    // Same values as the full read at the same point.
+    let full = case.field("t").unwrap();
+    let v1 = baroc::diagnostics::point_values(&t, 50.0, -30.0).unwrap();
+    let v2 = baroc::diagnostics::point_values(&full, 50.0, -30.0).unwrap();
+    assert_eq!(v1, v2);
+}
