@@ -7,4 +7,5 @@
 //! of the language.
 
 pub mod constants;
+pub mod lang;
 pub mod mime;
