@@ -12,6 +12,7 @@ pub mod demo;
 pub mod diagnostics;
 pub mod grid;
 pub mod io;
+pub mod lang;
 pub mod mime;
 pub mod physics;
 pub mod units;
