@@ -1,0 +1,156 @@
+//! Turning language values into MIME bundles: plain text always, HTML
+//! tables for tabular values, and pictures (through `render`) for fields.
+
+use crate::grid::{Field, Statistics, VectorField};
+use crate::lang::value::{Series, Value};
+use crate::mime::MimeBundle;
+
+fn trim(x: f64) -> String {
+    if !x.is_finite() {
+        return "missing".into();
+    }
+    let magnitude = x.abs();
+    if magnitude != 0.0 && !(1e-3..1e6).contains(&magnitude) {
+        format!("{x:.4e}")
+    } else {
+        let s = format!("{x:.4}");
+        s.trim_end_matches('0').trim_end_matches('.').to_string()
+    }
+}
+
+/// A one-paragraph description of a field: name, long name, units,
+/// dimensions, coordinate ranges and statistics of the valid values.
+pub fn describe_field(f: &Field) -> String {
+    let Statistics { minimum, maximum, mean, valid, missing } = f.statistics();
+    let dims: Vec<String> = f.dimensions().iter().map(|(n, l)| format!("{n} {l}")).collect();
+    let mut out = format!("{} [{}]: {}\n  dimensions: {}\n  grid: {}\n", f.name, f.units, f.long_name, dims.join(", "), f.grid.describe());
+    if let Some(levels) = &f.levels {
+        out.push_str(&format!("  levels (hPa): {}\n", levels.iter().map(|p| trim(p / 100.0)).collect::<Vec<_>>().join(", ")));
+    }
+    for (k, v) in &f.attributes {
+        if k == "pressure_level" || k == "layer" {
+            out.push_str(&format!("  {}: {v}\n", k.replace('_', " ")));
+        }
+    }
+    if let Some(t) = &f.times {
+        let labels = t.labels();
+        out.push_str(&format!("  times: {} ({} step{})\n", if labels.len() == 1 { labels[0].clone() } else { format!("{} to {}", labels[0], labels[labels.len() - 1]) }, labels.len(), if labels.len() == 1 { "" } else { "s" }));
+    }
+    out.push_str(&format!("  minimum {}  mean {}  maximum {} {}  ({} valid, {} missing)", trim(minimum), trim(mean), trim(maximum), f.units, valid, missing));
+    out
+}
+
+fn describe_vector(w: &VectorField) -> String {
+    let speed = w.speed();
+    let s = speed.statistics();
+    format!(
+        "{} and {} [{}]\n  {}\n  speed: mean {} maximum {} {}",
+        w.eastward.name,
+        w.northward.name,
+        w.eastward.units,
+        w.eastward.long_name.replace("eastward ", ""),
+        trim(s.mean),
+        trim(s.maximum),
+        w.eastward.units
+    )
+}
+
+/// Aligned plain-text table of a series.
+pub fn series_text(series: &Series) -> String {
+    let mut rows: Vec<Vec<String>> = vec![std::iter::once(String::new()).chain(series.columns.iter().cloned()).collect()];
+    for (label, row) in series.labels.iter().zip(&series.rows) {
+        rows.push(std::iter::once(label.clone()).chain(row.iter().map(|v| trim(*v))).collect());
+    }
+    let widths: Vec<usize> = (0..rows[0].len()).map(|c| rows.iter().map(|r| r[c].chars().count()).max().unwrap_or(0)).collect();
+    let mut out = format!("{}\n", series.title);
+    for r in &rows {
+        let cells: Vec<String> = r.iter().enumerate().map(|(c, x)| if c == 0 { format!("{x:<w$}", w = widths[c]) } else { format!("{x:>w$}", w = widths[c]) }).collect();
+        out.push_str(cells.join("  ").trim_end());
+        out.push('\n');
+    }
+    out
+}
+
+pub fn escape(text: &str) -> String {
+    text.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;").replace('"', "&quot;")
+}
+
+/// HTML table of a series, units in the header.
+pub fn series_html(series: &Series) -> String {
+    let mut out = format!("<table class=\"baroc-table\"><caption>{}</caption><thead><tr><th></th>", escape(&series.title));
+    for c in &series.columns {
+        out.push_str(&format!("<th>{}</th>", escape(c)));
+    }
+    out.push_str("</tr></thead><tbody>");
+    for (label, row) in series.labels.iter().zip(&series.rows) {
+        out.push_str(&format!("<tr><th>{}</th>", escape(label)));
+        for v in row {
+            out.push_str(&format!("<td style=\"text-align:right\">{}</td>", escape(&trim(*v))));
+        }
+        out.push_str("</tr>");
+    }
+    out.push_str("</tbody></table>");
+    out
+}
+
+/// The bundle of a value. Fields get a picture when the renderers can draw
+/// one; everything has text/plain.
+pub fn bundle(value: &Value) -> MimeBundle {
+    match value {
+        Value::Series(s) => {
+            let mut b = MimeBundle::plain(series_text(s));
+            b.insert_text("text/html", series_html(s));
+            b.insert_text("application/json", serde_json::to_string(s).unwrap_or_default());
+            b
+        }
+        Value::Scalar(f) => {
+            let mut b = crate::figures::field_map(f, None).unwrap_or_default();
+            b.insert_text("text/plain", describe_field(f));
+            b
+        }
+        Value::Vector(w) => {
+            let mut b = crate::figures::vector_map(w).unwrap_or_default();
+            b.insert_text("text/plain", describe_vector(w));
+            b
+        }
+        Value::Record(r) => {
+            let mut text = format!("{}\n", r.title);
+            for (name, v) in &r.entries {
+                text.push_str(&format!("{name}: {}\n", bundle(v).plain_text()));
+            }
+            MimeBundle::plain(text)
+        }
+        other => MimeBundle::plain(plain(other)),
+    }
+}
+
+/// Plain text of the simple values.
+pub fn plain(value: &Value) -> String {
+    match value {
+        Value::Number { value, unit } => {
+            let u = unit.to_string();
+            if u.is_empty() || u == "1" { trim(*value) } else { format!("{} {u}", trim(*value)) }
+        }
+        Value::Bool(b) => b.to_string(),
+        Value::Text(t) => t.clone(),
+        Value::Angle { degrees, axis } => match axis {
+            crate::lang::value::AngleAxis::Latitude => crate::lang::eval::format_latitude(*degrees),
+            crate::lang::value::AngleAxis::Longitude => crate::lang::eval::format_longitude(*degrees),
+        },
+        Value::Layer(l) => format!("the {} layer", l.label()),
+        Value::Point { latitude, longitude } => format!("point {} {}", crate::lang::eval::format_latitude(*latitude), crate::lang::eval::format_longitude(*longitude)),
+        Value::Region(_) | Value::Range(..) => crate::lang::eval::describe_value(value),
+        Value::Time(t) => t.to_string(),
+        Value::TimeIndex(i) => format!("time step {i}"),
+        Value::Data(d) => format!("{} (variable `{}` of the open dataset, not read yet: select a level, layer, region or time, or use it in an expression)", d.written, d.variable),
+        Value::Wind(_) => "wind (the dataset's eastward and northward wind, not read yet)".into(),
+        Value::Function(f) => f.source.clone(),
+        Value::Builtin(name) => format!("built-in operator `{name}`"),
+        Value::Dataset(d) => crate::io::describe(d),
+        Value::Word(w) => w.clone(),
+        Value::Scalar(f) => describe_field(f),
+        Value::Vector(w) => describe_vector(w),
+        Value::Series(s) => series_text(s),
+        Value::Record(_) => bundle(value).plain_text().to_string(),
+    }
+}

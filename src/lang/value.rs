@@ -1,0 +1,141 @@
+//! Values of the Baroc language: what expressions evaluate to.
+//!
+//! Fields hold `Arc`s so that binding, passing and selecting by time or
+//! region share data instead of copying it; a computation makes a new field.
+
+use std::sync::Arc;
+
+use crate::calendar::DateTime;
+use crate::diagnostics::Layer;
+use crate::grid::{Field, VectorField};
+use crate::io::Dataset;
+use crate::physics::sampling::Region;
+use crate::units::Unit;
+
+/// Whether an angle is a latitude, a longitude, or neither.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum AngleAxis {
+    Latitude,
+    Longitude,
+}
+
+/// A variable of an open dataset, not yet read: reading waits until the
+/// selection (level, layer, region, time) is known, so only that part is read.
+#[derive(Clone)]
+pub struct DataRef {
+    /// The variable's own name in the dataset (roles already resolved).
+    pub variable: String,
+    /// The name the user wrote (a role or the variable's name).
+    pub written: String,
+    pub dataset: Arc<Dataset>,
+    /// Restricted to the levels of a layer (`over`), if any.
+    pub layer: Option<Layer>,
+}
+
+/// The wind of an open dataset (the eastward and northward roles), unread.
+#[derive(Clone)]
+pub struct WindRef {
+    pub eastward: DataRef,
+    pub northward: DataRef,
+}
+
+/// Values sampled at a point or summarised over an area: one row per time
+/// step (and level), ready for tables.
+#[derive(Debug, Clone, PartialEq, serde::Serialize)]
+pub struct Series {
+    /// What was sampled, e.g. "temperature at 52.50 N 20.00 W".
+    pub title: String,
+    /// Column names, each with its unit in the header text.
+    pub columns: Vec<String>,
+    /// Row labels (times, levels).
+    pub labels: Vec<String>,
+    /// rows x columns; NaN for missing.
+    pub rows: Vec<Vec<f64>>,
+}
+
+/// A user-defined function.
+#[derive(Debug, Clone)]
+pub struct UserFunction {
+    pub name: String,
+    pub parameters: Vec<String>,
+    pub body: crate::lang::syntax::Expr,
+    /// The function's source text, for recipes and inspection.
+    pub source: String,
+}
+
+/// Outputs of a recipe call, by name.
+#[derive(Clone)]
+pub struct Record {
+    pub title: String,
+    pub entries: Vec<(String, Value)>,
+}
+
+#[derive(Clone)]
+pub enum Value {
+    Number { value: f64, unit: Unit },
+    Bool(bool),
+    Text(String),
+    Angle { degrees: f64, axis: AngleAxis },
+    /// A range of two values of one kind (angles, times, numbers), from `to`.
+    Range(Box<Value>, Box<Value>),
+    Layer(Layer),
+    Point { latitude: f64, longitude: f64 },
+    Region(Region),
+    Time(DateTime),
+    /// The index of a time step, from `time(2)`.
+    TimeIndex(usize),
+    Data(DataRef),
+    Wind(WindRef),
+    Scalar(Arc<Field>),
+    Vector(Arc<VectorField>),
+    Series(Series),
+    Function(Arc<UserFunction>),
+    Builtin(&'static str),
+    Record(Record),
+    Dataset(Arc<Dataset>),
+    /// A word given as an option value (`with route mean_temperature`).
+    Word(String),
+}
+
+impl Value {
+    /// The kind, as error messages name it.
+    pub fn kind(&self) -> &'static str {
+        match self {
+            Value::Number { unit, .. } => {
+                if unit.dimension() == crate::units::Dimension::PRESSURE {
+                    "a pressure"
+                } else {
+                    "a number"
+                }
+            }
+            Value::Bool(_) => "a truth value",
+            Value::Text(_) => "a string",
+            Value::Angle { axis: AngleAxis::Latitude, .. } => "a latitude",
+            Value::Angle { axis: AngleAxis::Longitude, .. } => "a longitude",
+            Value::Range(..) => "a range",
+            Value::Layer(_) => "a pressure layer",
+            Value::Point { .. } => "a point",
+            Value::Region(_) => "a region",
+            Value::Time(_) | Value::TimeIndex(_) => "a time",
+            Value::Data(_) | Value::Scalar(_) => "a scalar field",
+            Value::Wind(_) | Value::Vector(_) => "a vector field",
+            Value::Series(_) => "a table of values",
+            Value::Function(_) | Value::Builtin(_) => "a function",
+            Value::Record(_) => "a recipe result",
+            Value::Dataset(_) => "a dataset",
+            Value::Word(_) => "a word",
+        }
+    }
+
+    pub fn number(value: f64, unit: Unit) -> Value {
+        Value::Number { value, unit }
+    }
+
+    pub fn scalar(field: Field) -> Value {
+        Value::Scalar(Arc::new(field))
+    }
+
+    pub fn vector(field: VectorField) -> Value {
+        Value::Vector(Arc::new(field))
+    }
+}
