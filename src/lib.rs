@@ -8,3 +8,4 @@
 
 pub mod constants;
 pub mod mime;
+pub mod render;
