@@ -307,3 +307,50 @@ pub(crate) fn dashes(points: &[Pt], on: f64, off: f64) -> Vec<Vec<Pt>> {
     }
     out
 }
+
+/// Choose where to write a contour value along a line: every ~240 CSS
+/// pixels of length, on fairly straight stretches, inside the map and clear
+/// of labels already placed.
+pub(crate) fn label_positions<DB: DrawingBackend>(
+    p: &Painter<'_, DB>,
+    pts: &[Pt],
+    text: &str,
+    rect: Rect,
+    occupied: &mut Vec<Rect>,
+    stagger: usize,
+) -> Vec<Pt> {
+    let mut out = Vec::new();
+    let total: f64 = pts.windows(2).map(|w| ((w[1].0 - w[0].0).powi(2) + (w[1].1 - w[0].1).powi(2)).sqrt()).sum();
+    let min_length = p.px(70.0);
+    if total < min_length {
+        return out;
+    }
+    let every = p.px(240.0);
+    // Stagger neighbouring levels so their labels do not line up.
+    let mut next = p.px(40.0) + (stagger % 4) as f64 * p.px(55.0);
+    if next > total * 0.6 {
+        next = total * 0.5;
+    }
+    let mut walked = 0.0;
+    let inner = rect.inflate(-p.px(4.0));
+    for w in pts.windows(2) {
+        let seg = ((w[1].0 - w[0].0).powi(2) + (w[1].1 - w[0].1).powi(2)).sqrt();
+        while walked + seg >= next {
+            let t = (next - walked) / seg.max(1e-9);
+            let at = (w[0].0 + t * (w[1].0 - w[0].0), w[0].1 + t * (w[1].1 - w[0].1));
+            let b = p.text_box(text, at, SMALL_SIZE, Anchor::Centre).inflate(p.px(3.0));
+            let inside = inner.contains((b.left, b.top)) && inner.contains((b.right, b.bottom));
+            if inside && !occupied.iter().any(|o| o.overlaps(&b)) {
+                occupied.push(b);
+                out.push(at);
+                next += every;
+            } else {
+                // Try again a little further along.
+                next += p.px(25.0);
+            }
+        }
+        walked += seg;
+    }
+    out
+}
+

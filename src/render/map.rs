@@ -668,7 +668,7 @@ impl Drawable for PreparedMap {
                     }
                     if layer.labels {
                         let text = format_value(iso.level, layer.step);
-                        for at in label_positions(p, &pts, &text, rect, &mut occupied, li) {
+                        for at in frame::label_positions(p, &pts, &text, rect, &mut occupied, li) {
                             labels.push((text.clone(), at, layer.colour));
                         }
                     }
@@ -676,7 +676,8 @@ impl Drawable for PreparedMap {
             }
         }
         if let Some(v) = &self.vectors {
-            self.draw_vectors(p, &frame, v, key_h, caption_h)?;
+            let key_y = frame.rect.bottom + p.text_extent("0", TICK_SIZE).1 + p.px(20.0);
+            self.draw_vectors(p, &frame, v, key_y)?;
         }
         // Labels last, on white boxes, so no vector crosses a number.
         for (text, at, colour) in &labels {
@@ -709,8 +710,8 @@ impl Drawable for PreparedMap {
         if let Some(s) = &self.shading {
             draw_colour_bar(p, s, Rect::new(rect.right + p.px(14.0), rect.top, rect.right + p.px(30.0), rect.bottom))?;
             if s.missing {
-                let y = rect.bottom + tick_h + p.px(14.0);
-                let swatch = Rect::new(rect.left, y, rect.left + p.px(22.0), y + p.px(12.0));
+                let y = rect.bottom + tick_h + p.px(20.0);
+                let swatch = Rect::new(rect.left, y - p.px(6.0), rect.left + p.px(22.0), y + p.px(6.0));
                 p.hatch(swatch)?;
                 p.stroke_rect(swatch, GREY_INK.rgba(), 1.0)?;
                 p.text("missing data", (swatch.right + p.px(5.0), (swatch.top + swatch.bottom) / 2.0), SMALL_SIZE, BLACK_INK.rgba(), Anchor::CentreLeft)?;
@@ -722,7 +723,7 @@ impl Drawable for PreparedMap {
 }
 
 impl PreparedMap {
-    fn draw_vectors<DB: DrawingBackend>(&self, p: &Painter<'_, DB>, frame: &MapFrame, v: &PreparedVectors, _key_h: f64, caption_h: f64) -> Result<(), RenderError> {
+    fn draw_vectors<DB: DrawingBackend>(&self, p: &Painter<'_, DB>, frame: &MapFrame, v: &PreparedVectors, key_y: f64) -> Result<(), RenderError> {
         let nx = self.plan.nlon_input();
         let ny = self.plan.nlat();
         let spacing = p.px(v.spacing);
@@ -748,8 +749,6 @@ impl PreparedMap {
             iy += sy;
         }
         let ink = BLACK_INK.rgba();
-        let (_, h) = p.size();
-        let key_y = h - caption_h - p.px(12.0);
         match v.style {
             VectorStyle::Barbs => {
                 let length = spacing * 0.7;
@@ -816,52 +815,6 @@ fn draw_barb<DB: DrawingBackend>(p: &Painter<'_, DB>, shape: &super::barbs::Barb
 fn draw_arrow<DB: DrawingBackend>(p: &Painter<'_, DB>, (tail, head, left, right): (Pt, Pt, Pt, Pt), ink: RGBAColor) -> Result<(), RenderError> {
     p.line(tail, head, ink, 1.2)?;
     p.polygon(&[head, left, right], ink)
-}
-
-/// Choose where to write a contour value along a line: every ~240 CSS
-/// pixels of length, on fairly straight stretches, inside the map and clear
-/// of labels already placed.
-fn label_positions<DB: DrawingBackend>(
-    p: &Painter<'_, DB>,
-    pts: &[Pt],
-    text: &str,
-    rect: Rect,
-    occupied: &mut Vec<Rect>,
-    stagger: usize,
-) -> Vec<Pt> {
-    let mut out = Vec::new();
-    let total: f64 = pts.windows(2).map(|w| ((w[1].0 - w[0].0).powi(2) + (w[1].1 - w[0].1).powi(2)).sqrt()).sum();
-    let min_length = p.px(70.0);
-    if total < min_length {
-        return out;
-    }
-    let every = p.px(240.0);
-    // Stagger neighbouring levels so their labels do not line up.
-    let mut next = p.px(40.0) + (stagger % 4) as f64 * p.px(55.0);
-    if next > total * 0.6 {
-        next = total * 0.5;
-    }
-    let mut walked = 0.0;
-    let inner = rect.inflate(-p.px(4.0));
-    for w in pts.windows(2) {
-        let seg = ((w[1].0 - w[0].0).powi(2) + (w[1].1 - w[0].1).powi(2)).sqrt();
-        while walked + seg >= next {
-            let t = (next - walked) / seg.max(1e-9);
-            let at = (w[0].0 + t * (w[1].0 - w[0].0), w[0].1 + t * (w[1].1 - w[0].1));
-            let b = p.text_box(text, at, SMALL_SIZE, Anchor::Centre).inflate(p.px(3.0));
-            let inside = inner.contains((b.left, b.top)) && inner.contains((b.right, b.bottom));
-            if inside && !occupied.iter().any(|o| o.overlaps(&b)) {
-                occupied.push(b);
-                out.push(at);
-                next += every;
-            } else {
-                // Try again a little further along.
-                next += p.px(25.0);
-            }
-        }
-        walked += seg;
-    }
-    out
 }
 
 fn draw_colour_bar<DB: DrawingBackend>(p: &Painter<'_, DB>, s: &PreparedShading, bar: Rect) -> Result<(), RenderError> {

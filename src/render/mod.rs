@@ -21,11 +21,19 @@
 pub mod barbs;
 pub mod colour;
 pub mod contouring;
+pub mod cross_section;
+pub mod evcxr;
 mod font;
 mod frame;
+pub mod hodograph;
 pub(crate) mod html;
 pub mod map;
 mod painter;
+pub mod panels;
+pub mod profile;
+pub mod report;
+pub mod table;
+pub mod time_series;
 
 use plotters::prelude::*;
 
@@ -33,7 +41,15 @@ use crate::mime::MimeBundle;
 
 pub use barbs::{barb_decomposition, BarbCounts, Hemisphere};
 pub use colour::{Levels, Palette};
+pub use cross_section::{render_cross_section, CrossSectionSpec};
+pub use evcxr::{evcxr_display, evcxr_display_string};
+pub use hodograph::{render_hodograph, HodographPoint, HodographSpec};
 pub use map::{render_map, ContourLayer, MapSpec, ShadedLayer, VectorLayer, VectorStyle};
+pub use panels::{render_figure, render_panels, FigureSpec, PanelsSpec};
+pub use profile::{render_profile, ProfileSeries, ProfileSpec};
+pub use report::{Report, ReportBlock, CAUTION};
+pub use table::{Cell, Column, TableSpec};
+pub use time_series::{render_time_series, TimeSeries, TimeSeriesSpec};
 
 /// What can go wrong while rendering. Each variant says what was expected.
 #[derive(Debug, thiserror::Error)]
@@ -213,8 +229,6 @@ pub(crate) fn encode_png(rgb: &[u8], width: u32, height: u32, dpi: f64) -> Resul
 pub(crate) fn drawing_error<E: std::fmt::Debug>(error: E) -> RenderError {
     RenderError::Drawing(format!("{error:?}"))
 }
-
-
 
 #[cfg(test)]
 pub(crate) mod test_support;

@@ -23,11 +23,13 @@ pub(crate) struct Synthetic {
     pub signed: Array2<f32>,
 }
 
-/// Thickness in metres: about 5700 m in the warm south, 5100 m in the cold
-/// north, front along a wave of wavenumber 5 around the globe.
+/// Thickness in metres: about 5700 m on the warm (equatorward) side, 5100 m
+/// on the cold (poleward) side, the front along a wave of wavenumber 5 in
+/// each hemisphere (mirrored, so both poles are cold).
 pub(crate) fn thickness_at(lat: f64, lon: f64) -> f64 {
     let front = 48.0 + 7.0 * (5.0 * lon.to_radians()).sin();
-    5400.0 - 300.0 * ((lat - front) / 12.0).tanh() - 2.0 * (lat - 45.0)
+    let distance = lat.abs();
+    5400.0 - 300.0 * ((distance - front) / 12.0).tanh() - 2.0 * (distance - 45.0)
 }
 
 /// Build the synthetic set on the given grid (latitudes in any order).
@@ -56,7 +58,7 @@ pub(crate) fn synthetic(lats: Vec<f64>, lons: Vec<f64>) -> Synthetic {
                 v[[i, j]] = (G0 / f * dzdx) as f32;
             }
             let front = 48.0 + 7.0 * (5.0 * lon.to_radians()).sin();
-            signed[[i, j]] = (4.0 * (5.0 * lon.to_radians()).cos() * (-((lat - front) / 9.0).powi(2)).exp()) as f32;
+            signed[[i, j]] = (4.0 * (5.0 * lon.to_radians()).cos() * (-((lat.abs() - front) / 9.0).powi(2)).exp()) as f32;
         }
     }
     Synthetic { lats, lons, thickness, u, v, signed }
