@@ -19,3 +19,4 @@ pub mod mime;
 pub mod physics;
 pub mod session;
 pub mod units;
+pub mod render;
