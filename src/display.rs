@@ -4,6 +4,7 @@
 use crate::grid::{Field, Statistics, VectorField};
 use crate::lang::value::{Series, Value};
 use crate::mime::MimeBundle;
+use crate::render::table::{Cell, Column, TableSpec};
 
 fn trim(x: f64) -> String {
     if !x.is_finite() {
@@ -55,54 +56,37 @@ fn describe_vector(w: &VectorField) -> String {
     )
 }
 
+/// The renderers' table of a series: a first column of row labels, then
+/// one column per quantity with its unit in the header.
+pub fn series_table(series: &Series) -> TableSpec {
+    let mut columns = vec![Column::new("time / level", "")];
+    for c in &series.columns {
+        let (name, units) = match c.rsplit_once(" (") {
+            Some((n, u)) => (n.to_string(), u.trim_end_matches(')').to_string()),
+            None => (c.clone(), String::new()),
+        };
+        columns.push(Column::new(name, units));
+    }
+    let mut table = TableSpec::new(series.title.clone(), columns);
+    for (label, row) in series.labels.iter().zip(&series.rows) {
+        let mut cells = vec![Cell::Text(label.clone())];
+        cells.extend(row.iter().map(|&v| if v.is_finite() { Cell::Number(v) } else { Cell::Missing }));
+        table.push_row(cells);
+    }
+    table
+}
+
 /// Aligned plain-text table of a series.
 pub fn series_text(series: &Series) -> String {
-    let mut rows: Vec<Vec<String>> = vec![std::iter::once(String::new()).chain(series.columns.iter().cloned()).collect()];
-    for (label, row) in series.labels.iter().zip(&series.rows) {
-        rows.push(std::iter::once(label.clone()).chain(row.iter().map(|v| trim(*v))).collect());
-    }
-    let widths: Vec<usize> = (0..rows[0].len()).map(|c| rows.iter().map(|r| r[c].chars().count()).max().unwrap_or(0)).collect();
-    let mut out = format!("{}\n", series.title);
-    for r in &rows {
-        let cells: Vec<String> = r.iter().enumerate().map(|(c, x)| if c == 0 { format!("{x:<w$}", w = widths[c]) } else { format!("{x:>w$}", w = widths[c]) }).collect();
-        out.push_str(cells.join("  ").trim_end());
-        out.push('\n');
-    }
-    out
-}
-
-pub fn escape(text: &str) -> String {
-    text.replace('&', "&amp;").replace('<', "&lt;").replace('>', "&gt;").replace('"', "&quot;")
-}
-
-/// HTML table of a series, units in the header.
-pub fn series_html(series: &Series) -> String {
-    let mut out = format!("<table class=\"baroc-table\"><caption>{}</caption><thead><tr><th></th>", escape(&series.title));
-    for c in &series.columns {
-        out.push_str(&format!("<th>{}</th>", escape(c)));
-    }
-    out.push_str("</tr></thead><tbody>");
-    for (label, row) in series.labels.iter().zip(&series.rows) {
-        out.push_str(&format!("<tr><th>{}</th>", escape(label)));
-        for v in row {
-            out.push_str(&format!("<td style=\"text-align:right\">{}</td>", escape(&trim(*v))));
-        }
-        out.push_str("</tr>");
-    }
-    out.push_str("</tbody></table>");
-    out
+    series_table(series).to_text()
 }
 
 /// The bundle of a value. Fields get a picture when the renderers can draw
 /// one; everything has text/plain.
 pub fn bundle(value: &Value) -> MimeBundle {
     match value {
-        Value::Series(s) => {
-            let mut b = MimeBundle::plain(series_text(s));
-            b.insert_text("text/html", series_html(s));
-            b.insert_text("application/json", serde_json::to_string(s).unwrap_or_default());
-            b
-        }
+        Value::Series(s) => series_table(s).to_bundle().unwrap_or_else(|_| MimeBundle::plain(series_text(s))),
+        Value::Figure(b) => b.clone(),
         Value::Scalar(f) => {
             let mut b = crate::figures::field_map(f, None).unwrap_or_default();
             b.insert_text("text/plain", describe_field(f));
@@ -151,6 +135,6 @@ pub fn plain(value: &Value) -> String {
         Value::Scalar(f) => describe_field(f),
         Value::Vector(w) => describe_vector(w),
         Value::Series(s) => series_text(s),
-        Value::Record(_) => bundle(value).plain_text().to_string(),
+        Value::Record(_) | Value::Figure(_) => bundle(value).plain_text().to_string(),
     }
 }

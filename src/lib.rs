@@ -20,3 +20,5 @@ pub mod physics;
 pub mod session;
 pub mod units;
 pub mod render;
+pub mod report;
+pub mod runner;

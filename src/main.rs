@@ -1,27 +1,43 @@
 //! The `baroc` command: a thin layer over the library's modules.
 
-use std::path::PathBuf;
+use std::io::Write;
+use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 use std::sync::Arc;
 
-use clap::{Parser, Subcommand};
+use clap::{Parser, Subcommand, ValueEnum};
 
 use baroc::diagnostics::{Case, Layer};
 use baroc::io::{Dataset, Selection};
+use baroc::runner::{RunRequest, TableFormat};
+
+const CAUTION: &str = "Baroc is an analysis tool, not a warning service. For forecasts and warnings, defer to your national meteorological service and local practice.";
 
 #[derive(Parser)]
-#[command(name = "baroc", version, about = "Thermal-wind and balance diagnostics on CF-NetCDF pressure-level grids.", long_about = "Baroc diagnoses how the wind changes with height: geostrophic wind, hydrostatic thickness, layer-mean temperature, thermal wind, temperature advection, ageostrophic shear, stability and baroclinicity, on CF-NetCDF grids.\n\nBaroc is an analysis tool, not a warning service. For forecasts and warnings, defer to your national meteorological service and local practice.")]
+#[command(
+    name = "baroc",
+    version,
+    about = "Thermal-wind and balance diagnostics on CF-NetCDF pressure-level grids.",
+    long_about = "Baroc diagnoses how the wind changes with height: geostrophic wind, hydrostatic thickness, layer-mean temperature, thermal wind, temperature advection, ageostrophic shear, stability and baroclinicity, on CF-NetCDF grids.\n\nBaroc is an analysis tool, not a warning service. For forecasts and warnings, defer to your national meteorological service and local practice."
+)]
 struct Cli {
     #[command(subcommand)]
     command: Command,
 }
 
+#[derive(Clone, Copy, ValueEnum)]
+enum Format {
+    Text,
+    Csv,
+    Json,
+}
+
 #[derive(Subcommand)]
 enum Command {
-    /// Write the built-in demonstration case and print its thermal-wind summary.
-    #[command(after_help = "Example:\n  baroc demo --output demo-case\n  baroc inspect demo-case/marrowind-wave-2026-10-14.nc")]
+    /// Write the built-in demonstration case, print its thermal-wind summary and write its report.
+    #[command(after_help = "Example:\n  baroc demo --output baroc-demo\n  baroc inspect baroc-demo/marrowind-wave-2026-10-14.nc")]
     Demo {
-        /// Directory to write the case (and its report) into.
+        /// Directory to write the case and its report into.
         #[arg(long, short, default_value = "baroc-demo")]
         output: PathBuf,
         /// Time step to summarise (0-based; the default is the last).
@@ -35,46 +51,187 @@ enum Command {
         #[arg(required = true)]
         files: Vec<PathBuf>,
     },
+    /// Evaluate a script, recipe or expression on data files and write every named result to CF NetCDF.
+    #[command(after_help = "Examples (on the demo case):\n  baroc run -e 'thermal_wind(1000 hPa to 500 hPa)' -o shear.nc baroc-demo/marrowind-wave-2026-10-14.nc\n  baroc run recipes/layer-thermal-wind.baroc --set 'layer=850 hPa to 300 hPa' -o out.nc --report out.html baroc-demo/marrowind-wave-2026-10-14.nc")]
+    Run {
+        #[command(flatten)]
+        program: ProgramArgs,
+        /// NetCDF file to write the named results to (written atomically).
+        #[arg(long, short)]
+        output: Option<PathBuf>,
+        /// Also write a self-contained HTML report of the run.
+        #[arg(long)]
+        report: Option<PathBuf>,
+        /// Evaluate each time step separately, in parallel, with a progress bar.
+        #[arg(long)]
+        each_time: bool,
+    },
+    /// Print named results at points or as area statistics.
+    #[command(after_help = "Examples (on the demo case):\n  baroc table -e 'thickness(1000 hPa to 500 hPa)' --at '51.5 north, 31 west' baroc-demo/marrowind-wave-2026-10-14.nc\n  baroc table -e 'turning(1000 hPa to 500 hPa)' --region '45 north to 60 north, 40 west to 10 west' --format csv baroc-demo/marrowind-wave-2026-10-14.nc")]
+    Table {
+        #[command(flatten)]
+        program: ProgramArgs,
+        /// A point, written as in the language: '52.5 north, 20 west'. Repeatable.
+        #[arg(long = "at")]
+        points: Vec<String>,
+        /// A box: '40 north to 65 north, 50 west to 5 east'. Repeatable.
+        #[arg(long = "region")]
+        regions: Vec<String>,
+        #[arg(long, value_enum, default_value = "text")]
+        format: Format,
+    },
+}
+
+#[derive(clap::Args)]
+struct ProgramArgs {
+    /// A Baroc script or recipe file (.baroc); the data files follow it.
+    #[arg(long, short)]
+    script: Option<PathBuf>,
+    /// An inline expression or program instead of a script.
+    #[arg(long, short, conflicts_with = "script")]
+    expression: Option<String>,
+    /// Override a recipe parameter: NAME=VALUE, the value in Baroc syntax.
+    #[arg(long = "set", value_name = "NAME=VALUE")]
+    overrides: Vec<String>,
+    /// The data files (NetCDF), combined into one dataset. A first argument
+    /// ending in .baroc is taken as the script.
+    files: Vec<PathBuf>,
+}
+
+/// Writes to stdout; a closed pipe (`baroc ... | head`) ends quietly.
+fn out(text: &str) {
+    let mut stdout = std::io::stdout().lock();
+    if let Err(e) = stdout.write_all(text.as_bytes()).and_then(|_| stdout.flush()) {
+        if e.kind() == std::io::ErrorKind::BrokenPipe {
+            std::process::exit(0);
+        }
+    }
 }
 
 fn main() -> ExitCode {
     let cli = Cli::parse();
     let result = match cli.command {
         Command::Demo { output, time_step } => demo(&output, time_step),
-        Command::Inspect { files } => inspect(&files),
+        Command::Inspect { files } => Dataset::open(&files).map(|d| out(&format!("{}\n", baroc::io::describe(&d)))).map_err(|e| format!("error: {e}")),
+        Command::Run { program, output, report, each_time } => run(program, output, report, each_time),
+        Command::Table { program, points, regions, format } => table(program, points, regions, format),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
         Err(message) => {
-            eprintln!("error: {message}");
+            eprintln!("{}", message.trim_end());
             ExitCode::FAILURE
         }
     }
 }
 
-fn demo(output: &std::path::Path, time_step: Option<usize>) -> Result<(), String> {
-    let path = baroc::demo::write(output).map_err(|e| e.to_string())?;
-    println!("wrote the demonstration case to {}", path.display());
-    let dataset = Arc::new(Dataset::open(&[&path]).map_err(|e| e.to_string())?);
+fn request(program: ProgramArgs, each_time: bool) -> Result<RunRequest, String> {
+    let mut files = program.files;
+    let mut script = program.script;
+    if script.is_none() && program.expression.is_none() && files.first().is_some_and(|f| f.extension().is_some_and(|e| e == "baroc")) {
+        script = Some(files.remove(0));
+    }
+    let (source, origin) = match (&script, &program.expression) {
+        (Some(path), _) => (std::fs::read_to_string(path).map_err(|e| format!("error: cannot read the script {}: {e}", path.display()))?, path.display().to_string()),
+        (None, Some(e)) => (e.clone(), format!("--expression {e:?}")),
+        (None, None) => return Err("error: give a script (a .baroc file or --script FILE) or --expression TEXT\n  for example: baroc run -e 'thickness(1000 hPa to 500 hPa)' -o thickness.nc baroc-demo/marrowind-wave-2026-10-14.nc".into()),
+    };
+    let mut overrides = Vec::new();
+    for o in program.overrides {
+        let (k, v) = o.split_once('=').ok_or_else(|| format!("error: --set takes NAME=VALUE, for example --set 'layer=850 hPa to 500 hPa'; got `{o}`"))?;
+        overrides.push((k.trim().to_string(), v.trim().to_string()));
+    }
+    let project = script.as_ref().and_then(|s| s.parent().map(Path::to_path_buf)).unwrap_or_else(|| PathBuf::from("recipes"));
+    Ok(RunRequest {
+        source,
+        origin,
+        data_files: files,
+        overrides,
+        each_time,
+        time_steps: None,
+        progress: each_time && std::io::IsTerminal::is_terminal(&std::io::stderr()),
+        recipe_folders: baroc::lang::recipe::default_folders(Some(&project)),
+    })
+}
+
+fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, each_time: bool) -> Result<(), String> {
+    let request = request(program, each_time)?;
+    let outcome = baroc::runner::run(&request).map_err(|e| e.0)?;
+    if let Some(path) = &output {
+        let names = baroc::runner::write_results(path, &outcome, &request).map_err(|e| e.0)?;
+        out(&format!("wrote {} to {}\n", names.join(", "), path.display()));
+    }
+    if let Some(path) = &report {
+        baroc::report::build(&outcome, &request, Vec::new()).write(path).map_err(|e| format!("error: cannot write the report: {e}"))?;
+        out(&format!("wrote the report to {}\n", path.display()));
+    }
+    if output.is_none() && report.is_none() {
+        for r in &outcome.results {
+            out(&format!("{}: {}\n", r.name, baroc::display::plain(&r.value)));
+        }
+    }
+    Ok(())
+}
+
+fn parse_place(text: &str, what: &str) -> Result<baroc::lang::value::Value, String> {
+    let source = format!("{what}({text})");
+    let mut evaluator = baroc::lang::eval::Evaluator::new();
+    let program = baroc::lang::parse(&source).map_err(|d| format!("error: `{text}` is not a {what}: {}", d[0].message))?;
+    let mut values = evaluator.run(&program, &source).map_err(|d| format!("error: `{text}` is not a {what}: {}", d.message))?;
+    values.pop().map(|(_, v)| v).ok_or_else(|| format!("error: `{text}` is not a {what}"))
+}
+
+fn table(program: ProgramArgs, points: Vec<String>, regions: Vec<String>, format: Format) -> Result<(), String> {
+    use baroc::lang::value::Value;
+    let request = request(program, false)?;
+    let mut pts = Vec::new();
+    for p in &points {
+        match parse_place(p, "point")? {
+            Value::Point { latitude, longitude } => pts.push((latitude, longitude)),
+            _ => return Err(format!("error: `{p}` is not a point; write it as '52.5 north, 20 west'")),
+        }
+    }
+    let mut boxes = Vec::new();
+    for r in &regions {
+        match parse_place(r, "box")? {
+            Value::Region(region) => boxes.push(region),
+            _ => return Err(format!("error: `{r}` is not a region; write it as '40 north to 65 north, 50 west to 5 east'")),
+        }
+    }
+    if pts.is_empty() && boxes.is_empty() {
+        return Err("error: say where: --at '52.5 north, 20 west' or --region '40 north to 65 north, 50 west to 5 east'".into());
+    }
+    let outcome = baroc::runner::run(&request).map_err(|e| e.0)?;
+    let rows = baroc::runner::tabulate(&outcome, &pts, &boxes).map_err(|e| e.0)?;
+    let format = match format {
+        Format::Text => TableFormat::Text,
+        Format::Csv => TableFormat::Csv,
+        Format::Json => TableFormat::Json,
+    };
+    out(&baroc::runner::format_table(&rows, format));
+    Ok(())
+}
+
+fn demo(output: &Path, time_step: Option<usize>) -> Result<(), String> {
+    let path = baroc::demo::write(output).map_err(|e| format!("error: {e}"))?;
+    out(&format!("wrote the demonstration case to {}\n", path.display()));
+    let dataset = Arc::new(Dataset::open(&[&path]).map_err(|e| format!("error: {e}"))?);
     let steps = baroc::demo::TIME_STEPS;
     let step = time_step.unwrap_or(steps - 1);
     if step >= steps {
-        return Err(format!("time step {step} is out of range: the case has steps 0 to {}", steps - 1));
+        return Err(format!("error: time step {step} is out of range: the case has steps 0 to {}", steps - 1));
     }
     let case = Case::new(dataset.clone()).with_selection(Selection { times: Some(vec![step]), ..Selection::default() });
     let label = dataset.variable("t").and_then(|v| v.times.as_ref()).map(|t| t.labels()[step].clone()).unwrap_or_default();
     for (bottom, top) in [(100000.0, 50000.0), (85000.0, 30000.0)] {
         let layer = Layer::new(bottom, top).0;
-        let rows = baroc::demo::summarise(&case, layer).map_err(|e| e.to_string())?;
-        println!();
-        print!("{}", baroc::demo::format_summary(&rows, layer, &label));
+        let rows = baroc::demo::summarise(&case, layer).map_err(|e| format!("error: {e}"))?;
+        out(&format!("\n{}", baroc::demo::format_summary(&rows, layer, &label)));
     }
-    println!("\nBaroc is an analysis tool, not a warning service. For forecasts and warnings, defer to your national meteorological service and local practice.");
-    Ok(())
-}
-
-fn inspect(files: &[PathBuf]) -> Result<(), String> {
-    let dataset = Dataset::open(files).map_err(|e| e.to_string())?;
-    println!("{}", baroc::io::describe(&dataset));
+    match baroc::demo::write_report(output, &path, step) {
+        Ok(report) => out(&format!("\nwrote the case-study report to {}\n", report.display())),
+        Err(e) => return Err(format!("error: the report could not be written: {e}")),
+    }
+    out(&format!("\n{CAUTION}\n"));
     Ok(())
 }

@@ -99,6 +99,9 @@ pub struct Evaluator {
     pub base_directory: PathBuf,
     /// Folders searched for recipes.
     pub recipe_folders: Vec<PathBuf>,
+    /// The selection every statement starts from (the runner sets one time
+    /// step here when it runs a recipe step by step).
+    pub base_selection: Selection,
     depth: usize,
     interrupt: Option<Arc<AtomicBool>>,
     source: String,
@@ -158,6 +161,7 @@ impl Evaluator {
             outputs: Vec::new(),
             base_directory: PathBuf::from("."),
             recipe_folders: Vec::new(),
+            base_selection: Selection::default(),
             depth: 0,
             interrupt: None,
             source: String::new(),
@@ -230,7 +234,8 @@ impl Evaluator {
         self.source = source.to_string();
         let mut shown = Vec::new();
         for statement in &program.statements {
-            if let Some(value) = self.statement(statement, &Context::default())? {
+            let context = Context { selection: self.base_selection.clone() };
+            if let Some(value) = self.statement(statement, &context)? {
                 shown.push((statement.span, value));
             }
             self.remember_definition(statement);
@@ -500,7 +505,7 @@ impl Evaluator {
             ExprKind::Binary { operator, left, right } => {
                 let a = self.expr(left, context)?;
                 let b = self.expr(right, context)?;
-                self.binary(*operator, a, b, left.span, right.span, span)
+                self.binary(*operator, a, b, left.span, right.span, span, context)
             }
             ExprKind::Range { from, to } => {
                 let a = self.expr(from, context)?;
@@ -570,10 +575,11 @@ impl Evaluator {
         }
     }
 
-    fn binary(&mut self, op: BinaryOperator, a: Value, b: Value, left: Span, right: Span, span: Span) -> Result<Value> {
+    #[allow(clippy::too_many_arguments)]
+    fn binary(&mut self, op: BinaryOperator, a: Value, b: Value, left: Span, right: Span, span: Span, context: &Context) -> Result<Value> {
         use BinaryOperator::*;
-        let a = self.force(a, &Context::default(), left)?;
-        let b = self.force(b, &Context::default(), right)?;
+        let a = self.force(a, context, left)?;
+        let b = self.force(b, context, right)?;
         match op {
             And | Or => match (&a, &b) {
                 (Value::Bool(x), Value::Bool(y)) => Ok(Value::Bool(if op == And { *x && *y } else { *x || *y })),

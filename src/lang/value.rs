@@ -95,6 +95,8 @@ pub enum Value {
     Dataset(Arc<Dataset>),
     /// A word given as an option value (`with route mean_temperature`).
     Word(String),
+    /// A picture (map, hodograph, profile, section, panels), as its bundle.
+    Figure(crate::mime::MimeBundle),
 }
 
 impl Value {
@@ -124,6 +126,7 @@ impl Value {
             Value::Record(_) => "a recipe result",
             Value::Dataset(_) => "a dataset",
             Value::Word(_) => "a word",
+            Value::Figure(_) => "a figure",
         }
     }
 
