@@ -92,7 +92,7 @@ pub fn generate() -> DemoFields {
             let p = levels_pa[k];
             // Contrast across the zone, strongest low down, vanishing near the
             // tropopause (K).
-            let contrast = 18.0 * ((p / 20000.0).ln() / 5f64.ln()).clamp(0.0, 1.0);
+            let contrast = 14.0 * ((p / 20000.0).ln() / 5f64.ln()).clamp(0.0, 1.0);
             // The zone tilts poleward with height, and the wave tilts westward
             // with height (the growing baroclinic wave's structure).
             let tilt = 3.0 * (100000.0 / p).ln();
@@ -102,7 +102,7 @@ pub fn generate() -> DemoFields {
                     let (lat, lon) = (latitudes[j], longitudes[i]);
                     let x = lon + 25.0 - phase_speed * hours_since_start + westward_shift;
                     let front = 48.0 + tilt + amplitude * (x.to_radians() * 360.0 / 40.0).sin();
-                    let zone = -0.5 * contrast * ((lat - front) / 4.0).tanh();
+                    let zone = -0.5 * contrast * ((lat - front) / 5.0).tanh();
                     let background = -0.35 * (lat - 47.5);
                     temperature[[t, k, j, i]] = (base[k] + zone + background) as f32;
                 }
@@ -220,14 +220,9 @@ pub fn write(directory: &Path) -> Result<PathBuf, crate::io::DataError> {
     let path = directory.join(FILE_NAME);
     let fields = generate();
     std::fs::create_dir_all(directory).map_err(|e| demo_error(&path, e))?;
-    let temporary = tempfile::Builder::new()
-        .prefix(".baroc-demo-")
-        .suffix(".nc.partial")
-        .tempfile_in(directory)
-        .map_err(|e| demo_error(&path, e))?
-        .into_temp_path();
+    let temporary = crate::atomic::temporary_beside(&path).map_err(|e| demo_error(&path, e))?;
     crate::io::netcdf_thread::call(|| write_file(&temporary, &fields).map_err(|e| e.to_string())).map_err(|e| demo_error(&path, e))?;
-    temporary.persist(&path).map_err(|e| demo_error(&path, e.error))?;
+    crate::atomic::publish(temporary, &path).map_err(|e| demo_error(&path, e))?;
     Ok(path)
 }
 

@@ -6,6 +6,7 @@
 //! The physics (`physics`) works on plain arrays and grids and knows nothing
 //! of the language; `diagnostics` applies it to fields read through `io`.
 
+pub mod atomic;
 pub mod calendar;
 pub mod constants;
 pub mod demo;

@@ -71,7 +71,7 @@ pub fn provenance(outcome: &RunOutcome, request: &RunRequest) -> Vec<(String, St
 /// Builds the report of a run.
 pub fn build(outcome: &RunOutcome, request: &RunRequest, extra_figures: Vec<(crate::mime::MimeBundle, String)>) -> Report {
     let title = outcome.header.title.clone().unwrap_or_else(|| format!("Baroc run of {}", request.origin));
-    let mut report = Report::new(title).paragraph(crate::render::report::CAUTION);
+    let mut report = Report::new(title);
     if let Some(about) = &outcome.header.about {
         report = report.paragraph(about.clone());
     }

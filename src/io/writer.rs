@@ -61,15 +61,9 @@ pub fn write_fields(path: &Path, fields: &[&Field], options: &WriteOptions) -> R
             return Err(DataError::Invalid(format!("two results are both named `{}`", a.name)));
         }
     }
-    let directory = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
-    let temporary = tempfile::Builder::new()
-        .prefix(".baroc-")
-        .suffix(".nc.partial")
-        .tempfile_in(directory)
-        .map_err(|e| write_error(path, e))?
-        .into_temp_path();
+    let temporary = crate::atomic::temporary_beside(path).map_err(|e| write_error(path, e))?;
     super::netcdf_thread::call(|| write_into(&temporary, fields, options).map_err(|e| e.to_string())).map_err(|e| write_error(path, e))?;
-    temporary.persist(path).map_err(|e| write_error(path, e.error))?;
+    crate::atomic::publish(temporary, path).map_err(|e| write_error(path, e))?;
     Ok(())
 }
 

@@ -120,9 +120,7 @@ pub fn save_session(evaluator: &Evaluator, name: &str) -> Result<PathBuf, String
         text.push('\n');
     }
     let path = folder.join(format!("{}.baroc", name.replace('_', "-")));
-    let temporary = tempfile::NamedTempFile::new_in(&folder).map_err(|e| e.to_string())?;
-    std::fs::write(temporary.path(), text).map_err(|e| e.to_string())?;
-    temporary.persist(&path).map_err(|e| e.to_string())?;
+    crate::atomic::write(&path, text.as_bytes()).map_err(|e| format!("cannot write {}: {e}", path.display()))?;
     Ok(path)
 }
 

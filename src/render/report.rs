@@ -3,7 +3,6 @@
 //! temporary file in the destination directory, then renamed over the
 //! destination, so a reader never sees half a report.
 
-use std::io::Write;
 use std::path::Path;
 
 use base64::Engine;
@@ -129,19 +128,9 @@ pre.recipe { background: #f6f6f6; border: 1px solid #ddd; padding: 0.8em; overfl
 .table-note { font-size: 0.9em; color: #444; }
 ";
 
-/// Write bytes to `path` through a temporary file in the same directory
-/// and a rename (atomic on one file system), so no reader sees a partial file.
+/// Write bytes to `path` atomically (see `crate::atomic`).
 pub(crate) fn write_atomically(path: &Path, bytes: &[u8]) -> Result<(), RenderError> {
-    let io = |source: std::io::Error| RenderError::Io { path: path.display().to_string(), source };
-    let dir = match path.parent() {
-        Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
-        _ => std::path::PathBuf::from("."),
-    };
-    let mut temp = tempfile::NamedTempFile::new_in(&dir).map_err(io)?;
-    temp.write_all(bytes).map_err(io)?;
-    temp.as_file().sync_all().map_err(io)?;
-    temp.persist(path).map_err(|e| io(e.error))?;
-    Ok(())
+    crate::atomic::write(path, bytes).map_err(|source| RenderError::Io { path: path.display().to_string(), source })
 }
 
 #[cfg(test)]
