@@ -948,6 +948,7 @@ mod tests {
         }
         assert!(grey > 500 && grey < total / 4, "hatched pixels: {grey} of {total}");
         std::fs::write(check_dir().join("map-missing.png"), bundle.binary("image/png").unwrap()).unwrap();
+        std::fs::write(check_dir().join("map-missing.svg"), bundle.text("image/svg+xml").unwrap()).unwrap();
     }
 
     #[test]

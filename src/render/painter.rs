@@ -239,6 +239,9 @@ impl<'a, DB: DrawingBackend> Painter<'a, DB> {
     }
 
     pub fn polyline(&self, points: &[Pt], colour: RGBAColor, width_css: f64) -> Result<(), RenderError> {
+        if self.raster {
+            return self.raster_polyline(points, colour, width_css);
+        }
         let pts = round_points(points);
         if pts.len() < 2 {
             return Ok(());
@@ -252,8 +255,68 @@ impl<'a, DB: DrawingBackend> Painter<'a, DB> {
         self.polyline(&[a, b], colour, width_css)
     }
 
+    /// Raster strokes are drawn here rather than by the drawing library,
+    /// whose line rasteriser drops pixels of short rising segments (contour
+    /// lines made of one-pixel steps come out dotted). Each pixel gets the
+    /// coverage of a round-capped stroke of the given width, the largest over
+    /// the polyline's segments, so joints are not painted twice.
+    fn raster_polyline(&self, points: &[Pt], colour: RGBAColor, width_css: f64) -> Result<(), RenderError> {
+        let pts: Vec<Pt> = points.iter().copied().filter(|p| p.0.is_finite() && p.1.is_finite()).collect();
+        if pts.len() < 2 {
+            return Ok(());
+        }
+        let (aw, ah) = self.size();
+        let half = (width_css * self.scale).max(1.0) / 2.0;
+        let mut cover: Vec<(i64, i64, f64)> = Vec::new();
+        for w in pts.windows(2) {
+            let (a, b) = (w[0], w[1]);
+            let x0 = (a.0.min(b.0) - half - 1.0).floor().max(0.0) as i64;
+            let x1 = (a.0.max(b.0) + half + 1.0).ceil().min(aw - 1.0) as i64;
+            let y0 = (a.1.min(b.1) - half - 1.0).floor().max(0.0) as i64;
+            let y1 = (a.1.max(b.1) + half + 1.0).ceil().min(ah - 1.0) as i64;
+            let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+            let len2 = dx * dx + dy * dy;
+            for y in y0..=y1 {
+                for x in x0..=x1 {
+                    let (cx, cy) = (x as f64 + 0.5, y as f64 + 0.5);
+                    let t = if len2 > 0.0 { (((cx - a.0) * dx + (cy - a.1) * dy) / len2).clamp(0.0, 1.0) } else { 0.0 };
+                    let (px, py) = (a.0 + t * dx - cx, a.1 + t * dy - cy);
+                    let d = (px * px + py * py).sqrt();
+                    let c = (half + 0.5 - d).clamp(0.0, 1.0);
+                    if c > 0.0 {
+                        cover.push((y, x, c));
+                    }
+                }
+            }
+        }
+        cover.sort_by(|p, q| (p.0, p.1).cmp(&(q.0, q.1)).then(q.2.total_cmp(&p.2)));
+        cover.dedup_by(|later, first| later.0 == first.0 && later.1 == first.1);
+        for (y, x, c) in cover {
+            let shade = RGBAColor(colour.0, colour.1, colour.2, colour.3 * c);
+            self.area.draw_pixel((x as i32, y as i32), &shade).map_err(drawing_error)?;
+        }
+        Ok(())
+    }
+
+    /// Raster fill of rings by the even-odd rule, pixel by pixel.
+    fn raster_fill(&self, rings: &[Vec<Pt>], colour: RGBAColor) -> Result<(), RenderError> {
+        let (aw, ah) = self.size();
+        let mut result = Ok(());
+        scan_spans(aw as usize, ah as usize, (0.0, 0.0), rings, |row, from, to| {
+            for x in from..to {
+                if result.is_ok() {
+                    result = self.area.draw_pixel((x as i32, row as i32), &colour).map_err(drawing_error);
+                }
+            }
+        });
+        result
+    }
+
     /// Fill one simple polygon.
     pub fn polygon(&self, points: &[Pt], colour: RGBAColor) -> Result<(), RenderError> {
+        if self.raster {
+            return self.raster_fill(&[points.to_vec()], colour);
+        }
         let pts = round_points(points);
         if pts.len() < 3 {
             return Ok(());
@@ -272,6 +335,9 @@ impl<'a, DB: DrawingBackend> Painter<'a, DB> {
     /// rasteriser fills by parity, and the SVG output sets
     /// `fill-rule="evenodd"`, so holes stay empty in both.
     pub fn region(&self, rings: &[Vec<Pt>], colour: RGBAColor) -> Result<(), RenderError> {
+        if self.raster {
+            return self.raster_fill(rings, colour);
+        }
         let mut joined: Vec<(i32, i32)> = Vec::new();
         let mut anchor: Option<(i32, i32)> = None;
         for ring in rings {
@@ -520,6 +586,29 @@ fn segment_crossing(a: Pt, b: Pt, c: Pt, d: Pt) -> Option<f64> {
 /// (half-open), so shared vertices are counted exactly once. Partly
 /// transparent colours are blended over what is there.
 fn scan_fill(image: &mut [u8], w: usize, h: usize, origin: (f64, f64), rings: &[Vec<Pt>], paint: impl Fn(usize, usize) -> Option<RGBAColor>) {
+    scan_spans(w, h, origin, rings, |row, from, to| {
+        for x in from..to {
+            let Some(colour) = paint(x, row) else { continue };
+            let alpha = colour.3.clamp(0.0, 1.0);
+            let k = (row * w + x) * 3;
+            if alpha >= 1.0 {
+                image[k] = colour.0;
+                image[k + 1] = colour.1;
+                image[k + 2] = colour.2;
+            } else {
+                for (c, v) in [(0usize, colour.0), (1, colour.1), (2, colour.2)] {
+                    image[k + c] = (image[k + c] as f64 * (1.0 - alpha) + v as f64 * alpha).round() as u8;
+                }
+            }
+        }
+    });
+}
+
+/// The horizontal runs of pixels (row, from, to exclusive) inside rings by
+/// the even-odd rule, within a w x h window whose top-left pixel is at
+/// `origin`. A pixel is inside when its centre is; an edge counts on a scan
+/// line when y0 <= yc < y1 (half-open), so shared vertices count once.
+fn scan_spans(w: usize, h: usize, origin: (f64, f64), rings: &[Vec<Pt>], mut span: impl FnMut(usize, usize, usize)) {
     // Edges as (ytop, ybottom, x at ytop, dx/dy), skipping horizontal ones.
     let mut edges: Vec<(f64, f64, f64, f64)> = Vec::new();
     for ring in rings {
@@ -545,22 +634,24 @@ fn scan_fill(image: &mut [u8], w: usize, h: usize, origin: (f64, f64), rings: &[
         return;
     }
     edges.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let first_row = edges[0].0.max(0.0).floor() as usize;
     let mut next = 0usize;
     let mut active: Vec<usize> = Vec::new();
     let mut xs: Vec<f64> = Vec::new();
-    for row in 0..h {
+    for row in first_row..h {
         let yc = row as f64 + 0.5;
         while next < edges.len() && edges[next].0 <= yc {
             active.push(next);
             next += 1;
         }
         active.retain(|&e| edges[e].1 > yc);
+        if active.is_empty() && next >= edges.len() {
+            break;
+        }
         xs.clear();
         for &e in &active {
             let (top, _, xt, slope) = edges[e];
-            if top <= yc {
-                xs.push(xt + (yc - top) * slope);
-            }
+            xs.push(xt + (yc - top) * slope);
         }
         if xs.len() < 2 {
             continue;
@@ -570,19 +661,8 @@ fn scan_fill(image: &mut [u8], w: usize, h: usize, origin: (f64, f64), rings: &[
             // Pixel centres x + 0.5 in [pair[0], pair[1]).
             let from = (pair[0] - 0.5).ceil().max(0.0) as usize;
             let to = ((pair[1] - 0.5).ceil().min(w as f64)).max(0.0) as usize;
-            for x in from..to.min(w) {
-                let Some(colour) = paint(x, row) else { continue };
-                let alpha = colour.3.clamp(0.0, 1.0);
-                let k = (row * w + x) * 3;
-                if alpha >= 1.0 {
-                    image[k] = colour.0;
-                    image[k + 1] = colour.1;
-                    image[k + 2] = colour.2;
-                } else {
-                    for (c, v) in [(0usize, colour.0), (1, colour.1), (2, colour.2)] {
-                        image[k + c] = (image[k + c] as f64 * (1.0 - alpha) + v as f64 * alpha).round() as u8;
-                    }
-                }
+            if to > from {
+                span(row, from, to.min(w));
             }
         }
     }
