@@ -23,7 +23,10 @@ pub enum ReportBlock {
     Paragraph(String),
     /// A rendered figure; the PNG is inlined (the SVG when there is no PNG),
     /// with the bundle's plain text as the image's alternative text.
-    Figure { bundle: MimeBundle, caption: String },
+    Figure {
+        bundle: MimeBundle,
+        caption: String,
+    },
     Table(TableSpec),
     /// Preformatted text, e.g. the recipe that produced the report.
     Recipe(String),
@@ -39,7 +42,10 @@ pub struct Report {
 
 impl Report {
     pub fn new(title: impl Into<String>) -> Self {
-        Report { title: title.into(), blocks: Vec::new() }
+        Report {
+            title: title.into(),
+            blocks: Vec::new(),
+        }
     }
     pub fn heading(mut self, text: impl Into<String>) -> Self {
         self.blocks.push(ReportBlock::Heading(text.into()));
@@ -50,7 +56,10 @@ impl Report {
         self
     }
     pub fn figure(mut self, bundle: MimeBundle, caption: impl Into<String>) -> Self {
-        self.blocks.push(ReportBlock::Figure { bundle, caption: caption.into() });
+        self.blocks.push(ReportBlock::Figure {
+            bundle,
+            caption: caption.into(),
+        });
         self
     }
     pub fn table(mut self, table: TableSpec) -> Self {
@@ -76,7 +85,10 @@ impl Report {
                 ReportBlock::Figure { bundle, caption } => {
                     let alt = escape(bundle.plain_text());
                     let img = if let Some(png) = bundle.binary("image/png") {
-                        format!("<img src=\"data:image/png;base64,{}\" alt=\"{alt}\">", base64::engine::general_purpose::STANDARD.encode(png))
+                        format!(
+                            "<img src=\"data:image/png;base64,{}\" alt=\"{alt}\">",
+                            base64::engine::general_purpose::STANDARD.encode(png)
+                        )
                     } else if let Some(svg) = bundle.text("image/svg+xml") {
                         format!(
                             "<img src=\"data:image/svg+xml;base64,{}\" alt=\"{alt}\">",
@@ -85,17 +97,28 @@ impl Report {
                     } else {
                         format!("<pre>{}</pre>", escape(bundle.plain_text()))
                     };
-                    body.push_str(&format!("<figure>{img}<figcaption>{}</figcaption></figure>\n", escape(caption)));
+                    body.push_str(&format!(
+                        "<figure>{img}<figcaption>{}</figcaption></figure>\n",
+                        escape(caption)
+                    ));
                 }
                 ReportBlock::Table(t) => {
                     t.validate()?;
                     body.push_str(&t.to_html());
                 }
-                ReportBlock::Recipe(t) => body.push_str(&format!("<pre class=\"recipe\">{}</pre>\n", escape(t))),
+                ReportBlock::Recipe(t) => {
+                    body.push_str(&format!("<pre class=\"recipe\">{}</pre>\n", escape(t)))
+                }
                 ReportBlock::Provenance(items) => {
-                    body.push_str("<table class=\"provenance\">\n<caption>Provenance</caption>\n<tbody>\n");
+                    body.push_str(
+                        "<table class=\"provenance\">\n<caption>Provenance</caption>\n<tbody>\n",
+                    );
                     for (k, v) in items {
-                        body.push_str(&format!("<tr><th>{}</th><td>{}</td></tr>\n", escape(k), escape(v)));
+                        body.push_str(&format!(
+                            "<tr><th>{}</th><td>{}</td></tr>\n",
+                            escape(k),
+                            escape(v)
+                        ));
                     }
                     body.push_str("</tbody>\n</table>\n");
                 }
@@ -132,7 +155,10 @@ pre.recipe { background: #f6f6f6; border: 1px solid #ddd; padding: 0.8em; overfl
 /// Write bytes to `path` through a temporary file in the same directory
 /// and a rename (atomic on one file system), so no reader sees a partial file.
 pub(crate) fn write_atomically(path: &Path, bytes: &[u8]) -> Result<(), RenderError> {
-    let io = |source: std::io::Error| RenderError::Io { path: path.display().to_string(), source };
+    let io = |source: std::io::Error| RenderError::Io {
+        path: path.display().to_string(),
+        source,
+    };
     let dir = match path.parent() {
         Some(d) if !d.as_os_str().is_empty() => d.to_path_buf(),
         _ => std::path::PathBuf::from("."),
@@ -160,7 +186,10 @@ mod tests {
             .figure(png, "Thickness every 60 m")
             .table(table)
             .recipe("thickness = layer(1000 hPa, 500 hPa)\n")
-            .provenance(vec![("input".into(), "synthetic/veltmar.nc".into()), ("version".into(), "0.1.0".into())])
+            .provenance(vec![
+                ("input".into(), "synthetic/veltmar.nc".into()),
+                ("version".into(), "0.1.0".into()),
+            ])
     }
 
     #[test]
@@ -174,7 +203,9 @@ mod tests {
         assert!(html.contains("<th>input</th><td>synthetic/veltmar.nc</td>"));
         assert!(html.contains("<pre class=\"recipe\">thickness = layer(1000 hPa, 500 hPa)\n</pre>"));
         // Nothing is loaded from elsewhere.
-        assert!(!html.contains("http://") && !html.contains("https://") && !html.contains("<script"));
+        assert!(
+            !html.contains("http://") && !html.contains("https://") && !html.contains("<script")
+        );
     }
 
     #[test]
@@ -186,9 +217,15 @@ mod tests {
         let written = std::fs::read_to_string(&path).unwrap();
         assert!(written.starts_with("<!DOCTYPE html>") && written.contains(CAUTION));
         // Only the report remains: the temporary file was renamed, not left behind.
-        let names: Vec<_> = std::fs::read_dir(dir.path()).unwrap().map(|e| e.unwrap().file_name()).collect();
+        let names: Vec<_> = std::fs::read_dir(dir.path())
+            .unwrap()
+            .map(|e| e.unwrap().file_name())
+            .collect();
         assert_eq!(names.len(), 1);
-        let err = sample().write(&dir.path().join("no-such-dir").join("x.html")).unwrap_err().to_string();
+        let err = sample()
+            .write(&dir.path().join("no-such-dir").join("x.html"))
+            .unwrap_err()
+            .to_string();
         assert!(err.contains("no-such-dir"), "{err}");
     }
 }
