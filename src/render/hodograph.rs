@@ -486,11 +486,13 @@ mod tests {
             "{}",
             bundle.plain_text()
         );
-        // Pressure labels are in hPa.
+        // Points are labelled in hPa (850), not Pa (85000).
+        let svg = bundle.text("image/svg+xml").unwrap();
         assert!(
-            bundle.text("image/svg+xml").unwrap().contains(">\n850\n<")
-                || bundle.text("image/svg+xml").unwrap().contains("850")
+            svg.contains(">\n850\n</text>") || svg.contains(">850</text>"),
+            "no 850 label"
         );
+        assert!(!svg.contains("85000"));
         std::fs::write(
             check_dir().join("hodograph.png"),
             bundle.binary("image/png").unwrap(),

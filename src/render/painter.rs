@@ -588,7 +588,8 @@ impl<'a, DB: DrawingBackend> Painter<'a, DB> {
         if self.text_extent(text, size_css).0 <= max_width {
             return text.to_string();
         }
-        let chars: Vec<char> = text.chars().collect();
+        // Measure at most a few hundred characters: no figure line is wider.
+        let chars: Vec<char> = text.chars().take(400).collect();
         let mut n = chars.len();
         while n > 1 {
             n -= 1;

@@ -166,6 +166,16 @@ pub(crate) fn write_atomically(path: &Path, bytes: &[u8]) -> Result<(), RenderEr
     let mut temp = tempfile::NamedTempFile::new_in(&dir).map_err(io)?;
     temp.write_all(bytes).map_err(io)?;
     temp.as_file().sync_all().map_err(io)?;
+    // The temporary file is private (0600); a report is meant to be read, so
+    // keep the permissions of the file it replaces, or use rw-r--r--.
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        let permissions = std::fs::metadata(path)
+            .map(|m| m.permissions())
+            .unwrap_or_else(|_| std::fs::Permissions::from_mode(0o644));
+        std::fs::set_permissions(temp.path(), permissions).map_err(io)?;
+    }
     temp.persist(path).map_err(|e| io(e.error))?;
     Ok(())
 }
@@ -185,7 +195,7 @@ mod tests {
             .paragraph("The wind veers with height: warm advection <in the layer>.")
             .figure(png, "Thickness every 60 m")
             .table(table)
-            .recipe("thickness = layer(1000 hPa, 500 hPa)\n")
+            .recipe("step 1: thickness of the 1000 to 500 hPa layer\n")
             .provenance(vec![
                 ("input".into(), "synthetic/veltmar.nc".into()),
                 ("version".into(), "0.1.0".into()),
@@ -201,7 +211,9 @@ mod tests {
         assert!(html.contains("src=\"data:image/png;base64,iVBORw==\""));
         assert!(html.contains("alt=\"Map &lt;test&gt; of thickness\""));
         assert!(html.contains("<th>input</th><td>synthetic/veltmar.nc</td>"));
-        assert!(html.contains("<pre class=\"recipe\">thickness = layer(1000 hPa, 500 hPa)\n</pre>"));
+        assert!(html.contains(
+            "<pre class=\"recipe\">step 1: thickness of the 1000 to 500 hPa layer\n</pre>"
+        ));
         // Nothing is loaded from elsewhere.
         assert!(
             !html.contains("http://") && !html.contains("https://") && !html.contains("<script")
@@ -227,5 +239,46 @@ mod tests {
             .unwrap_err()
             .to_string();
         assert!(err.contains("no-such-dir"), "{err}");
+    }
+
+    #[test]
+    fn example_report_with_a_rendered_map_and_table() {
+        use crate::render::map::{render_map, ContourLayer, MapSpec, VectorLayer};
+        use crate::render::test_support::{check_dir, regional};
+        use crate::render::FigureSize;
+        let s = regional();
+        let map = render_map(
+            &MapSpec::new("Thickness and thermal wind (invented)", &s.lats, &s.lons)
+                .contour_lines(
+                    ContourLayer::new(s.thickness.view(), "1000-500 hPa thickness", "m")
+                        .every(60.0),
+                )
+                .vectors(VectorLayer::barbs(s.u.view(), s.v.view(), "thermal wind")),
+            &FigureSize::new(800, 520),
+        )
+        .unwrap();
+        let mut table = TableSpec::new(
+            "Thermal wind at two invented points",
+            vec![
+                Column::new("point", ""),
+                Column::new("u_T", "m s-1").decimals(1),
+            ],
+        );
+        table.push_row(vec!["Port Lessing".into(), 19.3.into()]);
+        table.push_row(vec!["Hallow Bank".into(), f64::NAN.into()]);
+        let report = Report::new("Veltmar front case study (invented)")
+            .paragraph("A synthetic case for checking the report layout.")
+            .figure(map, "Thickness every 60 m with thermal-wind barbs.")
+            .table(table)
+            .recipe("(recipe text as written by its author)\nthickness of the 1000 to 500 hPa layer\nmap of it with lines every 60 m\n")
+            .provenance(vec![("data".into(), "synthetic fields, no observations".into())]);
+        let path = check_dir().join("report.html");
+        report.write(&path).unwrap();
+        let html = std::fs::read_to_string(&path).unwrap();
+        assert!(html.contains("data:image/png;base64,") && html.contains(CAUTION));
+        assert!(
+            html.matches(CAUTION).count() == 2,
+            "at the top and at the foot"
+        );
     }
 }
