@@ -446,9 +446,12 @@ impl PreparedMap {
         let plan = GridPlan::new(spec.latitudes, spec.longitudes)?;
         let x = plan.lons.clone();
         let y = plan.lats.clone();
-        // One grid cell per device pixel is as fine as the eye can see.
-        let fx = ((x.len() as f64) / (width_px * 0.85)).floor().max(1.0) as usize;
-        let fy = ((y.len() as f64) / (height_px * 0.75)).floor().max(1.0) as usize;
+        // Contours through cells of about 1.5 device pixels are as smooth as
+        // the eye can see (the polygons interpolate linearly within cells);
+        // finer grids are averaged in blocks first, which keeps the time
+        // and the SVG size bounded for quarter-degree global fields.
+        let fx = ((x.len() as f64) * 1.5 / (width_px * 0.85)).floor().max(1.0) as usize;
+        let fy = ((y.len() as f64) * 1.5 / (height_px * 0.75)).floor().max(1.0) as usize;
         let f = fx.min(fy).max(1);
         let mut described = Vec::new();
 
