@@ -26,6 +26,11 @@ pub fn publish(temporary: TempPath, target: &Path) -> std::io::Result<()> {
 /// Writes bytes to `target` atomically.
 pub fn write(target: &Path, bytes: &[u8]) -> std::io::Result<()> {
     let temporary = temporary_beside(target)?;
-    std::fs::write(&temporary, bytes)?;
+    {
+        use std::io::Write;
+        let mut file = std::fs::File::create(&temporary)?;
+        file.write_all(bytes)?;
+        file.sync_all()?;
+    }
     publish(temporary, target)
 }

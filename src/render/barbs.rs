@@ -102,7 +102,13 @@ pub struct BarbShape {
 /// Geometry of a barb for the wind (u eastward, v northward, m/s) at a
 /// station drawn at `station` on a north-up chart, with a staff `length`
 /// pixels long.
-pub fn barb_shape(station: ScreenPoint, u: f64, v: f64, hemisphere: Hemisphere, length: f64) -> Option<BarbShape> {
+pub fn barb_shape(
+    station: ScreenPoint,
+    u: f64,
+    v: f64,
+    hemisphere: Hemisphere,
+    length: f64,
+) -> Option<BarbShape> {
     let speed = (u * u + v * v).sqrt();
     let counts = barb_decomposition(speed)?;
     if counts.is_calm() {
@@ -137,7 +143,10 @@ pub fn barb_shape(station: ScreenPoint, u: f64, v: f64, hemisphere: Hemisphere, 
         )
     };
     let along = |distance_from_tip: f64| {
-        (tip.0 - dir.0 * distance_from_tip, tip.1 - dir.1 * distance_from_tip)
+        (
+            tip.0 - dir.0 * distance_from_tip,
+            tip.1 - dir.1 * distance_from_tip,
+        )
     };
     let mut position = 0.0;
     let mut pennants = Vec::new();
@@ -198,8 +207,14 @@ pub fn arrow_shape(
     let (ux, uy) = (dx / length, dy / length);
     // Arrowhead sides at 25 degrees either side of the shaft.
     let (c, s) = (25f64.to_radians().cos(), 25f64.to_radians().sin());
-    let left = (head.0 - head_length * (ux * c - uy * s), head.1 - head_length * (uy * c + ux * s));
-    let right = (head.0 - head_length * (ux * c + uy * s), head.1 - head_length * (uy * c - ux * s));
+    let left = (
+        head.0 - head_length * (ux * c - uy * s),
+        head.1 - head_length * (uy * c + ux * s),
+    );
+    let right = (
+        head.0 - head_length * (ux * c + uy * s),
+        head.1 - head_length * (uy * c - ux * s),
+    );
     Some((tail, head, left, right))
 }
 
@@ -229,7 +244,11 @@ mod tests {
         ];
         for (kt, (rounded, p, f, h)) in cases {
             let c = barb_decomposition(knots(kt)).unwrap();
-            assert_eq!((c.rounded_knots, c.pennants, c.full_barbs, c.half_barbs), (rounded, p, f, h), "{kt} kt");
+            assert_eq!(
+                (c.rounded_knots, c.pennants, c.full_barbs, c.half_barbs),
+                (rounded, p, f, h),
+                "{kt} kt"
+            );
         }
         // 25 m/s is 48.6 kt (25 * 3600 / 1852), drawn as one pennant.
         let c = barb_decomposition(25.0).unwrap();
@@ -256,7 +275,10 @@ mod tests {
         let shape = barb_shape(station, knots(20.0), 0.0, Hemisphere::North, 30.0).unwrap();
         let (from, tip) = shape.staff.unwrap();
         assert_eq!(from, station);
-        assert!((tip.0 - 70.0).abs() < 1e-9 && (tip.1 - 100.0).abs() < 1e-9, "tip {tip:?}");
+        assert!(
+            (tip.0 - 70.0).abs() < 1e-9 && (tip.1 - 100.0).abs() < 1e-9,
+            "tip {tip:?}"
+        );
         for (base, end) in &shape.feathers {
             assert!(end.1 < base.1, "north is up on screen (smaller y)");
         }
@@ -285,7 +307,10 @@ mod tests {
         let (tail, head, _, _) = arrow_shape((0.0, 0.0), 3.0, 4.0, 2.0).unwrap();
         assert!(head.0 > tail.0 && head.1 < tail.1);
         let length = ((head.0 - tail.0).powi(2) + (head.1 - tail.1).powi(2)).sqrt();
-        assert!((length - 10.0).abs() < 1e-9, "5 m/s at 2 px per m/s is 10 px");
+        assert!(
+            (length - 10.0).abs() < 1e-9,
+            "5 m/s at 2 px per m/s is 10 px"
+        );
         let angle = (-(head.1 - tail.1)).atan2(head.0 - tail.0);
         assert!((angle - 4f64.atan2(3.0)).abs() < 1e-12);
     }

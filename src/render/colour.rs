@@ -30,7 +30,11 @@ impl Palette {
 
     /// The colour at position `t` in 0..=1 (low to high values).
     pub fn at(self, t: f64) -> RGBColor {
-        let t = if t.is_finite() { t.clamp(0.0, 1.0) } else { 0.5 };
+        let t = if t.is_finite() {
+            t.clamp(0.0, 1.0)
+        } else {
+            0.5
+        };
         let c = match self {
             Palette::Viridis => colorous::VIRIDIS.eval_continuous(t),
             Palette::Cividis => colorous::CIVIDIS.eval_continuous(t),
@@ -126,18 +130,31 @@ pub(crate) fn shading_levels(levels: &Levels, min: f64, max: f64, diverging: boo
             v
         }
         Levels::Interval(step) if step.is_finite() && *step > 0.0 => {
-            let (lo, hi) = if diverging { let m = min.abs().max(max.abs()); (-m, m) } else { (min, max) };
+            let (lo, hi) = if diverging {
+                let m = min.abs().max(max.abs());
+                (-m, m)
+            } else {
+                (min, max)
+            };
             let lo = (lo / step).floor() * step;
             let hi = (hi / step).ceil() * step;
             let v = multiples_within(lo, hi, *step);
-            if v.len() > 60 { auto_levels(min, max, diverging) } else { v }
+            if v.len() > 60 {
+                auto_levels(min, max, diverging)
+            } else {
+                v
+            }
         }
         _ => auto_levels(min, max, diverging),
     };
     if out.len() < 2 {
         // A constant field: one band around the value.
         let centre = if min.is_finite() { min } else { 0.0 };
-        let half = if centre == 0.0 { 1.0 } else { centre.abs() * 0.05 };
+        let half = if centre == 0.0 {
+            1.0
+        } else {
+            centre.abs() * 0.05
+        };
         out = vec![centre - half, centre + half];
     }
     out
@@ -179,7 +196,11 @@ pub(crate) fn line_levels(levels: &Levels, min: f64, max: f64) -> Vec<f64> {
         }
         Levels::Interval(step) if step.is_finite() && *step > 0.0 => {
             let v = multiples_within(min, max, *step);
-            if v.len() > 200 { multiples_within(min, max, nice_step(max - min, 10)) } else { v }
+            if v.len() > 200 {
+                multiples_within(min, max, nice_step(max - min, 10))
+            } else {
+                v
+            }
         }
         _ => multiples_within(min, max, nice_step(max - min, 10)),
     }
@@ -192,7 +213,9 @@ pub fn format_value(value: f64, step: f64) -> String {
     }
     let decimals = if step.is_finite() && step > 0.0 {
         let mut d = 0usize;
-        while d < 6 && ((step * 10f64.powi(d as i32)).round() - step * 10f64.powi(d as i32)).abs() > 1e-6 {
+        while d < 6
+            && ((step * 10f64.powi(d as i32)).round() - step * 10f64.powi(d as i32)).abs() > 1e-6
+        {
             d += 1;
         }
         d
@@ -201,7 +224,11 @@ pub fn format_value(value: f64, step: f64) -> String {
     };
     let text = format!("{:.*}", decimals, value);
     // Avoid "-0".
-    if text.trim_start_matches('-').chars().all(|c| c == '0' || c == '.') {
+    if text
+        .trim_start_matches('-')
+        .chars()
+        .all(|c| c == '0' || c == '.')
+    {
         text.trim_start_matches('-').to_string()
     } else {
         text.replace('-', "\u{2212}")
@@ -241,7 +268,11 @@ pub(crate) fn band_colours(levels: &[f64], palette: Palette) -> Vec<RGBAColor> {
     }
     (0..n)
         .map(|i| {
-            let t = if n == 1 { 0.5 } else { i as f64 / (n - 1) as f64 };
+            let t = if n == 1 {
+                0.5
+            } else {
+                i as f64 / (n - 1) as f64
+            };
             RGBAColor::from(palette.at(0.02 + 0.96 * t))
         })
         .collect()

@@ -65,12 +65,20 @@ impl<'a> GridField<'a> {
         if values.len() != x.len() * y.len() {
             return Err(RenderError::input(
                 "grid",
-                format!("{} values do not fill {} rows of {} columns", values.len(), y.len(), x.len()),
+                format!(
+                    "{} values do not fill {} rows of {} columns",
+                    values.len(),
+                    y.len(),
+                    x.len()
+                ),
             ));
         }
         for (name, c) in [("x coordinates", x), ("y coordinates", y)] {
             if c.iter().any(|v| !v.is_finite()) || c.windows(2).any(|w| w[1] <= w[0]) {
-                return Err(RenderError::input(name, "must be finite and strictly increasing"));
+                return Err(RenderError::input(
+                    name,
+                    "must be finite and strictly increasing",
+                ));
             }
         }
         Ok(GridField { values, x, y })
@@ -120,12 +128,14 @@ impl<'a> GridField<'a> {
     /// grid node i at i + 0.5 and closes rings half a cell outside the
     /// nodes; clamping to the node range puts those border runs exactly on
     /// the edge of the data.
-    fn to_coordinates(&self, cx: f64, cy: f64) -> (f64, f64) {
+    fn grid_coordinates(&self, cx: f64, cy: f64) -> (f64, f64) {
         (interpolate(self.x, cx - 0.5), interpolate(self.y, cy - 0.5))
     }
 
     fn ring_to_coordinates(&self, ring: &[geo_point::Coord]) -> Path {
-        ring.iter().map(|c| self.to_coordinates(c.x, c.y)).collect()
+        ring.iter()
+            .map(|c| self.grid_coordinates(c.x, c.y))
+            .collect()
     }
 
     /// Filled-contour regions for the given levels.
@@ -140,7 +150,11 @@ impl<'a> GridField<'a> {
             });
         };
         let missing_area = if self.has_missing() {
-            let mask: Vec<f64> = self.values.iter().map(|v| if v.is_finite() { 0.0 } else { 1.0 }).collect();
+            let mask: Vec<f64> = self
+                .values
+                .iter()
+                .map(|v| if v.is_finite() { 0.0 } else { 1.0 })
+                .collect();
             self.regions(&builder, &mask, 0.5)?
         } else {
             Vec::new()
@@ -149,12 +163,19 @@ impl<'a> GridField<'a> {
         // Levels at or below the smallest value cover the whole grid (the
         // lowest band, painted first); levels above the largest cover
         // nothing. Skip both.
-        let useful: Vec<f64> = levels.iter().copied().filter(|&l| l > lo && l <= hi).collect();
+        let useful: Vec<f64> = levels
+            .iter()
+            .copied()
+            .filter(|&l| l > lo && l <= hi)
+            .collect();
         let at_least = useful
             .par_iter()
             .map(|&level| self.regions(&builder, &values, level).map(|r| (level, r)))
             .collect::<Result<Vec<_>, _>>()?;
-        Ok(FilledContours { at_least, missing_area })
+        Ok(FilledContours {
+            at_least,
+            missing_area,
+        })
     }
 
     /// Values with each missing node given the mean of its valid neighbours,
@@ -208,7 +229,12 @@ impl<'a> GridField<'a> {
         values
     }
 
-    fn regions(&self, builder: &ContourBuilder, values: &[f64], level: f64) -> Result<Vec<Path>, RenderError> {
+    fn regions(
+        &self,
+        builder: &ContourBuilder,
+        values: &[f64],
+        level: f64,
+    ) -> Result<Vec<Path>, RenderError> {
         let contours = builder
             .contours(values, &[level])
             .map_err(|e| RenderError::Drawing(format!("contouring failed: {e:?}")))?;
@@ -232,7 +258,11 @@ impl<'a> GridField<'a> {
         };
         let (values, _) = self.masked(lo, hi);
         let builder = self.builder();
-        let useful: Vec<f64> = levels.iter().copied().filter(|&l| l >= lo && l <= hi).collect();
+        let useful: Vec<f64> = levels
+            .iter()
+            .copied()
+            .filter(|&l| l >= lo && l <= hi)
+            .collect();
         useful
             .par_iter()
             .map(|&level| {
@@ -282,13 +312,17 @@ impl<'a> GridField<'a> {
         // start just after a dropped point so no run is split in two.
         let closed = ring.len() > 2 && ring.first() == ring.last();
         let n = if closed { ring.len() - 1 } else { ring.len() };
-        let start = if closed { keep[..n].iter().position(|k| !k).unwrap_or(0) } else { 0 };
+        let start = if closed {
+            keep[..n].iter().position(|k| !k).unwrap_or(0)
+        } else {
+            0
+        };
         let mut runs = Vec::new();
         let mut current: Path = Vec::new();
         for step in 0..n {
             let i = (start + step) % n;
             if keep[i] {
-                current.push(self.to_coordinates(ring[i].x, ring[i].y));
+                current.push(self.grid_coordinates(ring[i].x, ring[i].y));
             } else if !current.is_empty() {
                 runs.push(std::mem::take(&mut current));
             }
@@ -361,7 +395,10 @@ mod tests {
         // linear field, so the 8.0 isoline is x = 3.5 everywhere.
         let x = grid(11, 1.0);
         let y = grid(7, 1.0);
-        let values: Vec<f64> = y.iter().flat_map(|_| x.iter().map(|&xv| 2.0 * xv + 1.0)).collect();
+        let values: Vec<f64> = y
+            .iter()
+            .flat_map(|_| x.iter().map(|&xv| 2.0 * xv + 1.0))
+            .collect();
         let field = GridField::new(&values, &x, &y).unwrap();
         let lines = field.isolines(&[8.0]).unwrap();
         assert_eq!(lines.len(), 1);
@@ -374,7 +411,9 @@ mod tests {
         // does not follow the border.
         assert_eq!(lines[0].lines.len(), 1);
         let ys: Vec<f64> = lines[0].lines[0].iter().map(|p| p.1).collect();
-        let (ymin, ymax) = ys.iter().fold((f64::MAX, f64::MIN), |a, &b| (a.0.min(b), a.1.max(b)));
+        let (ymin, ymax) = ys
+            .iter()
+            .fold((f64::MAX, f64::MIN), |a, &b| (a.0.min(b), a.1.max(b)));
         assert!((ymin - 0.0).abs() < 1e-9 && (ymax - 6.0).abs() < 1e-9);
     }
 
@@ -443,13 +482,20 @@ mod tests {
         // values continue the field), so the band edge meets the missing
         // area instead of stopping short of it.
         let region = &filled.at_least[1].1;
-        assert!((region_area(region) - 5.0 * 6.0).abs() < 1.0, "{}", region_area(region));
+        assert!(
+            (region_area(region) - 5.0 * 6.0).abs() < 1.0,
+            "{}",
+            region_area(region)
+        );
         // No isoline point of 5.0 (which runs through the gap) lies in a cell
         // touching a missing node.
         let lines = field.isolines(&[5.0]).unwrap();
         for p in lines[0].lines.iter().flatten() {
             assert!((p.0 - 5.0).abs() < 1e-9);
-            assert!(p.1 <= 1.0 + 1e-9 || p.1 >= 5.0 - 1e-9, "point {p:?} inside the missing block");
+            assert!(
+                p.1 <= 1.0 + 1e-9 || p.1 >= 5.0 - 1e-9,
+                "point {p:?} inside the missing block"
+            );
         }
         assert_eq!(lines[0].lines.len(), 2, "the line is cut in two by the gap");
     }

@@ -6,7 +6,9 @@
 use ndarray::ArrayView2;
 use plotters::prelude::*;
 
-use super::colour::{band_colours, format_value, level_step, line_levels, shading_levels, Levels, Palette, ToRgba};
+use super::colour::{
+    band_colours, format_value, level_step, line_levels, shading_levels, Levels, Palette, ToRgba,
+};
 use super::contouring::{FilledContours, GridField, Isolines};
 use super::frame::{self, Axis, TICK_SIZE};
 use super::painter::{Anchor, Painter, Pt, Rect, BLACK_INK};
@@ -65,7 +67,10 @@ impl<'a> CrossSectionSpec<'a> {
     }
 }
 
-pub fn render_cross_section(spec: &CrossSectionSpec<'_>, size: &FigureSize) -> Result<MimeBundle, RenderError> {
+pub fn render_cross_section(
+    spec: &CrossSectionSpec<'_>,
+    size: &FigureSize,
+) -> Result<MimeBundle, RenderError> {
     let prepared = PreparedCrossSection::new(spec)?;
     bundle_of(&prepared, size)
 }
@@ -91,7 +96,12 @@ pub(crate) struct PreparedCrossSection {
 
 /// Field [level, distance] as row-major f64 with rows ordered by -ln(p)
 /// increasing (bottom level first), and those y coordinates.
-fn arrange(values: &ArrayView2<'_, f32>, order: &[usize], what: &str, shape: (usize, usize)) -> Result<Vec<f64>, RenderError> {
+fn arrange(
+    values: &ArrayView2<'_, f32>,
+    order: &[usize],
+    what: &str,
+    shape: (usize, usize),
+) -> Result<Vec<f64>, RenderError> {
     if values.dim() != shape {
         return Err(RenderError::input(
             what,
@@ -109,32 +119,70 @@ impl PreparedCrossSection {
     pub(crate) fn new(spec: &CrossSectionSpec<'_>) -> Result<Self, RenderError> {
         let (nl, nd) = (spec.pressures.len(), spec.distance_km.len());
         if spec.pressures.iter().any(|p| !(p.is_finite() && *p > 0.0)) {
-            return Err(RenderError::input("cross-section pressures", "must be positive numbers in Pa"));
+            return Err(RenderError::input(
+                "cross-section pressures",
+                "must be positive numbers in Pa",
+            ));
         }
         let mut order: Vec<usize> = (0..nl).collect();
         order.sort_by(|&a, &b| spec.pressures[b].total_cmp(&spec.pressures[a]));
-        let y: Vec<f64> = order.iter().map(|&i| -(spec.pressures[i] / 100.0).ln()).collect();
-        let values = arrange(&spec.values, &order, &format!("cross-section field '{}'", spec.name), (nl, nd))?;
+        let y: Vec<f64> = order
+            .iter()
+            .map(|&i| -(spec.pressures[i] / 100.0).ln())
+            .collect();
+        let values = arrange(
+            &spec.values,
+            &order,
+            &format!("cross-section field '{}'", spec.name),
+            (nl, nd),
+        )?;
         let field = GridField::new(&values, spec.distance_km, &y)?;
         let range = field.range();
         let (levels, colours, filled, summary) = match range {
             Some((lo, hi)) => {
-                let palette = spec.palette.unwrap_or(if lo < 0.0 && hi > 0.0 { Palette::BlueWhiteRed } else { Palette::Viridis });
+                let palette = spec.palette.unwrap_or(if lo < 0.0 && hi > 0.0 {
+                    Palette::BlueWhiteRed
+                } else {
+                    Palette::Viridis
+                });
                 let levels = shading_levels(&spec.levels, lo, hi, palette.is_diverging());
                 let colours = band_colours(&levels, palette);
                 let filled = field.filled(&levels)?;
                 let step = level_step(&levels);
-                (levels, colours, filled, format!("{} from {} to {} {}", spec.name, format_value(lo, step / 10.0), format_value(hi, step / 10.0), spec.units))
+                (
+                    levels,
+                    colours,
+                    filled,
+                    format!(
+                        "{} from {} to {} {}",
+                        spec.name,
+                        format_value(lo, step / 10.0),
+                        format_value(hi, step / 10.0),
+                        spec.units
+                    ),
+                )
             }
-            None => (Vec::new(), Vec::new(), field.filled(&[])?, format!("{} (all missing)", spec.name)),
+            None => (
+                Vec::new(),
+                Vec::new(),
+                field.filled(&[])?,
+                format!("{} (all missing)", spec.name),
+            ),
         };
         let (wind, wind_step) = match &spec.normal_wind {
             Some(w) => {
                 let wv = arrange(w, &order, "normal wind", (nl, nd))?;
                 let wf = GridField::new(&wv, spec.distance_km, &y)?;
-                let step = if spec.normal_wind_every.is_finite() && spec.normal_wind_every > 0.0 { spec.normal_wind_every } else { 5.0 };
+                let step = if spec.normal_wind_every.is_finite() && spec.normal_wind_every > 0.0 {
+                    spec.normal_wind_every
+                } else {
+                    5.0
+                };
                 match wf.range() {
-                    Some((lo, hi)) => (wf.isolines(&line_levels(&Levels::Interval(step), lo, hi))?, step),
+                    Some((lo, hi)) => (
+                        wf.isolines(&line_levels(&Levels::Interval(step), lo, hi))?,
+                        step,
+                    ),
                     None => (Vec::new(), step),
                 }
             }
@@ -149,12 +197,23 @@ impl PreparedCrossSection {
             format_value(spec.distance_km[nd - 1] - spec.distance_km[0], 1.0),
             format_value(p_max, 1.0),
             format_value(p_min, 1.0),
-            if spec.normal_wind.is_some() { format!("; normal wind every {} m/s", format_value(wind_step, wind_step)) } else { String::new() }
+            if spec.normal_wind.is_some() {
+                format!(
+                    "; normal wind every {} m/s",
+                    format_value(wind_step, wind_step)
+                )
+            } else {
+                String::new()
+            }
         );
         Ok(PreparedCrossSection {
             title: spec.title.clone(),
             subtitle: spec.subtitle.clone(),
-            label: if spec.units.is_empty() { spec.name.clone() } else { format!("{} ({})", spec.name, spec.units) },
+            label: if spec.units.is_empty() {
+                spec.name.clone()
+            } else {
+                format!("{} ({})", spec.name, spec.units)
+            },
             x_range: (spec.distance_km[0], spec.distance_km[nd - 1]),
             p_bottom: p_max,
             p_top: p_min,
@@ -183,30 +242,69 @@ impl Drawable for PreparedCrossSection {
         let y_ticks_all = frame::pressure_ticks(self.p_top, self.p_bottom);
         let left = frame::left_margin(p, &y_ticks_all, true);
         let step = level_step(&self.levels);
-        let widest = self.levels.iter().map(|l| p.text_extent(&format_value(*l, step), TICK_SIZE).0).fold(0.0, f64::max);
-        let bar_w = p.px(14.0 + 16.0 + 10.0) + widest + p.text_extent("0", frame::LABEL_SIZE).1 + p.px(8.0);
-        let ends_h = if self.start_label.is_empty() && self.end_label.is_empty() { 0.0 } else { p.text_extent("0", TICK_SIZE).1 + p.px(4.0) };
+        let widest = self
+            .levels
+            .iter()
+            .map(|l| p.text_extent(&format_value(*l, step), TICK_SIZE).0)
+            .fold(0.0, f64::max);
+        let bar_w =
+            p.px(14.0 + 16.0 + 10.0) + widest + p.text_extent("0", frame::LABEL_SIZE).1 + p.px(8.0);
+        let ends_h = if self.start_label.is_empty() && self.end_label.is_empty() {
+            0.0
+        } else {
+            p.text_extent("0", TICK_SIZE).1 + p.px(4.0)
+        };
         let bottom = h - caption_h - frame::bottom_margin(p, true) - ends_h - p.px(4.0);
         let rect = Rect::new(left, top, w - bar_w, bottom);
-        let x_axis = Axis { from: self.x_range.0, to: self.x_range.1, start_px: rect.left, end_px: rect.right, log: false };
-        let y_axis = Axis { from: self.p_bottom, to: self.p_top, start_px: rect.bottom, end_px: rect.top, log: true };
+        let x_axis = Axis {
+            from: self.x_range.0,
+            to: self.x_range.1,
+            start_px: rect.left,
+            end_px: rect.right,
+            log: false,
+        };
+        let y_axis = Axis {
+            from: self.p_bottom,
+            to: self.p_top,
+            start_px: rect.bottom,
+            end_px: rect.top,
+            log: true,
+        };
         // Grid y is -ln(p in hPa).
-        let to_px = |&(d, y): &(f64, f64)| -> Pt { (x_axis.to_px(d), y_axis.to_px((-y).exp())) };
+        let position =
+            |&(d, y): &(f64, f64)| -> Pt { (x_axis.position(d), y_axis.position((-y).exp())) };
         let base = self.colours.first().copied().unwrap_or(WHITE.rgba());
         let regions: Vec<(Vec<Vec<Pt>>, RGBAColor)> = self
             .filled
             .at_least
             .iter()
             .map(|(level, rings)| {
-                let index = self.levels.iter().position(|l| l == level).unwrap_or(0).min(self.colours.len().saturating_sub(1));
-                (rings.iter().map(|r| r.iter().map(to_px).collect()).collect(), self.colours[index])
+                let index = self
+                    .levels
+                    .iter()
+                    .position(|l| l == level)
+                    .unwrap_or(0)
+                    .min(self.colours.len().saturating_sub(1));
+                (
+                    rings
+                        .iter()
+                        .map(|r| r.iter().map(position).collect())
+                        .collect(),
+                    self.colours[index],
+                )
             })
             .collect();
-        let missing: Vec<Vec<Pt>> = self.filled.missing_area.iter().map(|r| r.iter().map(to_px).collect()).collect();
+        let missing: Vec<Vec<Pt>> = self
+            .filled
+            .missing_area
+            .iter()
+            .map(|r| r.iter().map(position).collect())
+            .collect();
         p.filled_layer(rect, base, &regions, &missing)?;
         let mut occupied = Vec::new();
         for (li, iso) in self.wind.iter().enumerate() {
-            let pts_of = |line: &Vec<(f64, f64)>| -> Vec<Pt> { line.iter().map(to_px).collect() };
+            let pts_of =
+                |line: &Vec<(f64, f64)>| -> Vec<Pt> { line.iter().map(position).collect() };
             for line in &iso.lines {
                 let pts = pts_of(line);
                 if iso.level < 0.0 {
@@ -214,26 +312,66 @@ impl Drawable for PreparedCrossSection {
                         p.polyline(&run, BLACK_INK.rgba(), 1.2)?;
                     }
                 } else {
-                    p.polyline(&pts, BLACK_INK.rgba(), if iso.level == 0.0 { 0.8 } else { 1.2 })?;
+                    p.polyline(
+                        &pts,
+                        BLACK_INK.rgba(),
+                        if iso.level == 0.0 { 0.8 } else { 1.2 },
+                    )?;
                 }
                 let text = format_value(iso.level, self.wind_step);
                 for at in frame::label_positions(p, &pts, &text, rect, &mut occupied, li) {
-                    let b = p.text_box(&text, at, frame::SMALL_SIZE, Anchor::Centre).inflate(p.px(1.5));
+                    let b = p
+                        .text_box(&text, at, frame::SMALL_SIZE, Anchor::Centre)
+                        .inflate(p.px(1.5));
                     p.fill_rect(b, RGBAColor(255, 255, 255, 0.8))?;
-                    p.text(&text, at, frame::SMALL_SIZE, BLACK_INK.rgba(), Anchor::Centre)?;
+                    p.text(
+                        &text,
+                        at,
+                        frame::SMALL_SIZE,
+                        BLACK_INK.rgba(),
+                        Anchor::Centre,
+                    )?;
                 }
             }
         }
         let x_ticks = frame::linear_ticks(self.x_range.0, self.x_range.1, 7);
-        let y_ticks = frame::thin_ticks(y_ticks_all, &y_axis, p.text_extent("0", TICK_SIZE).1 * 1.3);
-        frame::draw_axes(p, rect, &x_axis, &y_axis, &x_ticks, &y_ticks, "distance along the section (km)", "pressure (hPa)", false)?;
+        let y_ticks =
+            frame::thin_ticks(y_ticks_all, &y_axis, p.text_extent("0", TICK_SIZE).1 * 1.3);
+        frame::draw_axes(
+            p,
+            rect,
+            &x_axis,
+            &y_axis,
+            &x_ticks,
+            &y_ticks,
+            "distance along the section (km)",
+            "pressure (hPa)",
+            false,
+        )?;
         let ends_y = bottom + frame::bottom_margin(p, true);
-        p.text(&self.start_label, (rect.left, ends_y), TICK_SIZE, BLACK_INK.rgba(), Anchor::TopLeft)?;
-        p.text(&self.end_label, (rect.right, ends_y), TICK_SIZE, BLACK_INK.rgba(), Anchor::TopRight)?;
+        p.text(
+            &self.start_label,
+            (rect.left, ends_y),
+            TICK_SIZE,
+            BLACK_INK.rgba(),
+            Anchor::TopLeft,
+        )?;
+        p.text(
+            &self.end_label,
+            (rect.right, ends_y),
+            TICK_SIZE,
+            BLACK_INK.rgba(),
+            Anchor::TopRight,
+        )?;
         // Colour bar.
         let n = self.colours.len();
         if n > 0 {
-            let bar = Rect::new(rect.right + p.px(14.0), rect.top, rect.right + p.px(30.0), rect.bottom);
+            let bar = Rect::new(
+                rect.right + p.px(14.0),
+                rect.top,
+                rect.right + p.px(30.0),
+                rect.bottom,
+            );
             let box_h = bar.height() / n as f64;
             for (i, c) in self.colours.iter().enumerate() {
                 let y1 = bar.bottom - i as f64 * box_h;
@@ -245,12 +383,24 @@ impl Drawable for PreparedCrossSection {
             for (i, level) in self.levels.iter().enumerate() {
                 if i % every == 0 {
                     let y = bar.bottom - i as f64 * box_h;
-                    p.text(&format_value(*level, step), (bar.right + p.px(5.0), y), TICK_SIZE, BLACK_INK.rgba(), Anchor::CentreLeft)?;
+                    p.text(
+                        &format_value(*level, step),
+                        (bar.right + p.px(5.0), y),
+                        TICK_SIZE,
+                        BLACK_INK.rgba(),
+                        Anchor::CentreLeft,
+                    )?;
                 }
             }
-            let name_x = bar.right + p.px(10.0) + widest + p.text_extent("0", frame::LABEL_SIZE).1 / 2.0;
+            let name_x =
+                bar.right + p.px(10.0) + widest + p.text_extent("0", frame::LABEL_SIZE).1 / 2.0;
             let text = p.fit_text(&self.label, frame::LABEL_SIZE, bar.height());
-            p.vertical_text(&text, (name_x, (bar.top + bar.bottom) / 2.0), frame::LABEL_SIZE, BLACK_INK.rgba())?;
+            p.vertical_text(
+                &text,
+                (name_x, (bar.top + bar.bottom) / 2.0),
+                frame::LABEL_SIZE,
+                BLACK_INK.rgba(),
+            )?;
         }
         frame::draw_caption(p, &caption_lines, h - caption_h)?;
         Ok(())
@@ -268,7 +418,10 @@ mod tests {
         // Invented section across a front: potential temperature rising with
         // height and towards the warm end, a jet core near 300 hPa.
         let distance: Vec<f64> = (0..=40).map(|i| i as f64 * 50.0).collect();
-        let pressures: [f64; 10] = [100000.0, 92500.0, 85000.0, 70000.0, 60000.0, 50000.0, 40000.0, 30000.0, 25000.0, 20000.0];
+        let pressures: [f64; 10] = [
+            100000.0, 92500.0, 85000.0, 70000.0, 60000.0, 50000.0, 40000.0, 30000.0, 25000.0,
+            20000.0,
+        ];
         let theta = Array2::from_shape_fn((pressures.len(), distance.len()), |(k, i)| {
             let p = pressures[k] / 100.0;
             let warm = 8.0 * (((distance[i] - 1000.0) / 300.0).tanh());
@@ -277,13 +430,27 @@ mod tests {
             let temperature = 288.0 - 0.065 * (1000.0 - p) - 30.0 * (1.0 - p / 1000.0).powi(2);
             let value = temperature * (1000.0 / p).powf(0.2857) + warm;
             // Below ground at the first points near the surface (an invented ridge).
-            if p > 900.0 && i < 4 { f32::NAN } else { value as f32 }
+            if p > 900.0 && i < 4 {
+                f32::NAN
+            } else {
+                value as f32
+            }
         });
         let wind = Array2::from_shape_fn((pressures.len(), distance.len()), |(k, i)| {
             let p = pressures[k] / 100.0;
-            (45.0 * (-((p - 300.0) / 180.0).powi(2)).exp() * (-((distance[i] - 1000.0) / 500.0).powi(2)).exp() - 5.0) as f32
+            (45.0
+                * (-((p - 300.0) / 180.0).powi(2)).exp()
+                * (-((distance[i] - 1000.0) / 500.0).powi(2)).exp()
+                - 5.0) as f32
         });
-        let mut spec = CrossSectionSpec::new("Section across the Veltmar front (invented)", &distance, &pressures, theta.view(), "potential temperature", "K");
+        let mut spec = CrossSectionSpec::new(
+            "Section across the Veltmar front (invented)",
+            &distance,
+            &pressures,
+            theta.view(),
+            "potential temperature",
+            "K",
+        );
         spec.normal_wind = Some(wind.view());
         spec.start_label = "Cape Orrin".into();
         spec.end_label = "Hallow Bank".into();
@@ -292,8 +459,20 @@ mod tests {
         roxmltree::Document::parse(bundle.text("image/svg+xml").unwrap()).unwrap();
         let (w, h, _, _) = decode_png(bundle.binary("image/png").unwrap());
         assert_eq!((w, h), (800, 520));
-        assert!(bundle.plain_text().contains("2000 km"), "{}", bundle.plain_text());
-        assert!(bundle.plain_text().contains("1000 to 200 hPa"), "{}", bundle.plain_text());
-        std::fs::write(check_dir().join("cross-section.png"), bundle.binary("image/png").unwrap()).unwrap();
+        assert!(
+            bundle.plain_text().contains("2000 km"),
+            "{}",
+            bundle.plain_text()
+        );
+        assert!(
+            bundle.plain_text().contains("1000 to 200 hPa"),
+            "{}",
+            bundle.plain_text()
+        );
+        std::fs::write(
+            check_dir().join("cross-section.png"),
+            bundle.binary("image/png").unwrap(),
+        )
+        .unwrap();
     }
 }

@@ -32,25 +32,44 @@ pub(crate) fn series_colour(i: usize) -> RGBAColor {
 
 /// Draw the title (and optional subtitle) at the top of the area; returns
 /// the y below them in device pixels.
-pub(crate) fn draw_title<DB: DrawingBackend>(p: &Painter<'_, DB>, title: &str, subtitle: &str) -> Result<f64, RenderError> {
+pub(crate) fn draw_title<DB: DrawingBackend>(
+    p: &Painter<'_, DB>,
+    title: &str,
+    subtitle: &str,
+) -> Result<f64, RenderError> {
     let (w, _) = p.size();
     let margin = p.px(10.0);
     let mut y = p.px(8.0);
     if !title.is_empty() {
         let text = p.fit_text(title, TITLE_SIZE, w - 2.0 * margin);
-        p.bold_text(&text, (w / 2.0, y), TITLE_SIZE, BLACK_INK.rgba(), Anchor::TopCentre)?;
+        p.bold_text(
+            &text,
+            (w / 2.0, y),
+            TITLE_SIZE,
+            BLACK_INK.rgba(),
+            Anchor::TopCentre,
+        )?;
         y += p.text_extent(&text, TITLE_SIZE).1 + p.px(5.0);
     }
     if !subtitle.is_empty() {
         let text = p.fit_text(subtitle, SUBTITLE_SIZE, w - 2.0 * margin);
-        p.text(&text, (w / 2.0, y), SUBTITLE_SIZE, GREY_INK.rgba(), Anchor::TopCentre)?;
+        p.text(
+            &text,
+            (w / 2.0, y),
+            SUBTITLE_SIZE,
+            GREY_INK.rgba(),
+            Anchor::TopCentre,
+        )?;
         y += p.text_extent(&text, SUBTITLE_SIZE).1 + p.px(4.0);
     }
     Ok(y + p.px(4.0))
 }
 
 /// A caption of wrapped lines at the bottom of the area; returns the height used.
-pub(crate) fn caption_height<DB: DrawingBackend>(p: &Painter<'_, DB>, caption: &str) -> (Vec<String>, f64) {
+pub(crate) fn caption_height<DB: DrawingBackend>(
+    p: &Painter<'_, DB>,
+    caption: &str,
+) -> (Vec<String>, f64) {
     if caption.trim().is_empty() {
         return (Vec::new(), 0.0);
     }
@@ -61,10 +80,20 @@ pub(crate) fn caption_height<DB: DrawingBackend>(p: &Painter<'_, DB>, caption: &
     (lines, h)
 }
 
-pub(crate) fn draw_caption<DB: DrawingBackend>(p: &Painter<'_, DB>, lines: &[String], top: f64) -> Result<(), RenderError> {
+pub(crate) fn draw_caption<DB: DrawingBackend>(
+    p: &Painter<'_, DB>,
+    lines: &[String],
+    top: f64,
+) -> Result<(), RenderError> {
     let line_height = p.text_extent("Ag", SMALL_SIZE).1 + p.px(3.0);
     for (i, line) in lines.iter().enumerate() {
-        p.text(line, (p.px(12.0), top + i as f64 * line_height), SMALL_SIZE, BLACK_INK.rgba(), Anchor::TopLeft)?;
+        p.text(
+            line,
+            (p.px(12.0), top + i as f64 * line_height),
+            SMALL_SIZE,
+            BLACK_INK.rgba(),
+            Anchor::TopLeft,
+        )?;
     }
     Ok(())
 }
@@ -83,7 +112,7 @@ pub(crate) struct Axis {
 }
 
 impl Axis {
-    pub fn to_px(&self, v: f64) -> f64 {
+    pub fn position(self, v: f64) -> f64 {
         let (a, b, x) = if self.log {
             (self.from.ln(), self.to.ln(), v.ln())
         } else {
@@ -93,11 +122,6 @@ impl Axis {
             return 0.5 * (self.start_px + self.end_px);
         }
         self.start_px + (x - a) / (b - a) * (self.end_px - self.start_px)
-    }
-
-    pub fn contains(&self, v: f64) -> bool {
-        let (lo, hi) = if self.from < self.to { (self.from, self.to) } else { (self.to, self.from) };
-        v >= lo - 1e-9 * (hi - lo).abs() && v <= hi + 1e-9 * (hi - lo).abs()
     }
 }
 
@@ -113,7 +137,10 @@ pub(crate) fn linear_ticks(lo: f64, hi: f64, target: usize) -> Vec<Tick> {
     let step = nice_step(hi - lo, target);
     multiples_within(lo, hi, step)
         .into_iter()
-        .map(|v| Tick { value: v, label: format_value(v, step) })
+        .map(|v| Tick {
+            value: v,
+            label: format_value(v, step),
+        })
         .collect()
 }
 
@@ -137,14 +164,17 @@ pub(crate) fn nice_range(lo: f64, hi: f64, target: usize) -> (f64, f64) {
 pub(crate) fn pressure_ticks(p_a: f64, p_b: f64) -> Vec<Tick> {
     let (lo, hi) = if p_a < p_b { (p_a, p_b) } else { (p_b, p_a) };
     const LEVELS: [f64; 19] = [
-        1050.0, 1000.0, 925.0, 850.0, 700.0, 600.0, 500.0, 400.0, 300.0, 250.0, 200.0, 150.0, 100.0, 70.0, 50.0,
-        30.0, 20.0, 10.0, 5.0,
+        1050.0, 1000.0, 925.0, 850.0, 700.0, 600.0, 500.0, 400.0, 300.0, 250.0, 200.0, 150.0,
+        100.0, 70.0, 50.0, 30.0, 20.0, 10.0, 5.0,
     ];
     LEVELS
         .iter()
         .copied()
         .filter(|&p| p >= lo * (1.0 - 1e-9) && p <= hi * (1.0 + 1e-9))
-        .map(|p| Tick { value: p, label: format!("{p}") })
+        .map(|p| Tick {
+            value: p,
+            label: format!("{p}"),
+        })
         .collect()
 }
 
@@ -153,7 +183,7 @@ pub(crate) fn thin_ticks(ticks: Vec<Tick>, axis: &Axis, min_gap: f64) -> Vec<Tic
     let mut out: Vec<Tick> = Vec::new();
     let mut last: Option<f64> = None;
     for t in ticks {
-        let pos = axis.to_px(t.value);
+        let pos = axis.position(t.value);
         if last.is_none_or(|l| (pos - l).abs() >= min_gap) {
             last = Some(pos);
             out.push(t);
@@ -178,46 +208,89 @@ pub(crate) fn draw_axes<DB: DrawingBackend>(
     let grid_colour = RGBAColor(0, 0, 0, 0.12);
     let tick = p.px(4.0);
     for t in x_ticks {
-        let x = x_axis.to_px(t.value);
+        let x = x_axis.position(t.value);
         if grid {
             p.line((x, rect.top), (x, rect.bottom), grid_colour, 1.0)?;
         }
-        p.line((x, rect.bottom), (x, rect.bottom + tick), BLACK_INK.rgba(), 1.0)?;
-        p.text(&t.label, (x, rect.bottom + tick + p.px(2.0)), TICK_SIZE, BLACK_INK.rgba(), Anchor::TopCentre)?;
+        p.line(
+            (x, rect.bottom),
+            (x, rect.bottom + tick),
+            BLACK_INK.rgba(),
+            1.0,
+        )?;
+        p.text(
+            &t.label,
+            (x, rect.bottom + tick + p.px(2.0)),
+            TICK_SIZE,
+            BLACK_INK.rgba(),
+            Anchor::TopCentre,
+        )?;
     }
     let mut widest: f64 = 0.0;
     for t in y_ticks {
-        let y = y_axis.to_px(t.value);
+        let y = y_axis.position(t.value);
         if grid {
             p.line((rect.left, y), (rect.right, y), grid_colour, 1.0)?;
         }
         p.line((rect.left - tick, y), (rect.left, y), BLACK_INK.rgba(), 1.0)?;
-        p.text(&t.label, (rect.left - tick - p.px(3.0), y), TICK_SIZE, BLACK_INK.rgba(), Anchor::CentreRight)?;
+        p.text(
+            &t.label,
+            (rect.left - tick - p.px(3.0), y),
+            TICK_SIZE,
+            BLACK_INK.rgba(),
+            Anchor::CentreRight,
+        )?;
         widest = widest.max(p.text_extent(&t.label, TICK_SIZE).0);
     }
     p.stroke_rect(rect, BLACK_INK.rgba(), 1.0)?;
     if !x_title.is_empty() {
         let y = rect.bottom + tick + p.px(4.0) + p.text_extent("0", TICK_SIZE).1;
-        p.text(x_title, ((rect.left + rect.right) / 2.0, y), LABEL_SIZE, BLACK_INK.rgba(), Anchor::TopCentre)?;
+        p.text(
+            x_title,
+            ((rect.left + rect.right) / 2.0, y),
+            LABEL_SIZE,
+            BLACK_INK.rgba(),
+            Anchor::TopCentre,
+        )?;
     }
     if !y_title.is_empty() {
         let x = rect.left - tick - p.px(8.0) - widest - p.text_extent("0", LABEL_SIZE).1 / 2.0;
-        p.vertical_text(y_title, (x, (rect.top + rect.bottom) / 2.0), LABEL_SIZE, BLACK_INK.rgba())?;
+        p.vertical_text(
+            y_title,
+            (x, (rect.top + rect.bottom) / 2.0),
+            LABEL_SIZE,
+            BLACK_INK.rgba(),
+        )?;
     }
     Ok(())
 }
 
 /// Space needed left of a chart for y tick labels and the y title.
-pub(crate) fn left_margin<DB: DrawingBackend>(p: &Painter<'_, DB>, y_ticks: &[Tick], has_title: bool) -> f64 {
-    let widest = y_ticks.iter().map(|t| p.text_extent(&t.label, TICK_SIZE).0).fold(0.0, f64::max);
-    let title = if has_title { p.text_extent("0", LABEL_SIZE).1 + p.px(8.0) } else { 0.0 };
+pub(crate) fn left_margin<DB: DrawingBackend>(
+    p: &Painter<'_, DB>,
+    y_ticks: &[Tick],
+    has_title: bool,
+) -> f64 {
+    let widest = y_ticks
+        .iter()
+        .map(|t| p.text_extent(&t.label, TICK_SIZE).0)
+        .fold(0.0, f64::max);
+    let title = if has_title {
+        p.text_extent("0", LABEL_SIZE).1 + p.px(8.0)
+    } else {
+        0.0
+    };
     p.px(14.0) + widest + title
 }
 
 /// Space needed below a chart for x tick labels and the x title.
 pub(crate) fn bottom_margin<DB: DrawingBackend>(p: &Painter<'_, DB>, has_title: bool) -> f64 {
     let tick = p.text_extent("0", TICK_SIZE).1;
-    let title = if has_title { p.text_extent("0", LABEL_SIZE).1 + p.px(4.0) } else { 0.0 };
+    let title = if has_title {
+        p.text_extent("0", LABEL_SIZE).1 + p.px(4.0)
+    } else {
+        0.0
+    };
     p.px(10.0) + tick + title
 }
 
@@ -225,7 +298,6 @@ pub(crate) fn bottom_margin<DB: DrawingBackend>(p: &Painter<'_, DB>, has_title: 
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub(crate) enum Swatch {
     Line { dashed: bool },
-    Marker,
 }
 
 /// A legend box in the top-right corner inside the chart.
@@ -240,10 +312,17 @@ pub(crate) fn draw_legend<DB: DrawingBackend>(
     }
     let line_h = p.text_extent("Ag", SMALL_SIZE).1 + p.px(4.0);
     let swatch_w = p.px(22.0);
-    let text_w = entries.iter().map(|e| p.text_extent(&e.0, SMALL_SIZE).0).fold(0.0, f64::max);
+    let text_w = entries
+        .iter()
+        .map(|e| p.text_extent(&e.0, SMALL_SIZE).0)
+        .fold(0.0, f64::max);
     let w = swatch_w + text_w + p.px(16.0);
     let h = entries.len() as f64 * line_h + p.px(6.0);
-    let left = if corner_left { rect.left + p.px(8.0) } else { rect.right - w - p.px(8.0) };
+    let left = if corner_left {
+        rect.left + p.px(8.0)
+    } else {
+        rect.right - w - p.px(8.0)
+    };
     let top = rect.top + p.px(8.0);
     let boxed = Rect::new(left, top, left + w, top + h);
     p.fill_rect(boxed, RGBAColor(255, 255, 255, 0.88))?;
@@ -262,9 +341,14 @@ pub(crate) fn draw_legend<DB: DrawingBackend>(
                     p.polyline(&pts, *colour, 2.0)?;
                 }
             }
-            Swatch::Marker => p.circle((x0 + swatch_w / 2.0 - p.px(2.0), y), 3.0, *colour, true, 1.0)?,
         }
-        p.text(name, (x0 + swatch_w + p.px(2.0), y), SMALL_SIZE, BLACK_INK.rgba(), Anchor::CentreLeft)?;
+        p.text(
+            name,
+            (x0 + swatch_w + p.px(2.0), y),
+            SMALL_SIZE,
+            BLACK_INK.rgba(),
+            Anchor::CentreLeft,
+        )?;
     }
     Ok(())
 }
@@ -320,7 +404,10 @@ pub(crate) fn label_positions<DB: DrawingBackend>(
     stagger: usize,
 ) -> Vec<Pt> {
     let mut out = Vec::new();
-    let total: f64 = pts.windows(2).map(|w| ((w[1].0 - w[0].0).powi(2) + (w[1].1 - w[0].1).powi(2)).sqrt()).sum();
+    let total: f64 = pts
+        .windows(2)
+        .map(|w| ((w[1].0 - w[0].0).powi(2) + (w[1].1 - w[0].1).powi(2)).sqrt())
+        .sum();
     let min_length = p.px(70.0);
     if total < min_length {
         return out;
@@ -337,8 +424,13 @@ pub(crate) fn label_positions<DB: DrawingBackend>(
         let seg = ((w[1].0 - w[0].0).powi(2) + (w[1].1 - w[0].1).powi(2)).sqrt();
         while walked + seg >= next {
             let t = (next - walked) / seg.max(1e-9);
-            let at = (w[0].0 + t * (w[1].0 - w[0].0), w[0].1 + t * (w[1].1 - w[0].1));
-            let b = p.text_box(text, at, SMALL_SIZE, Anchor::Centre).inflate(p.px(3.0));
+            let at = (
+                w[0].0 + t * (w[1].0 - w[0].0),
+                w[0].1 + t * (w[1].1 - w[0].1),
+            );
+            let b = p
+                .text_box(text, at, SMALL_SIZE, Anchor::Centre)
+                .inflate(p.px(3.0));
             let inside = inner.contains((b.left, b.top)) && inner.contains((b.right, b.bottom));
             if inside && !occupied.iter().any(|o| o.overlaps(&b)) {
                 occupied.push(b);
@@ -353,4 +445,3 @@ pub(crate) fn label_positions<DB: DrawingBackend>(
     }
     out
 }
-

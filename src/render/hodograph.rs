@@ -47,7 +47,10 @@ pub struct HodographSpec {
     pub caption: String,
 }
 
-pub fn render_hodograph(spec: &HodographSpec, size: &FigureSize) -> Result<MimeBundle, RenderError> {
+pub fn render_hodograph(
+    spec: &HodographSpec,
+    size: &FigureSize,
+) -> Result<MimeBundle, RenderError> {
     let prepared = PreparedHodograph::new(spec)?;
     bundle_of(&prepared, size)
 }
@@ -64,30 +67,55 @@ pub(crate) struct PreparedHodograph {
 }
 
 fn checked(points: &[HodographPoint], what: &str) -> Result<Vec<HodographPoint>, RenderError> {
-    if points.iter().any(|p| !(p.pressure.is_finite() && p.pressure > 0.0)) {
-        return Err(RenderError::input(what, "pressures must be positive numbers in Pa"));
+    if points
+        .iter()
+        .any(|p| !(p.pressure.is_finite() && p.pressure > 0.0))
+    {
+        return Err(RenderError::input(
+            what,
+            "pressures must be positive numbers in Pa",
+        ));
     }
     // Lowest level (largest pressure) first; missing winds are left out.
-    let mut v: Vec<HodographPoint> = points.iter().copied().filter(|p| p.u.is_finite() && p.v.is_finite()).collect();
+    let mut v: Vec<HodographPoint> = points
+        .iter()
+        .copied()
+        .filter(|p| p.u.is_finite() && p.v.is_finite())
+        .collect();
     v.sort_by(|a, b| b.pressure.total_cmp(&a.pressure));
     Ok(v)
 }
 
 fn hpa(pa: f64) -> String {
-    format_value(pa / 100.0, if (pa / 100.0).fract().abs() < 1e-9 { 1.0 } else { 0.1 })
+    format_value(
+        pa / 100.0,
+        if (pa / 100.0).fract().abs() < 1e-9 {
+            1.0
+        } else {
+            0.1
+        },
+    )
 }
 
 impl PreparedHodograph {
     pub(crate) fn new(spec: &HodographSpec) -> Result<Self, RenderError> {
         let geostrophic = checked(&spec.geostrophic, "geostrophic wind")?;
         if geostrophic.is_empty() {
-            return Err(RenderError::input("geostrophic wind", "needs at least one level with a wind"));
+            return Err(RenderError::input(
+                "geostrophic wind",
+                "needs at least one level with a wind",
+            ));
         }
         let analysed = match &spec.analysed {
             Some(a) => checked(a, "analysed wind")?,
             None => Vec::new(),
         };
-        let find = |p: f64| geostrophic.iter().find(|g| (g.pressure - p).abs() < 1.0).copied();
+        let find = |p: f64| {
+            geostrophic
+                .iter()
+                .find(|g| (g.pressure - p).abs() < 1.0)
+                .copied()
+        };
         let explicit_layers = !spec.thermal_layers.is_empty();
         let mut layers = Vec::new();
         if explicit_layers {
@@ -101,7 +129,11 @@ impl PreparedHodograph {
                                 "{}-{} hPa: both ends must be levels of the geostrophic wind ({})",
                                 hpa(bottom),
                                 hpa(top),
-                                geostrophic.iter().map(|g| hpa(g.pressure)).collect::<Vec<_>>().join(", ")
+                                geostrophic
+                                    .iter()
+                                    .map(|g| hpa(g.pressure))
+                                    .collect::<Vec<_>>()
+                                    .join(", ")
                             ),
                         ))
                     }
@@ -153,7 +185,9 @@ impl Drawable for PreparedHodograph {
         let margin_bottom = caption_h + tick_h * 2.0 + p.px(18.0);
         let avail = Rect::new(p.px(64.0), top, w - p.px(20.0), h - margin_bottom);
         if avail.width() < p.px(40.0) || avail.height() < p.px(40.0) {
-            return Err(RenderError::Size("the figure is too small for a hodograph; make it at least 240 x 240 px".into()));
+            return Err(RenderError::Size(
+                "the figure is too small for a hodograph; make it at least 240 x 240 px".into(),
+            ));
         }
         // The box of all wind tips and the origin, padded, then widened in
         // one direction so that both axes have the same scale (equal aspect).
@@ -171,12 +205,20 @@ impl Drawable for PreparedHodograph {
         let pad = 0.12 * span;
         let (u_lo, u_hi, v_lo, v_hi) = (u_lo - pad, u_hi + pad, v_lo - pad, v_hi + pad);
         let per_unit = (avail.width() / (u_hi - u_lo)).min(avail.height() / (v_hi - v_lo));
-        let (extra_u, extra_v) = (avail.width() / per_unit - (u_hi - u_lo), avail.height() / per_unit - (v_hi - v_lo));
+        let (extra_u, extra_v) = (
+            avail.width() / per_unit - (u_hi - u_lo),
+            avail.height() / per_unit - (v_hi - v_lo),
+        );
         let (u_lo, u_hi) = (u_lo - extra_u / 2.0, u_hi + extra_u / 2.0);
         let (v_lo, v_hi) = (v_lo - extra_v / 2.0, v_hi + extra_v / 2.0);
         let rect = avail;
-        let to_px = |u: f64, v: f64| -> Pt { (rect.left + (u - u_lo) * per_unit, rect.bottom - (v - v_lo) * per_unit) };
-        let centre = to_px(0.0, 0.0);
+        let position = |u: f64, v: f64| -> Pt {
+            (
+                rect.left + (u - u_lo) * per_unit,
+                rect.bottom - (v - v_lo) * per_unit,
+            )
+        };
+        let centre = position(0.0, 0.0);
 
         p.fill_rect(rect, WHITE.rgba())?;
         let grid = RGBAColor(0, 0, 0, 0.18);
@@ -188,7 +230,10 @@ impl Drawable for PreparedHodograph {
         let ring_step = nice_step(far, 8);
         let (mean_u, mean_v) = {
             let n = self.geostrophic.len() as f64;
-            (self.geostrophic.iter().map(|q| q.u).sum::<f64>() / n, self.geostrophic.iter().map(|q| q.v).sum::<f64>() / n)
+            (
+                self.geostrophic.iter().map(|q| q.u).sum::<f64>() / n,
+                self.geostrophic.iter().map(|q| q.v).sum::<f64>() / n,
+            )
         };
         // Directions to try for ring labels, farthest from the mean wind first.
         let mut label_dirs: Vec<(f64, f64)> = (0..16)
@@ -197,14 +242,16 @@ impl Drawable for PreparedHodograph {
                 (t.cos(), t.sin())
             })
             .collect();
-        label_dirs.sort_by(|a, b| (a.0 * mean_u + a.1 * mean_v).total_cmp(&(b.0 * mean_u + b.1 * mean_v)));
+        label_dirs.sort_by(|a, b| {
+            (a.0 * mean_u + a.1 * mean_v).total_cmp(&(b.0 * mean_u + b.1 * mean_v))
+        });
         let mut r = ring_step;
         while r <= far + 1e-9 {
             let steps = 180;
             let circle: Vec<Pt> = (0..=steps)
                 .map(|i| {
                     let t = i as f64 / steps as f64 * std::f64::consts::TAU;
-                    to_px(r * t.cos(), r * t.sin())
+                    position(r * t.cos(), r * t.sin())
                 })
                 .collect();
             for run in clip_polyline(&circle, &rect) {
@@ -212,9 +259,11 @@ impl Drawable for PreparedHodograph {
             }
             let text = format!("{} m/s", format_value(r, ring_step));
             for dir in &label_dirs {
-                let at = to_px(r * dir.0, r * dir.1);
+                let at = position(r * dir.0, r * dir.1);
                 let b = p.text_box(&text, at, SMALL_SIZE, Anchor::Centre);
-                if rect.inflate(-p.px(4.0)).contains((b.left, b.top)) && rect.inflate(-p.px(4.0)).contains((b.right, b.bottom)) {
+                if rect.inflate(-p.px(4.0)).contains((b.left, b.top))
+                    && rect.inflate(-p.px(4.0)).contains((b.right, b.bottom))
+                {
                     p.fill_rect(b, RGBAColor(255, 255, 255, 0.85))?;
                     p.text(&text, at, SMALL_SIZE, GREY_INK.rgba(), Anchor::Centre)?;
                     break;
@@ -222,41 +271,90 @@ impl Drawable for PreparedHodograph {
             }
             r += ring_step;
         }
-        p.line((rect.left, centre.1), (rect.right, centre.1), RGBAColor(0, 0, 0, 0.45), 1.0)?;
-        p.line((centre.0, rect.top), (centre.0, rect.bottom), RGBAColor(0, 0, 0, 0.45), 1.0)?;
-        let x_axis = frame::Axis { from: u_lo, to: u_hi, start_px: rect.left, end_px: rect.right, log: false };
-        let y_axis = frame::Axis { from: v_lo, to: v_hi, start_px: rect.bottom, end_px: rect.top, log: false };
+        p.line(
+            (rect.left, centre.1),
+            (rect.right, centre.1),
+            RGBAColor(0, 0, 0, 0.45),
+            1.0,
+        )?;
+        p.line(
+            (centre.0, rect.top),
+            (centre.0, rect.bottom),
+            RGBAColor(0, 0, 0, 0.45),
+            1.0,
+        )?;
+        let x_axis = frame::Axis {
+            from: u_lo,
+            to: u_hi,
+            start_px: rect.left,
+            end_px: rect.right,
+            log: false,
+        };
+        let y_axis = frame::Axis {
+            from: v_lo,
+            to: v_hi,
+            start_px: rect.bottom,
+            end_px: rect.top,
+            log: false,
+        };
         let x_ticks = frame::linear_ticks(u_lo, u_hi, 8);
         let y_ticks = frame::linear_ticks(v_lo, v_hi, 8);
-        frame::draw_axes(p, rect, &x_axis, &y_axis, &x_ticks, &y_ticks, "u, eastward (m/s)", "v, northward (m/s)", false)?;
+        frame::draw_axes(
+            p,
+            rect,
+            &x_axis,
+            &y_axis,
+            &x_ticks,
+            &y_ticks,
+            "u, eastward (m/s)",
+            "v, northward (m/s)",
+            false,
+        )?;
 
         let geo_colour = series_colour(0);
         let thermal_colour = series_colour(1);
         let analysed_colour = series_colour(2);
 
         if !self.analysed.is_empty() {
-            let pts: Vec<Pt> = self.analysed.iter().map(|q| to_px(q.u, q.v)).collect();
+            let pts: Vec<Pt> = self.analysed.iter().map(|q| position(q.u, q.v)).collect();
             for run in frame::dashes(&pts, p.px(6.0), p.px(4.0)) {
                 p.polyline(&run, analysed_colour, 1.5)?;
             }
             for q in &pts {
                 let s = p.px(3.0);
-                p.fill_rect(Rect::new(q.0 - s, q.1 - s, q.0 + s, q.1 + s), analysed_colour)?;
+                p.fill_rect(
+                    Rect::new(q.0 - s, q.1 - s, q.0 + s, q.1 + s),
+                    analysed_colour,
+                )?;
             }
         }
-        let pts: Vec<Pt> = self.geostrophic.iter().map(|q| to_px(q.u, q.v)).collect();
+        let pts: Vec<Pt> = self
+            .geostrophic
+            .iter()
+            .map(|q| position(q.u, q.v))
+            .collect();
         // The trace is wide and pale enough that the thermal-wind arrows
         // drawn along it on top stay distinct.
-        p.polyline(&pts, RGBAColor(geo_colour.0, geo_colour.1, geo_colour.2, 0.55), 4.0)?;
+        p.polyline(
+            &pts,
+            RGBAColor(geo_colour.0, geo_colour.1, geo_colour.2, 0.55),
+            4.0,
+        )?;
         // Thermal wind of each layer: an arrow from the bottom tip to the top tip.
         for (b, t) in &self.layers {
-            let a = to_px(b.u, b.v);
-            let z = to_px(t.u, t.v);
+            let a = position(b.u, b.v);
+            let z = position(t.u, t.v);
             draw_arrow(p, a, z, thermal_colour, 1.4)?;
             if self.explicit_layers {
                 let mid = ((a.0 + z.0) / 2.0, (a.1 + z.1) / 2.0);
                 let text = format!("{}-{} hPa", hpa(b.pressure), hpa(t.pressure));
-                p.text(&text, (mid.0 + p.px(6.0), mid.1), SMALL_SIZE, thermal_colour, Anchor::CentreLeft)?;
+                p.text(
+                    &text,
+                    (mid.0 + p.px(6.0), mid.1),
+                    SMALL_SIZE,
+                    thermal_colour,
+                    Anchor::CentreLeft,
+                )?;
             }
         }
         // Points labelled by pressure, offset away from the trace.
@@ -269,7 +367,14 @@ impl Drawable for PreparedHodograph {
             // Perpendicular to the local direction of the trace.
             let (dx, dy) = (next.0 - prev.0, next.1 - prev.1);
             let len = (dx * dx + dy * dy).sqrt();
-            let (nx, ny) = if len > 0.0 { (dy / len, -dx / len) } else { (0.7071, -0.7071) };
+            let (nx, ny) = if len > 0.0 {
+                (dy / len, -dx / len)
+            } else {
+                (
+                    std::f64::consts::FRAC_1_SQRT_2,
+                    -std::f64::consts::FRAC_1_SQRT_2,
+                )
+            };
             let text = hpa(q.pressure);
             let mut chosen = None;
             for sign in [1.0, -1.0] {
@@ -288,11 +393,23 @@ impl Drawable for PreparedHodograph {
             }
         }
         let mut entries = vec![
-            ("geostrophic wind (labels: hPa)".to_string(), geo_colour, Swatch::Line { dashed: false }),
-            ("thermal wind of each layer".to_string(), thermal_colour, Swatch::Line { dashed: false }),
+            (
+                "geostrophic wind (labels: hPa)".to_string(),
+                geo_colour,
+                Swatch::Line { dashed: false },
+            ),
+            (
+                "thermal wind of each layer".to_string(),
+                thermal_colour,
+                Swatch::Line { dashed: false },
+            ),
         ];
         if !self.analysed.is_empty() {
-            entries.push(("analysed wind".to_string(), analysed_colour, Swatch::Line { dashed: true }));
+            entries.push((
+                "analysed wind".to_string(),
+                analysed_colour,
+                Swatch::Line { dashed: true },
+            ));
         }
         frame::draw_legend(p, rect, &entries, true)?;
         frame::draw_caption(p, &caption_lines, h - caption_h)?;
@@ -301,7 +418,13 @@ impl Drawable for PreparedHodograph {
 }
 
 /// A line with a filled arrowhead at `to`.
-pub(crate) fn draw_arrow<DB: DrawingBackend>(p: &Painter<'_, DB>, from: Pt, to: Pt, colour: RGBAColor, width: f64) -> Result<(), RenderError> {
+pub(crate) fn draw_arrow<DB: DrawingBackend>(
+    p: &Painter<'_, DB>,
+    from: Pt,
+    to: Pt,
+    colour: RGBAColor,
+    width: f64,
+) -> Result<(), RenderError> {
     let (dx, dy) = (to.0 - from.0, to.1 - from.1);
     let len = (dx * dx + dy * dy).sqrt();
     if len < 1.0 {
@@ -312,7 +435,14 @@ pub(crate) fn draw_arrow<DB: DrawingBackend>(p: &Painter<'_, DB>, from: Pt, to: 
     let base = (to.0 - ux * head, to.1 - uy * head);
     p.line(from, base, colour, width)?;
     let half = head * 0.45;
-    p.polygon(&[to, (base.0 - uy * half, base.1 + ux * half), (base.0 + uy * half, base.1 - ux * half)], colour)
+    p.polygon(
+        &[
+            to,
+            (base.0 - uy * half, base.1 + ux * half),
+            (base.0 + uy * half, base.1 - ux * half),
+        ],
+        colour,
+    )
 }
 
 #[cfg(test)]
@@ -351,20 +481,38 @@ mod tests {
         roxmltree::Document::parse(bundle.text("image/svg+xml").unwrap()).unwrap();
         let (w, h, _, _) = decode_png(bundle.binary("image/png").unwrap());
         assert_eq!((w, h), (640, 700));
-        assert!(bundle.plain_text().contains("1000 to 300 hPa"), "{}", bundle.plain_text());
-        // Pressure labels are in hPa.
-        assert!(bundle.text("image/svg+xml").unwrap().contains(">\n850\n<") || bundle.text("image/svg+xml").unwrap().contains("850"));
-        std::fs::write(check_dir().join("hodograph.png"), bundle.binary("image/png").unwrap()).unwrap();
+        assert!(
+            bundle.plain_text().contains("1000 to 300 hPa"),
+            "{}",
+            bundle.plain_text()
+        );
+        // Points are labelled in hPa (850), not Pa (85000).
+        let svg = bundle.text("image/svg+xml").unwrap();
+        assert!(
+            svg.contains(">\n850\n</text>") || svg.contains(">850</text>"),
+            "no 850 label"
+        );
+        assert!(!svg.contains("85000"));
+        std::fs::write(
+            check_dir().join("hodograph.png"),
+            bundle.binary("image/png").unwrap(),
+        )
+        .unwrap();
     }
 
     #[test]
     fn explicit_layer_must_name_existing_levels() {
         let mut spec = veering();
         spec.thermal_layers = vec![(100000.0, 40000.0)];
-        let err = render_hodograph(&spec, &FigureSize::default()).unwrap_err().to_string();
+        let err = render_hodograph(&spec, &FigureSize::default())
+            .unwrap_err()
+            .to_string();
         assert!(err.contains("1000-400 hPa") && err.contains("850"), "{err}");
         spec.thermal_layers = vec![(100000.0, 50000.0)];
         let bundle = render_hodograph(&spec, &FigureSize::default()).unwrap();
-        assert!(bundle.text("image/svg+xml").unwrap().contains("1000-500 hPa"));
+        assert!(bundle
+            .text("image/svg+xml")
+            .unwrap()
+            .contains("1000-500 hPa"));
     }
 }

@@ -154,13 +154,19 @@ impl FigureSize {
 /// A figure that can draw itself on any plotters backend, at a scale of
 /// device pixels per CSS pixel.
 pub(crate) trait Drawable {
-    fn draw<DB: DrawingBackend>(&self, painter: &painter::Painter<'_, DB>) -> Result<(), RenderError>;
+    fn draw<DB: DrawingBackend>(
+        &self,
+        painter: &painter::Painter<'_, DB>,
+    ) -> Result<(), RenderError>;
     /// One line of plain text saying what the figure shows.
     fn describe(&self) -> String;
 }
 
 /// Draw as SVG, PNG and plain text.
-pub(crate) fn bundle_of<D: Drawable>(figure: &D, size: &FigureSize) -> Result<MimeBundle, RenderError> {
+pub(crate) fn bundle_of<D: Drawable>(
+    figure: &D,
+    size: &FigureSize,
+) -> Result<MimeBundle, RenderError> {
     let svg = render_svg(figure, size)?;
     let png = render_png(figure, size)?;
     let mut bundle = MimeBundle::plain(figure.describe());
@@ -169,7 +175,10 @@ pub(crate) fn bundle_of<D: Drawable>(figure: &D, size: &FigureSize) -> Result<Mi
     Ok(bundle)
 }
 
-pub(crate) fn render_svg<D: Drawable>(figure: &D, size: &FigureSize) -> Result<String, RenderError> {
+pub(crate) fn render_svg<D: Drawable>(
+    figure: &D,
+    size: &FigureSize,
+) -> Result<String, RenderError> {
     font::ensure_registered()?;
     size.validate()?;
     let mut svg = String::new();
@@ -186,7 +195,10 @@ pub(crate) fn render_svg<D: Drawable>(figure: &D, size: &FigureSize) -> Result<S
     Ok(svg.replace("<polygon ", "<polygon fill-rule=\"evenodd\" "))
 }
 
-pub(crate) fn render_png<D: Drawable>(figure: &D, size: &FigureSize) -> Result<Vec<u8>, RenderError> {
+pub(crate) fn render_png<D: Drawable>(
+    figure: &D,
+    size: &FigureSize,
+) -> Result<Vec<u8>, RenderError> {
     font::ensure_registered()?;
     size.validate()?;
     let scale = size.png_scale();
@@ -203,7 +215,12 @@ pub(crate) fn render_png<D: Drawable>(figure: &D, size: &FigureSize) -> Result<V
 }
 
 /// Encode 8-bit RGB pixels as PNG, recording the resolution (pHYs chunk).
-pub(crate) fn encode_png(rgb: &[u8], width: u32, height: u32, dpi: f64) -> Result<Vec<u8>, RenderError> {
+pub(crate) fn encode_png(
+    rgb: &[u8],
+    width: u32,
+    height: u32,
+    dpi: f64,
+) -> Result<Vec<u8>, RenderError> {
     let mut out = Vec::new();
     {
         let mut encoder = png::Encoder::new(&mut out, width, height);
@@ -217,11 +234,15 @@ pub(crate) fn encode_png(rgb: &[u8], width: u32, height: u32, dpi: f64) -> Resul
             yppu: per_metre,
             unit: png::Unit::Meter,
         }));
-        let mut writer = encoder.write_header().map_err(|e| RenderError::Encode(e.to_string()))?;
+        let mut writer = encoder
+            .write_header()
+            .map_err(|e| RenderError::Encode(e.to_string()))?;
         writer
             .write_image_data(rgb)
             .map_err(|e| RenderError::Encode(e.to_string()))?;
-        writer.finish().map_err(|e| RenderError::Encode(e.to_string()))?;
+        writer
+            .finish()
+            .map_err(|e| RenderError::Encode(e.to_string()))?;
     }
     Ok(out)
 }

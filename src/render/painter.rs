@@ -3,11 +3,11 @@
 //! de-duplication of vertices (which keeps the SVG small), filled regions
 //! with holes, and text measurement with the embedded font.
 
+use plotters::backend::RGBPixel;
 use plotters::coord::Shift;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, Pos, VPos};
 use plotters::style::FontTransform;
-use plotters::backend::RGBPixel;
 
 use super::{drawing_error, font, RenderError};
 
@@ -25,7 +25,12 @@ pub(crate) struct Rect {
 
 impl Rect {
     pub fn new(left: f64, top: f64, right: f64, bottom: f64) -> Self {
-        Rect { left, top, right, bottom }
+        Rect {
+            left,
+            top,
+            right,
+            bottom,
+        }
     }
     pub fn width(&self) -> f64 {
         self.right - self.left
@@ -37,14 +42,24 @@ impl Rect {
         p.0 >= self.left && p.0 <= self.right && p.1 >= self.top && p.1 <= self.bottom
     }
     pub fn overlaps(&self, other: &Rect) -> bool {
-        self.left < other.right && other.left < self.right && self.top < other.bottom && other.top < self.bottom
+        self.left < other.right
+            && other.left < self.right
+            && self.top < other.bottom
+            && other.top < self.bottom
     }
     pub fn inflate(&self, by: f64) -> Rect {
-        Rect::new(self.left - by, self.top - by, self.right + by, self.bottom + by)
+        Rect::new(
+            self.left - by,
+            self.top - by,
+            self.right + by,
+            self.bottom + by,
+        )
     }
 }
 
-/// Where a text's reference point sits on the text box.
+/// Where a text's reference point sits on the text box (the full set of
+/// nine, though not every figure uses every one).
+#[allow(dead_code)]
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub(crate) enum Anchor {
     TopLeft,
@@ -77,7 +92,6 @@ impl Anchor {
 
 pub(crate) const BLACK_INK: RGBColor = RGBColor(20, 20, 20);
 pub(crate) const GREY_INK: RGBColor = RGBColor(110, 110, 110);
-pub(crate) const LIGHT_GREY: RGBColor = RGBColor(215, 215, 215);
 
 pub(crate) struct Painter<'a, DB: DrawingBackend> {
     area: &'a DrawingArea<DB, Shift>,
@@ -106,16 +120,20 @@ fn round_points(points: &[Pt]) -> Vec<(i32, i32)> {
 
 impl<'a, DB: DrawingBackend> Painter<'a, DB> {
     pub fn new(area: &'a DrawingArea<DB, Shift>, scale: f64, raster: bool) -> Self {
-        Painter { area, scale, raster }
-    }
-
-    pub fn is_raster(&self) -> bool {
-        self.raster
+        Painter {
+            area,
+            scale,
+            raster,
+        }
     }
 
     /// A painter for a sub-area (one panel of a multi-panel figure).
     pub fn sub<'b>(&self, area: &'b DrawingArea<DB, Shift>) -> Painter<'b, DB> {
-        Painter { area, scale: self.scale, raster: self.raster }
+        Painter {
+            area,
+            scale: self.scale,
+            raster: self.raster,
+        }
     }
 
     /// Fill `rect` with `base`, then with regions painted in order (each
@@ -126,7 +144,13 @@ impl<'a, DB: DrawingBackend> Painter<'a, DB> {
     /// the finished image is copied in one block: the drawing library's own
     /// polygon filler mis-pairs edges at such vertices on large polygons and
     /// leaves stray lines.
-    pub fn filled_layer(&self, rect: Rect, base: RGBAColor, regions: &[(Vec<Vec<Pt>>, RGBAColor)], missing: &[Vec<Pt>]) -> Result<(), RenderError> {
+    pub fn filled_layer(
+        &self,
+        rect: Rect,
+        base: RGBAColor,
+        regions: &[(Vec<Vec<Pt>>, RGBAColor)],
+        missing: &[Vec<Pt>],
+    ) -> Result<(), RenderError> {
         if !self.raster {
             self.fill_rect(rect, base)?;
             for (rings, colour) in regions {
@@ -160,11 +184,19 @@ impl<'a, DB: DrawingBackend> Painter<'a, DB> {
             scan_fill(&mut image, w, h, origin, missing, |x, y| {
                 // Lines rising to the right, in figure coordinates.
                 let on = ((x as i64 + x0) + (y as i64 + y0)).rem_euclid(gap) == 0;
-                Some(if on { HATCH_LINE.to_rgba() } else { HATCH_BACKGROUND.to_rgba() })
+                Some(if on {
+                    HATCH_LINE.to_rgba()
+                } else {
+                    HATCH_BACKGROUND.to_rgba()
+                })
             });
         }
-        let element = BitMapElement::<_, RGBPixel>::with_owned_buffer((x0 as i32, y0 as i32), (w as u32, h as u32), image)
-            .ok_or_else(|| RenderError::Drawing("raster layer buffer has the wrong size".into()))?;
+        let element = BitMapElement::<_, RGBPixel>::with_owned_buffer(
+            (x0 as i32, y0 as i32),
+            (w as u32, h as u32),
+            image,
+        )
+        .ok_or_else(|| RenderError::Drawing("raster layer buffer has the wrong size".into()))?;
         self.area.draw(&element).map_err(drawing_error)
     }
 
@@ -238,7 +270,15 @@ impl<'a, DB: DrawingBackend> Painter<'a, DB> {
         }
     }
 
-    pub fn polyline(&self, points: &[Pt], colour: RGBAColor, width_css: f64) -> Result<(), RenderError> {
+    pub fn polyline(
+        &self,
+        points: &[Pt],
+        colour: RGBAColor,
+        width_css: f64,
+    ) -> Result<(), RenderError> {
+        if self.raster {
+            return self.raster_polyline(points, colour, width_css);
+        }
         let pts = round_points(points);
         if pts.len() < 2 {
             return Ok(());
@@ -252,8 +292,92 @@ impl<'a, DB: DrawingBackend> Painter<'a, DB> {
         self.polyline(&[a, b], colour, width_css)
     }
 
+    /// Raster strokes are drawn here rather than by the drawing library,
+    /// whose line rasteriser drops pixels of short rising segments (contour
+    /// lines made of one-pixel steps come out dotted). Each pixel gets the
+    /// coverage of a round-capped stroke of the given width, the largest over
+    /// the polyline's segments, so joints are not painted twice.
+    fn raster_polyline(
+        &self,
+        points: &[Pt],
+        colour: RGBAColor,
+        width_css: f64,
+    ) -> Result<(), RenderError> {
+        let pts: Vec<Pt> = points
+            .iter()
+            .copied()
+            .filter(|p| p.0.is_finite() && p.1.is_finite())
+            .collect();
+        if pts.len() < 2 {
+            return Ok(());
+        }
+        let (aw, ah) = self.size();
+        let half = (width_css * self.scale).max(1.0) / 2.0;
+        let mut cover: Vec<(i64, i64, f64)> = Vec::new();
+        for w in pts.windows(2) {
+            let (a, b) = (w[0], w[1]);
+            let x0 = (a.0.min(b.0) - half - 1.0).floor().max(0.0) as i64;
+            let x1 = (a.0.max(b.0) + half + 1.0).ceil().min(aw - 1.0) as i64;
+            let y0 = (a.1.min(b.1) - half - 1.0).floor().max(0.0) as i64;
+            let y1 = (a.1.max(b.1) + half + 1.0).ceil().min(ah - 1.0) as i64;
+            let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+            let len2 = dx * dx + dy * dy;
+            for y in y0..=y1 {
+                for x in x0..=x1 {
+                    let (cx, cy) = (x as f64 + 0.5, y as f64 + 0.5);
+                    let t = if len2 > 0.0 {
+                        (((cx - a.0) * dx + (cy - a.1) * dy) / len2).clamp(0.0, 1.0)
+                    } else {
+                        0.0
+                    };
+                    let (px, py) = (a.0 + t * dx - cx, a.1 + t * dy - cy);
+                    let d = (px * px + py * py).sqrt();
+                    let c = (half + 0.5 - d).clamp(0.0, 1.0);
+                    if c > 0.0 {
+                        cover.push((y, x, c));
+                    }
+                }
+            }
+        }
+        cover.sort_by(|p, q| (p.0, p.1).cmp(&(q.0, q.1)).then(q.2.total_cmp(&p.2)));
+        cover.dedup_by(|later, first| later.0 == first.0 && later.1 == first.1);
+        for (y, x, c) in cover {
+            let shade = RGBAColor(colour.0, colour.1, colour.2, colour.3 * c);
+            self.area
+                .draw_pixel((x as i32, y as i32), &shade)
+                .map_err(drawing_error)?;
+        }
+        Ok(())
+    }
+
+    /// Raster fill of rings by the even-odd rule, pixel by pixel.
+    fn raster_fill(&self, rings: &[Vec<Pt>], colour: RGBAColor) -> Result<(), RenderError> {
+        let (aw, ah) = self.size();
+        let mut result = Ok(());
+        scan_spans(
+            aw as usize,
+            ah as usize,
+            (0.0, 0.0),
+            rings,
+            |row, from, to| {
+                for x in from..to {
+                    if result.is_ok() {
+                        result = self
+                            .area
+                            .draw_pixel((x as i32, row as i32), &colour)
+                            .map_err(drawing_error);
+                    }
+                }
+            },
+        );
+        result
+    }
+
     /// Fill one simple polygon.
     pub fn polygon(&self, points: &[Pt], colour: RGBAColor) -> Result<(), RenderError> {
+        if self.raster {
+            return self.raster_fill(&[points.to_vec()], colour);
+        }
         let pts = round_points(points);
         if pts.len() < 3 {
             return Ok(());
@@ -272,6 +396,9 @@ impl<'a, DB: DrawingBackend> Painter<'a, DB> {
     /// rasteriser fills by parity, and the SVG output sets
     /// `fill-rule="evenodd"`, so holes stay empty in both.
     pub fn region(&self, rings: &[Vec<Pt>], colour: RGBAColor) -> Result<(), RenderError> {
+        if self.raster {
+            return self.raster_fill(rings, colour);
+        }
         let mut joined: Vec<(i32, i32)> = Vec::new();
         let mut anchor: Option<(i32, i32)> = None;
         for ring in rings {
@@ -311,7 +438,12 @@ impl<'a, DB: DrawingBackend> Painter<'a, DB> {
             .map_err(drawing_error)
     }
 
-    pub fn stroke_rect(&self, rect: Rect, colour: RGBAColor, width_css: f64) -> Result<(), RenderError> {
+    pub fn stroke_rect(
+        &self,
+        rect: Rect,
+        colour: RGBAColor,
+        width_css: f64,
+    ) -> Result<(), RenderError> {
         let pts = [
             (rect.left, rect.top),
             (rect.right, rect.top),
@@ -322,46 +454,96 @@ impl<'a, DB: DrawingBackend> Painter<'a, DB> {
         self.polyline(&pts, colour, width_css)
     }
 
-    pub fn circle(&self, centre: Pt, radius_css: f64, colour: RGBAColor, filled: bool, width_css: f64) -> Result<(), RenderError> {
+    pub fn circle(
+        &self,
+        centre: Pt,
+        radius_css: f64,
+        colour: RGBAColor,
+        filled: bool,
+        width_css: f64,
+    ) -> Result<(), RenderError> {
         let c = (centre.0.round() as i32, centre.1.round() as i32);
         let r = (radius_css * self.scale).round().max(1.0) as i32;
-        let style = if filled { colour.filled() } else { self.stroke(colour, width_css) };
-        self.area.draw(&Circle::new(c, r, style)).map_err(drawing_error)
+        let style = if filled {
+            colour.filled()
+        } else {
+            self.stroke(colour, width_css)
+        };
+        self.area
+            .draw(&Circle::new(c, r, style))
+            .map_err(drawing_error)
     }
 
-    /// A circle in device pixels of any radius (rings of a hodograph).
-    pub fn ring(&self, centre: Pt, radius_px: f64, colour: RGBAColor, width_css: f64) -> Result<(), RenderError> {
-        let steps = ((radius_px * 0.5).clamp(24.0, 180.0)) as usize;
-        let pts: Vec<Pt> = (0..=steps)
-            .map(|i| {
-                let t = i as f64 / steps as f64 * std::f64::consts::TAU;
-                (centre.0 + radius_px * t.cos(), centre.1 + radius_px * t.sin())
-            })
-            .collect();
-        self.polyline(&pts, colour, width_css)
-    }
-
-    fn text_style(&self, size_css: f64, colour: RGBAColor, anchor: Anchor, vertical: bool, bold: bool) -> TextStyle<'static> {
-        let style = if bold { FontStyle::Bold } else { FontStyle::Normal };
+    fn text_style(
+        &self,
+        size_css: f64,
+        colour: RGBAColor,
+        anchor: Anchor,
+        vertical: bool,
+        bold: bool,
+    ) -> TextStyle<'static> {
+        let style = if bold {
+            FontStyle::Bold
+        } else {
+            FontStyle::Normal
+        };
         let desc = FontDesc::new(FontFamily::Name(font::FAMILY), size_css * self.scale, style);
-        let desc = if vertical { desc.transform(FontTransform::Rotate270) } else { desc };
-        TextStyle { font: desc, color: colour.to_backend_color(), pos: anchor.pos() }
+        let desc = if vertical {
+            desc.transform(FontTransform::Rotate270)
+        } else {
+            desc
+        };
+        TextStyle {
+            font: desc,
+            color: colour.to_backend_color(),
+            pos: anchor.pos(),
+        }
     }
 
-    pub fn text(&self, text: &str, at: Pt, size_css: f64, colour: RGBAColor, anchor: Anchor) -> Result<(), RenderError> {
+    pub fn text(
+        &self,
+        text: &str,
+        at: Pt,
+        size_css: f64,
+        colour: RGBAColor,
+        anchor: Anchor,
+    ) -> Result<(), RenderError> {
         self.text_with(text, at, size_css, colour, anchor, false, false)
     }
 
-    pub fn bold_text(&self, text: &str, at: Pt, size_css: f64, colour: RGBAColor, anchor: Anchor) -> Result<(), RenderError> {
+    pub fn bold_text(
+        &self,
+        text: &str,
+        at: Pt,
+        size_css: f64,
+        colour: RGBAColor,
+        anchor: Anchor,
+    ) -> Result<(), RenderError> {
         self.text_with(text, at, size_css, colour, anchor, false, true)
     }
 
     /// Text turned a quarter turn anticlockwise (for y-axis titles).
-    pub fn vertical_text(&self, text: &str, at: Pt, size_css: f64, colour: RGBAColor) -> Result<(), RenderError> {
+    pub fn vertical_text(
+        &self,
+        text: &str,
+        at: Pt,
+        size_css: f64,
+        colour: RGBAColor,
+    ) -> Result<(), RenderError> {
         self.text_with(text, at, size_css, colour, Anchor::Centre, true, false)
     }
 
-    fn text_with(&self, text: &str, at: Pt, size_css: f64, colour: RGBAColor, anchor: Anchor, vertical: bool, bold: bool) -> Result<(), RenderError> {
+    #[allow(clippy::too_many_arguments)]
+    fn text_with(
+        &self,
+        text: &str,
+        at: Pt,
+        size_css: f64,
+        colour: RGBAColor,
+        anchor: Anchor,
+        vertical: bool,
+        bold: bool,
+    ) -> Result<(), RenderError> {
         if text.is_empty() {
             return Ok(());
         }
@@ -378,7 +560,10 @@ impl<'a, DB: DrawingBackend> Painter<'a, DB> {
         match self.area.estimate_text_size(text, &style) {
             Ok((w, h)) => (w as f64, h as f64),
             // Fall back to a typical sans-serif advance of 0.6 em.
-            Err(_) => (text.chars().count() as f64 * 0.6 * size_css * self.scale, size_css * self.scale),
+            Err(_) => (
+                text.chars().count() as f64 * 0.6 * size_css * self.scale,
+                size_css * self.scale,
+            ),
         }
     }
 
@@ -403,7 +588,8 @@ impl<'a, DB: DrawingBackend> Painter<'a, DB> {
         if self.text_extent(text, size_css).0 <= max_width {
             return text.to_string();
         }
-        let chars: Vec<char> = text.chars().collect();
+        // Measure at most a few hundred characters: no figure line is wider.
+        let chars: Vec<char> = text.chars().take(400).collect();
         let mut n = chars.len();
         while n > 1 {
             n -= 1;
@@ -421,7 +607,11 @@ impl<'a, DB: DrawingBackend> Painter<'a, DB> {
         for paragraph in text.lines() {
             let mut current = String::new();
             for word in paragraph.split_whitespace() {
-                let candidate = if current.is_empty() { word.to_string() } else { format!("{current} {word}") };
+                let candidate = if current.is_empty() {
+                    word.to_string()
+                } else {
+                    format!("{current} {word}")
+                };
                 if self.text_extent(&candidate, size_css).0 > max_width && !current.is_empty() {
                     lines.push(std::mem::take(&mut current));
                     current = word.to_string();
@@ -462,7 +652,10 @@ pub(crate) fn clip_segment(a: Pt, b: Pt, rect: &Rect) -> Option<(Pt, Pt)> {
     if t0 > t1 {
         return None;
     }
-    Some(((a.0 + t0 * dx, a.1 + t0 * dy), (a.0 + t1 * dx, a.1 + t1 * dy)))
+    Some((
+        (a.0 + t0 * dx, a.1 + t0 * dy),
+        (a.0 + t1 * dx, a.1 + t1 * dy),
+    ))
 }
 
 /// Split a polyline into the runs inside a rectangle.
@@ -519,7 +712,46 @@ fn segment_crossing(a: Pt, b: Pt, c: Pt, d: Pt) -> Option<f64> {
 /// centre is inside; an edge counts on a scan line when y0 <= yc < y1
 /// (half-open), so shared vertices are counted exactly once. Partly
 /// transparent colours are blended over what is there.
-fn scan_fill(image: &mut [u8], w: usize, h: usize, origin: (f64, f64), rings: &[Vec<Pt>], paint: impl Fn(usize, usize) -> Option<RGBAColor>) {
+fn scan_fill(
+    image: &mut [u8],
+    w: usize,
+    h: usize,
+    origin: (f64, f64),
+    rings: &[Vec<Pt>],
+    paint: impl Fn(usize, usize) -> Option<RGBAColor>,
+) {
+    scan_spans(w, h, origin, rings, |row, from, to| {
+        for x in from..to {
+            let Some(colour) = paint(x, row) else {
+                continue;
+            };
+            let alpha = colour.3.clamp(0.0, 1.0);
+            let k = (row * w + x) * 3;
+            if alpha >= 1.0 {
+                image[k] = colour.0;
+                image[k + 1] = colour.1;
+                image[k + 2] = colour.2;
+            } else {
+                for (c, v) in [(0usize, colour.0), (1, colour.1), (2, colour.2)] {
+                    image[k + c] =
+                        (image[k + c] as f64 * (1.0 - alpha) + v as f64 * alpha).round() as u8;
+                }
+            }
+        }
+    });
+}
+
+/// The horizontal runs of pixels (row, from, to exclusive) inside rings by
+/// the even-odd rule, within a w x h window whose top-left pixel is at
+/// `origin`. A pixel is inside when its centre is; an edge counts on a scan
+/// line when y0 <= yc < y1 (half-open), so shared vertices count once.
+fn scan_spans(
+    w: usize,
+    h: usize,
+    origin: (f64, f64),
+    rings: &[Vec<Pt>],
+    mut span: impl FnMut(usize, usize, usize),
+) {
     // Edges as (ytop, ybottom, x at ytop, dx/dy), skipping horizontal ones.
     let mut edges: Vec<(f64, f64, f64, f64)> = Vec::new();
     for ring in rings {
@@ -529,7 +761,10 @@ fn scan_fill(image: &mut [u8], w: usize, h: usize, origin: (f64, f64), rings: &[
         }
         for i in 0..n {
             let (ax, ay) = (ring[i].0 - origin.0, ring[i].1 - origin.1);
-            let (bx, by) = (ring[(i + 1) % n].0 - origin.0, ring[(i + 1) % n].1 - origin.1);
+            let (bx, by) = (
+                ring[(i + 1) % n].0 - origin.0,
+                ring[(i + 1) % n].1 - origin.1,
+            );
             if !(ax.is_finite() && ay.is_finite() && bx.is_finite() && by.is_finite()) || ay == by {
                 continue;
             }
@@ -545,22 +780,24 @@ fn scan_fill(image: &mut [u8], w: usize, h: usize, origin: (f64, f64), rings: &[
         return;
     }
     edges.sort_by(|a, b| a.0.total_cmp(&b.0));
+    let first_row = edges[0].0.max(0.0).floor() as usize;
     let mut next = 0usize;
     let mut active: Vec<usize> = Vec::new();
     let mut xs: Vec<f64> = Vec::new();
-    for row in 0..h {
+    for row in first_row..h {
         let yc = row as f64 + 0.5;
         while next < edges.len() && edges[next].0 <= yc {
             active.push(next);
             next += 1;
         }
         active.retain(|&e| edges[e].1 > yc);
+        if active.is_empty() && next >= edges.len() {
+            break;
+        }
         xs.clear();
         for &e in &active {
             let (top, _, xt, slope) = edges[e];
-            if top <= yc {
-                xs.push(xt + (yc - top) * slope);
-            }
+            xs.push(xt + (yc - top) * slope);
         }
         if xs.len() < 2 {
             continue;
@@ -570,19 +807,8 @@ fn scan_fill(image: &mut [u8], w: usize, h: usize, origin: (f64, f64), rings: &[
             // Pixel centres x + 0.5 in [pair[0], pair[1]).
             let from = (pair[0] - 0.5).ceil().max(0.0) as usize;
             let to = ((pair[1] - 0.5).ceil().min(w as f64)).max(0.0) as usize;
-            for x in from..to.min(w) {
-                let Some(colour) = paint(x, row) else { continue };
-                let alpha = colour.3.clamp(0.0, 1.0);
-                let k = (row * w + x) * 3;
-                if alpha >= 1.0 {
-                    image[k] = colour.0;
-                    image[k + 1] = colour.1;
-                    image[k + 2] = colour.2;
-                } else {
-                    for (c, v) in [(0usize, colour.0), (1, colour.1), (2, colour.2)] {
-                        image[k + c] = (image[k + c] as f64 * (1.0 - alpha) + v as f64 * alpha).round() as u8;
-                    }
-                }
+            if to > from {
+                span(row, from, to.min(w));
             }
         }
     }
@@ -598,14 +824,18 @@ mod tests {
         let mut image = vec![0u8; 12 * 12 * 3];
         let outer = vec![(1.0, 1.0), (11.0, 1.0), (11.0, 11.0), (1.0, 11.0)];
         let hole = vec![(4.0, 4.0), (4.0, 8.0), (8.0, 8.0), (8.0, 4.0)];
-        scan_fill(&mut image, 12, 12, (0.0, 0.0), &[outer, hole], |_, _| Some(RGBAColor(255, 0, 0, 1.0)));
+        scan_fill(&mut image, 12, 12, (0.0, 0.0), &[outer, hole], |_, _| {
+            Some(RGBAColor(255, 0, 0, 1.0))
+        });
         let filled = image.chunks(3).filter(|p| p[0] == 255).count();
         assert_eq!(filled, 84);
         // A diamond whose left and right vertices sit exactly on a scan line
         // (y = 5.5): no stray span beyond the shape.
         let mut image = vec![0u8; 12 * 12 * 3];
         let diamond = vec![(6.0, 0.5), (11.0, 5.5), (6.0, 10.5), (1.0, 5.5)];
-        scan_fill(&mut image, 12, 12, (0.0, 0.0), &[diamond], |_, _| Some(RGBAColor(255, 0, 0, 1.0)));
+        scan_fill(&mut image, 12, 12, (0.0, 0.0), &[diamond], |_, _| {
+            Some(RGBAColor(255, 0, 0, 1.0))
+        });
         for row in 0..12 {
             for x in [0usize, 11] {
                 assert_eq!(image[(row * 12 + x) * 3], 0, "stray pixel at ({x}, {row})");

@@ -41,21 +41,33 @@ pub fn render_figure(spec: &FigureSpec<'_>, size: &FigureSize) -> Result<MimeBun
 
 pub fn render_panels(spec: &PanelsSpec<'_>, size: &FigureSize) -> Result<MimeBundle, RenderError> {
     if spec.panels.is_empty() {
-        return Err(RenderError::input("multi-panel figure", "needs at least one panel"));
+        return Err(RenderError::input(
+            "multi-panel figure",
+            "needs at least one panel",
+        ));
     }
     let columns = spec.columns.clamp(1, spec.panels.len());
     let rows = spec.panels.len().div_ceil(columns);
     let scale = size.png_scale().max(1.0);
-    let (pw, ph) = (size.width as f64 * scale / columns as f64, size.height as f64 * scale / rows as f64);
+    let (pw, ph) = (
+        size.width as f64 * scale / columns as f64,
+        size.height as f64 * scale / rows as f64,
+    );
     let panels = spec
         .panels
         .iter()
         .enumerate()
         .map(|(i, p)| {
-            Prepared::new(p, pw, ph).map_err(|e| RenderError::input(format!("panel {}", i + 1), e.to_string()))
+            Prepared::new(p, pw, ph)
+                .map_err(|e| RenderError::input(format!("panel {}", i + 1), e.to_string()))
         })
         .collect::<Result<Vec<_>, _>>()?;
-    let prepared = PreparedPanels { title: spec.title.clone(), columns, rows, panels };
+    let prepared = PreparedPanels {
+        title: spec.title.clone(),
+        columns,
+        rows,
+        panels,
+    };
     bundle_of(&prepared, size)
 }
 
@@ -70,10 +82,14 @@ pub(crate) enum Prepared {
 impl Prepared {
     fn new(spec: &FigureSpec<'_>, width_px: f64, height_px: f64) -> Result<Self, RenderError> {
         Ok(match spec {
-            FigureSpec::Map(m) => Prepared::Map(Box::new(PreparedMap::new(m, width_px, height_px)?)),
+            FigureSpec::Map(m) => {
+                Prepared::Map(Box::new(PreparedMap::new(m, width_px, height_px)?))
+            }
             FigureSpec::Hodograph(h) => Prepared::Hodograph(PreparedHodograph::new(h)?),
             FigureSpec::Profile(p) => Prepared::Profile(PreparedProfile::new(p)?),
-            FigureSpec::CrossSection(c) => Prepared::CrossSection(Box::new(PreparedCrossSection::new(c)?)),
+            FigureSpec::CrossSection(c) => {
+                Prepared::CrossSection(Box::new(PreparedCrossSection::new(c)?))
+            }
             FigureSpec::TimeSeries(t) => Prepared::TimeSeries(PreparedTimeSeries::new(t)?),
         })
     }
@@ -116,11 +132,20 @@ impl Drawable for PreparedPanels {
             .enumerate()
             .map(|(i, p)| format!("({}) {}", i + 1, p.describe().trim_end_matches('.')))
             .collect();
-        format!("Figure \"{}\" with {} panels: {}.", self.title, self.panels.len(), parts.join("; "))
+        format!(
+            "Figure \"{}\" with {} panels: {}.",
+            self.title,
+            self.panels.len(),
+            parts.join("; ")
+        )
     }
 
     fn draw<DB: DrawingBackend>(&self, p: &Painter<'_, DB>) -> Result<(), RenderError> {
-        let top = if self.title.is_empty() { 0.0 } else { frame::draw_title(p, &self.title, "")? };
+        let top = if self.title.is_empty() {
+            0.0
+        } else {
+            frame::draw_title(p, &self.title, "")?
+        };
         let (w, h) = p.size();
         let body = p.area().margin(top.round() as u32, 0, 0, 0);
         let _ = (w, h);
@@ -157,7 +182,11 @@ mod tests {
             .shaded(ShadedLayer::new(s.thickness.view(), "thickness", "m"))
             .contour_lines(ContourLayer::new(s.thickness.view(), "thickness", "m").every(60.0))
             .vectors(VectorLayer::barbs(s.u.view(), s.v.view(), "thermal wind"));
-        let advection = MapSpec::new("Advection", &s.lats, &s.lons).shaded(ShadedLayer::new(s.signed.view(), "advection", "K/day"));
+        let advection = MapSpec::new("Advection", &s.lats, &s.lons).shaded(ShadedLayer::new(
+            s.signed.view(),
+            "advection",
+            "K/day",
+        ));
         let hodo = HodographSpec {
             title: "Hodograph".into(),
             geostrophic: vec![
@@ -171,19 +200,35 @@ mod tests {
             title: "Wind speed".into(),
             quantity: "speed".into(),
             units: "m/s".into(),
-            series: vec![ProfileSeries::new("geostrophic", vec![100000.0, 70000.0, 50000.0], vec![5.8, 15.0, 23.4])],
+            series: vec![ProfileSeries::new(
+                "geostrophic",
+                vec![100000.0, 70000.0, 50000.0],
+                vec![5.8, 15.0, 23.4],
+            )],
             ..Default::default()
         };
         let spec = PanelsSpec {
             title: "Case overview (invented)".into(),
             columns: 2,
-            panels: vec![FigureSpec::Map(map), FigureSpec::Map(advection), FigureSpec::Hodograph(hodo), FigureSpec::Profile(profile)],
+            panels: vec![
+                FigureSpec::Map(map),
+                FigureSpec::Map(advection),
+                FigureSpec::Hodograph(hodo),
+                FigureSpec::Profile(profile),
+            ],
         };
         let bundle = render_panels(&spec, &FigureSize::new(1200, 900)).unwrap();
         roxmltree::Document::parse(bundle.text("image/svg+xml").unwrap()).unwrap();
         assert_eq!(decode_png(bundle.binary("image/png").unwrap()).0, 1200);
         let text = bundle.plain_text();
-        assert!(text.contains("4 panels") && text.contains("(3) Hodograph") && !text.contains('\n'), "{text}");
-        std::fs::write(check_dir().join("panels.png"), bundle.binary("image/png").unwrap()).unwrap();
+        assert!(
+            text.contains("4 panels") && text.contains("(3) Hodograph") && !text.contains('\n'),
+            "{text}"
+        );
+        std::fs::write(
+            check_dir().join("panels.png"),
+            bundle.binary("image/png").unwrap(),
+        )
+        .unwrap();
     }
 }

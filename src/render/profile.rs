@@ -21,7 +21,11 @@ pub struct ProfileSeries {
 
 impl ProfileSeries {
     pub fn new(name: impl Into<String>, pressures: Vec<f64>, values: Vec<f64>) -> Self {
-        ProfileSeries { name: name.into(), pressures, values }
+        ProfileSeries {
+            name: name.into(),
+            pressures,
+            values,
+        }
     }
 }
 
@@ -63,12 +67,19 @@ impl PreparedProfile {
             if s.pressures.len() != s.values.len() {
                 return Err(RenderError::input(
                     format!("profile series '{}'", s.name),
-                    format!("has {} pressures but {} values", s.pressures.len(), s.values.len()),
+                    format!(
+                        "has {} pressures but {} values",
+                        s.pressures.len(),
+                        s.values.len()
+                    ),
                 ));
             }
             for (&p, &v) in s.pressures.iter().zip(&s.values) {
                 if !(p.is_finite() && p > 0.0) {
-                    return Err(RenderError::input(format!("profile series '{}'", s.name), "pressures must be positive numbers in Pa"));
+                    return Err(RenderError::input(
+                        format!("profile series '{}'", s.name),
+                        "pressures must be positive numbers in Pa",
+                    ));
                 }
                 p_min = p_min.min(p);
                 p_max = p_max.max(p);
@@ -85,17 +96,31 @@ impl PreparedProfile {
         let p_bottom = (p_max / 100.0).max(1000.0);
         // A little room above the top level so its point is not on the frame.
         let p_top = (p_min / 100.0 * 0.95).min(p_bottom * 0.5);
-        let x_range = if v_min.is_finite() { frame::nice_range(v_min, v_max, 6) } else { (0.0, 1.0) };
+        let x_range = if v_min.is_finite() {
+            frame::nice_range(v_min, v_max, 6)
+        } else {
+            (0.0, 1.0)
+        };
         let description = format!(
             "Vertical profile \"{}\": {} ({}) of {} from {} to {} hPa.",
             spec.title,
             spec.quantity,
             spec.units,
-            spec.series.iter().map(|s| s.name.as_str()).collect::<Vec<_>>().join(", "),
+            spec.series
+                .iter()
+                .map(|s| s.name.as_str())
+                .collect::<Vec<_>>()
+                .join(", "),
             p_max / 100.0,
             p_min / 100.0
         );
-        Ok(PreparedProfile { spec: spec.clone(), p_bottom, p_top, x_range, description })
+        Ok(PreparedProfile {
+            spec: spec.clone(),
+            p_bottom,
+            p_top,
+            x_range,
+            description,
+        })
     }
 }
 
@@ -112,24 +137,56 @@ impl Drawable for PreparedProfile {
         let left = frame::left_margin(p, &y_ticks_all, true);
         let bottom = h - caption_h - frame::bottom_margin(p, true) - p.px(4.0);
         let rect = Rect::new(left, top, w - p.px(16.0), bottom);
-        let x_axis = Axis { from: self.x_range.0, to: self.x_range.1, start_px: rect.left, end_px: rect.right, log: false };
+        let x_axis = Axis {
+            from: self.x_range.0,
+            to: self.x_range.1,
+            start_px: rect.left,
+            end_px: rect.right,
+            log: false,
+        };
         // Pressure increases downward: the bottom pressure at the bottom edge.
-        let y_axis = Axis { from: self.p_bottom, to: self.p_top, start_px: rect.bottom, end_px: rect.top, log: true };
+        let y_axis = Axis {
+            from: self.p_bottom,
+            to: self.p_top,
+            start_px: rect.bottom,
+            end_px: rect.top,
+            log: true,
+        };
         let x_ticks = frame::linear_ticks(self.x_range.0, self.x_range.1, 6);
-        let y_ticks = frame::thin_ticks(y_ticks_all, &y_axis, p.text_extent("0", TICK_SIZE).1 * 1.3);
+        let y_ticks =
+            frame::thin_ticks(y_ticks_all, &y_axis, p.text_extent("0", TICK_SIZE).1 * 1.3);
         p.fill_rect(rect, WHITE.rgba())?;
-        let x_title = if self.spec.units.is_empty() { self.spec.quantity.clone() } else { format!("{} ({})", self.spec.quantity, self.spec.units) };
-        frame::draw_axes(p, rect, &x_axis, &y_axis, &x_ticks, &y_ticks, &x_title, "pressure (hPa)", true)?;
+        let x_title = if self.spec.units.is_empty() {
+            self.spec.quantity.clone()
+        } else {
+            format!("{} ({})", self.spec.quantity, self.spec.units)
+        };
+        frame::draw_axes(
+            p,
+            rect,
+            &x_axis,
+            &y_axis,
+            &x_ticks,
+            &y_ticks,
+            &x_title,
+            "pressure (hPa)",
+            true,
+        )?;
         let mut entries = Vec::new();
         for (i, s) in self.spec.series.iter().enumerate() {
             let colour = series_colour(i);
             // Sorted from the bottom up; a missing value breaks the line.
-            let mut levels: Vec<(f64, f64)> = s.pressures.iter().copied().zip(s.values.iter().copied()).collect();
+            let mut levels: Vec<(f64, f64)> = s
+                .pressures
+                .iter()
+                .copied()
+                .zip(s.values.iter().copied())
+                .collect();
             levels.sort_by(|a, b| b.0.total_cmp(&a.0));
             let mut run: Vec<Pt> = Vec::new();
             for (pr, v) in levels {
                 if v.is_finite() {
-                    let at = (x_axis.to_px(v), y_axis.to_px(pr / 100.0));
+                    let at = (x_axis.position(v), y_axis.position(pr / 100.0));
                     p.circle(at, 2.5, colour, true, 1.0)?;
                     run.push(at);
                 } else {
@@ -153,12 +210,21 @@ mod tests {
 
     #[test]
     fn pressure_axis_is_logarithmic_and_increases_downward() {
-        let axis = Axis { from: 1000.0, to: 100.0, start_px: 500.0, end_px: 0.0, log: true };
-        assert!((axis.to_px(1000.0) - 500.0).abs() < 1e-9, "1000 hPa at the bottom");
-        assert!((axis.to_px(100.0) - 0.0).abs() < 1e-9);
+        let axis = Axis {
+            from: 1000.0,
+            to: 100.0,
+            start_px: 500.0,
+            end_px: 0.0,
+            log: true,
+        };
+        assert!(
+            (axis.position(1000.0) - 500.0).abs() < 1e-9,
+            "1000 hPa at the bottom"
+        );
+        assert!((axis.position(100.0) - 0.0).abs() < 1e-9);
         // ln(1000/316.23) = ln(316.23/100): 316.23 hPa halfway up (log axis).
-        assert!((axis.to_px(1000.0 / 10f64.sqrt()) - 250.0).abs() < 1e-6);
-        assert!(axis.to_px(850.0) < axis.to_px(1000.0));
+        assert!((axis.position(1000.0 / 10f64.sqrt()) - 250.0).abs() < 1e-6);
+        assert!(axis.position(850.0) < axis.position(1000.0));
     }
 
     #[test]
@@ -172,8 +238,16 @@ mod tests {
             quantity: "temperature".into(),
             units: "K".into(),
             series: vec![
-                ProfileSeries::new("warm side", pressures.clone(), vec![287.4, 278.0, 269.0, 252.7, 228.5, 216.6]),
-                ProfileSeries::new("cold side", pressures.clone(), vec![276.0, 266.5, f64::NAN, 241.0, 220.0, 214.0]),
+                ProfileSeries::new(
+                    "warm side",
+                    pressures.clone(),
+                    vec![287.4, 278.0, 269.0, 252.7, 228.5, 216.6],
+                ),
+                ProfileSeries::new(
+                    "cold side",
+                    pressures.clone(),
+                    vec![276.0, 266.5, f64::NAN, 241.0, 220.0, 214.0],
+                ),
             ],
             caption: "A missing value (700 hPa, cold side) breaks its line.".into(),
         };
@@ -182,8 +256,18 @@ mod tests {
         let (w, _, _, _) = decode_png(bundle.binary("image/png").unwrap());
         assert_eq!(w, 520);
         assert!(bundle.plain_text().contains("warm side, cold side"));
-        std::fs::write(check_dir().join("profile.png"), bundle.binary("image/png").unwrap()).unwrap();
-        let bad = ProfileSpec { series: vec![ProfileSeries::new("x", vec![1.0], vec![])], ..spec };
-        assert!(render_profile(&bad, &FigureSize::default()).unwrap_err().to_string().contains("1 pressures but 0 values"));
+        std::fs::write(
+            check_dir().join("profile.png"),
+            bundle.binary("image/png").unwrap(),
+        )
+        .unwrap();
+        let bad = ProfileSpec {
+            series: vec![ProfileSeries::new("x", vec![1.0], vec![])],
+            ..spec
+        };
+        assert!(render_profile(&bad, &FigureSize::default())
+            .unwrap_err()
+            .to_string()
+            .contains("1 pressures but 0 values"));
     }
 }

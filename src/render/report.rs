@@ -22,7 +22,10 @@ pub enum ReportBlock {
     Paragraph(String),
     /// A rendered figure; the PNG is inlined (the SVG when there is no PNG),
     /// with the bundle's plain text as the image's alternative text.
-    Figure { bundle: MimeBundle, caption: String },
+    Figure {
+        bundle: MimeBundle,
+        caption: String,
+    },
     Table(TableSpec),
     /// Preformatted text, e.g. the recipe that produced the report.
     Recipe(String),
@@ -38,7 +41,10 @@ pub struct Report {
 
 impl Report {
     pub fn new(title: impl Into<String>) -> Self {
-        Report { title: title.into(), blocks: Vec::new() }
+        Report {
+            title: title.into(),
+            blocks: Vec::new(),
+        }
     }
     pub fn heading(mut self, text: impl Into<String>) -> Self {
         self.blocks.push(ReportBlock::Heading(text.into()));
@@ -49,7 +55,10 @@ impl Report {
         self
     }
     pub fn figure(mut self, bundle: MimeBundle, caption: impl Into<String>) -> Self {
-        self.blocks.push(ReportBlock::Figure { bundle, caption: caption.into() });
+        self.blocks.push(ReportBlock::Figure {
+            bundle,
+            caption: caption.into(),
+        });
         self
     }
     pub fn table(mut self, table: TableSpec) -> Self {
@@ -75,7 +84,10 @@ impl Report {
                 ReportBlock::Figure { bundle, caption } => {
                     let alt = escape(bundle.plain_text());
                     let img = if let Some(png) = bundle.binary("image/png") {
-                        format!("<img src=\"data:image/png;base64,{}\" alt=\"{alt}\">", base64::engine::general_purpose::STANDARD.encode(png))
+                        format!(
+                            "<img src=\"data:image/png;base64,{}\" alt=\"{alt}\">",
+                            base64::engine::general_purpose::STANDARD.encode(png)
+                        )
                     } else if let Some(svg) = bundle.text("image/svg+xml") {
                         format!(
                             "<img src=\"data:image/svg+xml;base64,{}\" alt=\"{alt}\">",
@@ -84,17 +96,28 @@ impl Report {
                     } else {
                         format!("<pre>{}</pre>", escape(bundle.plain_text()))
                     };
-                    body.push_str(&format!("<figure>{img}<figcaption>{}</figcaption></figure>\n", escape(caption)));
+                    body.push_str(&format!(
+                        "<figure>{img}<figcaption>{}</figcaption></figure>\n",
+                        escape(caption)
+                    ));
                 }
                 ReportBlock::Table(t) => {
                     t.validate()?;
                     body.push_str(&t.to_html());
                 }
-                ReportBlock::Recipe(t) => body.push_str(&format!("<pre class=\"recipe\">{}</pre>\n", escape(t))),
+                ReportBlock::Recipe(t) => {
+                    body.push_str(&format!("<pre class=\"recipe\">{}</pre>\n", escape(t)))
+                }
                 ReportBlock::Provenance(items) => {
-                    body.push_str("<table class=\"provenance\">\n<caption>Provenance</caption>\n<tbody>\n");
+                    body.push_str(
+                        "<table class=\"provenance\">\n<caption>Provenance</caption>\n<tbody>\n",
+                    );
                     for (k, v) in items {
-                        body.push_str(&format!("<tr><th>{}</th><td>{}</td></tr>\n", escape(k), escape(v)));
+                        body.push_str(&format!(
+                            "<tr><th>{}</th><td>{}</td></tr>\n",
+                            escape(k),
+                            escape(v)
+                        ));
                     }
                     body.push_str("</tbody>\n</table>\n");
                 }
@@ -148,8 +171,11 @@ mod tests {
             .paragraph("The wind veers with height: warm advection <in the layer>.")
             .figure(png, "Thickness every 60 m")
             .table(table)
-            .recipe("thickness = layer(1000 hPa, 500 hPa)\n")
-            .provenance(vec![("input".into(), "synthetic/veltmar.nc".into()), ("version".into(), "0.1.0".into())])
+            .recipe("step 1: thickness of the 1000 to 500 hPa layer\n")
+            .provenance(vec![
+                ("input".into(), "synthetic/veltmar.nc".into()),
+                ("version".into(), "0.1.0".into()),
+            ])
     }
 
     #[test]
@@ -161,9 +187,13 @@ mod tests {
         assert!(html.contains("src=\"data:image/png;base64,iVBORw==\""));
         assert!(html.contains("alt=\"Map &lt;test&gt; of thickness\""));
         assert!(html.contains("<th>input</th><td>synthetic/veltmar.nc</td>"));
-        assert!(html.contains("<pre class=\"recipe\">thickness = layer(1000 hPa, 500 hPa)\n</pre>"));
+        assert!(html.contains(
+            "<pre class=\"recipe\">step 1: thickness of the 1000 to 500 hPa layer\n</pre>"
+        ));
         // Nothing is loaded from elsewhere.
-        assert!(!html.contains("http://") && !html.contains("https://") && !html.contains("<script"));
+        assert!(
+            !html.contains("http://") && !html.contains("https://") && !html.contains("<script")
+        );
     }
 
     #[test]
@@ -175,9 +205,56 @@ mod tests {
         let written = std::fs::read_to_string(&path).unwrap();
         assert!(written.starts_with("<!DOCTYPE html>") && written.contains(CAUTION));
         // Only the report remains: the temporary file was renamed, not left behind.
-        let names: Vec<_> = std::fs::read_dir(dir.path()).unwrap().map(|e| e.unwrap().file_name()).collect();
+        let names: Vec<_> = std::fs::read_dir(dir.path())
+            .unwrap()
+            .map(|e| e.unwrap().file_name())
+            .collect();
         assert_eq!(names.len(), 1);
-        let err = sample().write(&dir.path().join("no-such-dir").join("x.html")).unwrap_err().to_string();
+        let err = sample()
+            .write(&dir.path().join("no-such-dir").join("x.html"))
+            .unwrap_err()
+            .to_string();
         assert!(err.contains("no-such-dir"), "{err}");
+    }
+
+    #[test]
+    fn example_report_with_a_rendered_map_and_table() {
+        use crate::render::map::{render_map, ContourLayer, MapSpec, VectorLayer};
+        use crate::render::test_support::{check_dir, regional};
+        use crate::render::FigureSize;
+        let s = regional();
+        let map = render_map(
+            &MapSpec::new("Thickness and thermal wind (invented)", &s.lats, &s.lons)
+                .contour_lines(
+                    ContourLayer::new(s.thickness.view(), "1000-500 hPa thickness", "m")
+                        .every(60.0),
+                )
+                .vectors(VectorLayer::barbs(s.u.view(), s.v.view(), "thermal wind")),
+            &FigureSize::new(800, 520),
+        )
+        .unwrap();
+        let mut table = TableSpec::new(
+            "Thermal wind at two invented points",
+            vec![
+                Column::new("point", ""),
+                Column::new("u_T", "m s-1").decimals(1),
+            ],
+        );
+        table.push_row(vec!["Port Lessing".into(), 19.3.into()]);
+        table.push_row(vec!["Hallow Bank".into(), f64::NAN.into()]);
+        let report = Report::new("Veltmar front case study (invented)")
+            .paragraph("A synthetic case for checking the report layout.")
+            .figure(map, "Thickness every 60 m with thermal-wind barbs.")
+            .table(table)
+            .recipe("(recipe text as written by its author)\nthickness of the 1000 to 500 hPa layer\nmap of it with lines every 60 m\n")
+            .provenance(vec![("data".into(), "synthetic fields, no observations".into())]);
+        let path = check_dir().join("report.html");
+        report.write(&path).unwrap();
+        let html = std::fs::read_to_string(&path).unwrap();
+        assert!(html.contains("data:image/png;base64,") && html.contains(CAUTION));
+        assert!(
+            html.matches(CAUTION).count() == 2,
+            "at the top and at the foot"
+        );
     }
 }

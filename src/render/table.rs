@@ -20,7 +20,11 @@ pub struct Column {
 
 impl Column {
     pub fn new(name: impl Into<String>, units: impl Into<String>) -> Self {
-        Column { name: name.into(), units: units.into(), decimals: None }
+        Column {
+            name: name.into(),
+            units: units.into(),
+            decimals: None,
+        }
     }
     pub fn decimals(mut self, decimals: usize) -> Self {
         self.decimals = Some(decimals.min(12));
@@ -110,7 +114,12 @@ fn default_number(v: f64) -> String {
 
 impl TableSpec {
     pub fn new(title: impl Into<String>, columns: Vec<Column>) -> Self {
-        TableSpec { title: title.into(), columns, rows: Vec::new(), note: String::new() }
+        TableSpec {
+            title: title.into(),
+            columns,
+            rows: Vec::new(),
+            note: String::new(),
+        }
     }
 
     pub fn push_row(&mut self, row: Vec<Cell>) {
@@ -120,13 +129,21 @@ impl TableSpec {
     /// Every row must have one cell per column.
     pub fn validate(&self) -> Result<(), RenderError> {
         if self.columns.is_empty() {
-            return Err(RenderError::input(format!("table '{}'", self.title), "needs at least one column"));
+            return Err(RenderError::input(
+                format!("table '{}'", self.title),
+                "needs at least one column",
+            ));
         }
         for (i, row) in self.rows.iter().enumerate() {
             if row.len() != self.columns.len() {
                 return Err(RenderError::input(
                     format!("table '{}'", self.title),
-                    format!("row {} has {} cells but there are {} columns", i + 1, row.len(), self.columns.len()),
+                    format!(
+                        "row {} has {} cells but there are {} columns",
+                        i + 1,
+                        row.len(),
+                        self.columns.len()
+                    ),
                 ));
             }
         }
@@ -134,7 +151,9 @@ impl TableSpec {
     }
 
     fn numeric_column(&self, c: usize) -> bool {
-        self.rows.iter().all(|r| matches!(r[c], Cell::Number(_) | Cell::Missing))
+        self.rows
+            .iter()
+            .all(|r| matches!(r[c], Cell::Number(_) | Cell::Missing))
     }
 
     pub fn to_html(&self) -> String {
@@ -147,7 +166,11 @@ impl TableSpec {
             if c.units.trim().is_empty() {
                 out.push_str(&format!("<th>{}</th>", escape(&c.name)));
             } else {
-                out.push_str(&format!("<th>{} <span class=\"units\">({})</span></th>", escape(&c.name), escape(&c.units)));
+                out.push_str(&format!(
+                    "<th>{} <span class=\"units\">({})</span></th>",
+                    escape(&c.name),
+                    escape(&c.units)
+                ));
             }
         }
         out.push_str("</tr></thead>\n<tbody>\n");
@@ -162,13 +185,19 @@ impl TableSpec {
                 } else {
                     ""
                 };
-                out.push_str(&format!("<td{class}>{}</td>", escape(&cell.display(decimals))));
+                out.push_str(&format!(
+                    "<td{class}>{}</td>",
+                    escape(&cell.display(decimals))
+                ));
             }
             out.push_str("</tr>\n");
         }
         out.push_str("</tbody>\n</table>\n");
         if !self.note.is_empty() {
-            out.push_str(&format!("<p class=\"table-note\">{}</p>\n", escape(&self.note)));
+            out.push_str(&format!(
+                "<p class=\"table-note\">{}</p>\n",
+                escape(&self.note)
+            ));
         }
         out
     }
@@ -179,15 +208,33 @@ impl TableSpec {
         let cells: Vec<Vec<String>> = self
             .rows
             .iter()
-            .map(|r| r.iter().enumerate().map(|(i, c)| c.display(self.columns.get(i).and_then(|c| c.decimals))).collect())
+            .map(|r| {
+                r.iter()
+                    .enumerate()
+                    .map(|(i, c)| c.display(self.columns.get(i).and_then(|c| c.decimals)))
+                    .collect()
+            })
             .collect();
         let widths: Vec<usize> = (0..headers.len())
-            .map(|i| cells.iter().map(|r| r.get(i).map_or(0, |s| s.chars().count())).chain([headers[i].chars().count()]).max().unwrap_or(0))
+            .map(|i| {
+                cells
+                    .iter()
+                    .map(|r| r.get(i).map_or(0, |s| s.chars().count()))
+                    .chain([headers[i].chars().count()])
+                    .max()
+                    .unwrap_or(0)
+            })
             .collect();
-        let numeric: Vec<bool> = (0..headers.len()).map(|i| self.rows.iter().all(|r| r.len() == headers.len()) && self.numeric_column(i)).collect();
+        let numeric: Vec<bool> = (0..headers.len())
+            .map(|i| self.rows.iter().all(|r| r.len() == headers.len()) && self.numeric_column(i))
+            .collect();
         let pad = |s: &str, w: usize, right: bool| {
             let n = w.saturating_sub(s.chars().count());
-            if right { format!("{}{}", " ".repeat(n), s) } else { format!("{}{}", s, " ".repeat(n)) }
+            if right {
+                format!("{}{}", " ".repeat(n), s)
+            } else {
+                format!("{}{}", s, " ".repeat(n))
+            }
         };
         let mut out = String::new();
         if !self.title.is_empty() {
@@ -195,11 +242,23 @@ impl TableSpec {
             out.push('\n');
         }
         let line = |row: &[String]| -> String {
-            row.iter().enumerate().map(|(i, s)| pad(s, widths[i], numeric[i])).collect::<Vec<_>>().join("  ").trim_end().to_string()
+            row.iter()
+                .enumerate()
+                .map(|(i, s)| pad(s, widths[i], numeric[i]))
+                .collect::<Vec<_>>()
+                .join("  ")
+                .trim_end()
+                .to_string()
         };
         out.push_str(&line(&headers));
         out.push('\n');
-        out.push_str(&widths.iter().map(|w| "-".repeat(*w)).collect::<Vec<_>>().join("  "));
+        out.push_str(
+            &widths
+                .iter()
+                .map(|w| "-".repeat(*w))
+                .collect::<Vec<_>>()
+                .join("  "),
+        );
         out.push('\n');
         for r in &cells {
             out.push_str(&line(r));
@@ -223,7 +282,14 @@ impl TableSpec {
             }
         }
         let mut out = String::new();
-        out.push_str(&self.columns.iter().map(|c| field(&c.header())).collect::<Vec<_>>().join(","));
+        out.push_str(
+            &self
+                .columns
+                .iter()
+                .map(|c| field(&c.header()))
+                .collect::<Vec<_>>()
+                .join(","),
+        );
         out.push_str("\r\n");
         for row in &self.rows {
             let cells: Vec<String> = row
@@ -284,10 +350,18 @@ mod tests {
     fn sample() -> TableSpec {
         let mut t = TableSpec::new(
             "Thermal wind at points (invented)",
-            vec![Column::new("point", ""), Column::new("thickness", "m").decimals(0), Column::new("u_T", "m s-1").decimals(1)],
+            vec![
+                Column::new("point", ""),
+                Column::new("thickness", "m").decimals(0),
+                Column::new("u_T", "m s-1").decimals(1),
+            ],
         );
         t.push_row(vec!["Port Lessing".into(), 5460.4.into(), 19.32.into()]);
-        t.push_row(vec!["Cape \"Orrin\", north".into(), 5398.0.into(), Cell::Number(f64::NAN)]);
+        t.push_row(vec![
+            "Cape \"Orrin\", north".into(),
+            5398.0.into(),
+            Cell::Number(f64::NAN),
+        ]);
         t.note = "u_T from the thickness gradient.".into();
         t
     }
@@ -299,7 +373,11 @@ mod tests {
         assert!(html.contains("Cape &quot;Orrin&quot;, north"));
         assert!(html.contains("<td class=\"missing\">missing</td>"));
         assert!(html.contains("<td class=\"number\">19.3</td>"));
-        roxmltree::Document::parse(&html.replace("<p class=\"table-note\">u_T from the thickness gradient.</p>\n", "")).expect("well-formed");
+        roxmltree::Document::parse(&html.replace(
+            "<p class=\"table-note\">u_T from the thickness gradient.</p>\n",
+            "",
+        ))
+        .expect("well-formed");
     }
 
     #[test]
@@ -307,7 +385,10 @@ mod tests {
         let text = sample().to_text();
         let lines: Vec<&str> = text.lines().collect();
         // Widest first-column cell: `Cape "Orrin", north`, 19 characters.
-        assert_eq!(lines[1], format!("{:<19}  thickness (m)  u_T (m s-1)", "point"));
+        assert_eq!(
+            lines[1],
+            format!("{:<19}  thickness (m)  u_T (m s-1)", "point")
+        );
         // Numbers are right-aligned under their headers.
         assert!(lines[3].ends_with("   19.3"));
         assert!(lines[4].ends_with("missing"));
@@ -337,6 +418,9 @@ mod tests {
         let mut t = sample();
         t.push_row(vec![1.0.into()]);
         let err = t.to_bundle().unwrap_err().to_string();
-        assert!(err.contains("row 3 has 1 cells but there are 3 columns"), "{err}");
+        assert!(
+            err.contains("row 3 has 1 cells but there are 3 columns"),
+            "{err}"
+        );
     }
 }

@@ -46,9 +46,11 @@ pub(crate) fn synthetic(lats: Vec<f64>, lons: Vec<f64>) -> Synthetic {
         let f = 2.0 * OMEGA * lat.to_radians().sin();
         for j in 0..nx {
             let lon = lons[j];
-            let dzdy = (thickness_at(lat + h, lon) - thickness_at(lat - h, lon)) / (2.0 * h.to_radians() * RADIUS);
+            let dzdy = (thickness_at(lat + h, lon) - thickness_at(lat - h, lon))
+                / (2.0 * h.to_radians() * RADIUS);
             let coslat = lat.to_radians().cos().max(1e-6);
-            let dzdx = (thickness_at(lat, lon + h) - thickness_at(lat, lon - h)) / (2.0 * h.to_radians() * RADIUS * coslat);
+            let dzdx = (thickness_at(lat, lon + h) - thickness_at(lat, lon - h))
+                / (2.0 * h.to_radians() * RADIUS * coslat);
             if lat.abs() < 5.0 {
                 // Geostrophic balance is undefined near the equator: missing.
                 u[[i, j]] = f32::NAN;
@@ -58,10 +60,19 @@ pub(crate) fn synthetic(lats: Vec<f64>, lons: Vec<f64>) -> Synthetic {
                 v[[i, j]] = (G0 / f * dzdx) as f32;
             }
             let front = 48.0 + 7.0 * (5.0 * lon.to_radians()).sin();
-            signed[[i, j]] = (4.0 * (5.0 * lon.to_radians()).cos() * (-((lat.abs() - front) / 9.0).powi(2)).exp()) as f32;
+            signed[[i, j]] = (4.0
+                * (5.0 * lon.to_radians()).cos()
+                * (-((lat.abs() - front) / 9.0).powi(2)).exp()) as f32;
         }
     }
-    Synthetic { lats, lons, thickness, u, v, signed }
+    Synthetic {
+        lats,
+        lons,
+        thickness,
+        u,
+        v,
+        signed,
+    }
 }
 
 /// A regional grid over the fictional basin, latitudes north to south.

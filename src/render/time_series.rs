@@ -18,7 +18,10 @@ pub struct TimeSeries {
 
 impl TimeSeries {
     pub fn new(name: impl Into<String>, values: Vec<f64>) -> Self {
-        TimeSeries { name: name.into(), values }
+        TimeSeries {
+            name: name.into(),
+            values,
+        }
     }
 }
 
@@ -34,7 +37,10 @@ pub struct TimeSeriesSpec {
     pub caption: String,
 }
 
-pub fn render_time_series(spec: &TimeSeriesSpec, size: &FigureSize) -> Result<MimeBundle, RenderError> {
+pub fn render_time_series(
+    spec: &TimeSeriesSpec,
+    size: &FigureSize,
+) -> Result<MimeBundle, RenderError> {
     let prepared = PreparedTimeSeries::new(spec)?;
     bundle_of(&prepared, size)
 }
@@ -48,7 +54,10 @@ pub(crate) struct PreparedTimeSeries {
 impl PreparedTimeSeries {
     pub(crate) fn new(spec: &TimeSeriesSpec) -> Result<Self, RenderError> {
         if spec.times.is_empty() || spec.series.is_empty() {
-            return Err(RenderError::input("time series", "needs at least one time and one series"));
+            return Err(RenderError::input(
+                "time series",
+                "needs at least one time and one series",
+            ));
         }
         let mut lo = f64::INFINITY;
         let mut hi = f64::NEG_INFINITY;
@@ -56,7 +65,11 @@ impl PreparedTimeSeries {
             if s.values.len() != spec.times.len() {
                 return Err(RenderError::input(
                     format!("time series '{}'", s.name),
-                    format!("has {} values for {} times", s.values.len(), spec.times.len()),
+                    format!(
+                        "has {} values for {} times",
+                        s.values.len(),
+                        spec.times.len()
+                    ),
                 ));
             }
             for &v in &s.values {
@@ -66,18 +79,30 @@ impl PreparedTimeSeries {
                 }
             }
         }
-        let y_range = if lo.is_finite() { frame::nice_range(lo, hi, 6) } else { (0.0, 1.0) };
+        let y_range = if lo.is_finite() {
+            frame::nice_range(lo, hi, 6)
+        } else {
+            (0.0, 1.0)
+        };
         let description = format!(
             "Time series \"{}\": {} ({}) of {} at {} times from {} to {}.",
             spec.title,
             spec.quantity,
             spec.units,
-            spec.series.iter().map(|s| s.name.as_str()).collect::<Vec<_>>().join(", "),
+            spec.series
+                .iter()
+                .map(|s| s.name.as_str())
+                .collect::<Vec<_>>()
+                .join(", "),
             spec.times.len(),
             spec.times[0],
             spec.times[spec.times.len() - 1]
         );
-        Ok(PreparedTimeSeries { spec: spec.clone(), y_range, description })
+        Ok(PreparedTimeSeries {
+            spec: spec.clone(),
+            y_range,
+            description,
+        })
     }
 }
 
@@ -96,23 +121,53 @@ impl Drawable for PreparedTimeSeries {
         let rect = Rect::new(left, top, w - p.px(20.0), bottom);
         let n = self.spec.times.len();
         let pad = 0.5;
-        let x_axis = Axis { from: -pad, to: (n - 1) as f64 + pad, start_px: rect.left, end_px: rect.right, log: false };
-        let y_axis = Axis { from: self.y_range.0, to: self.y_range.1, start_px: rect.bottom, end_px: rect.top, log: false };
+        let x_axis = Axis {
+            from: -pad,
+            to: (n - 1) as f64 + pad,
+            start_px: rect.left,
+            end_px: rect.right,
+            log: false,
+        };
+        let y_axis = Axis {
+            from: self.y_range.0,
+            to: self.y_range.1,
+            start_px: rect.bottom,
+            end_px: rect.top,
+            log: false,
+        };
         // Label as many times as fit side by side.
-        let widest = self.spec.times.iter().map(|t| p.text_extent(t, TICK_SIZE).0).fold(0.0, f64::max) + p.px(10.0);
+        let widest = self
+            .spec
+            .times
+            .iter()
+            .map(|t| p.text_extent(t, TICK_SIZE).0)
+            .fold(0.0, f64::max)
+            + p.px(10.0);
         let slot = rect.width() / n as f64;
         let every = ((widest / slot).ceil() as usize).max(1);
-        let x_ticks: Vec<Tick> = (0..n).step_by(every).map(|i| Tick { value: i as f64, label: self.spec.times[i].clone() }).collect();
+        let x_ticks: Vec<Tick> = (0..n)
+            .step_by(every)
+            .map(|i| Tick {
+                value: i as f64,
+                label: self.spec.times[i].clone(),
+            })
+            .collect();
         p.fill_rect(rect, WHITE.rgba())?;
-        let y_title = if self.spec.units.is_empty() { self.spec.quantity.clone() } else { format!("{} ({})", self.spec.quantity, self.spec.units) };
-        frame::draw_axes(p, rect, &x_axis, &y_axis, &x_ticks, &y_ticks, "", &y_title, true)?;
+        let y_title = if self.spec.units.is_empty() {
+            self.spec.quantity.clone()
+        } else {
+            format!("{} ({})", self.spec.quantity, self.spec.units)
+        };
+        frame::draw_axes(
+            p, rect, &x_axis, &y_axis, &x_ticks, &y_ticks, "", &y_title, true,
+        )?;
         let mut entries = Vec::new();
         for (si, s) in self.spec.series.iter().enumerate() {
             let colour = series_colour(si);
             let mut run: Vec<Pt> = Vec::new();
             for (i, &v) in s.values.iter().enumerate() {
                 if v.is_finite() {
-                    let at = (x_axis.to_px(i as f64), y_axis.to_px(v));
+                    let at = (x_axis.position(i as f64), y_axis.position(v));
                     p.circle(at, 2.5, colour, true, 1.0)?;
                     run.push(at);
                 } else {
@@ -136,13 +191,21 @@ mod tests {
 
     #[test]
     fn time_series_renders_and_rejects_length_mismatch() {
-        let times: Vec<String> = (0..9).map(|i| format!("day {} {:02} UTC", 1 + i / 2, (i % 2) * 12)).collect();
+        let times: Vec<String> = (0..9)
+            .map(|i| format!("day {} {:02} UTC", 1 + i / 2, (i % 2) * 12))
+            .collect();
         let spec = TimeSeriesSpec {
             title: "Area-mean 1000-500 hPa thermal wind (invented)".into(),
             times: times.clone(),
             series: vec![
-                TimeSeries::new("Veltmar Basin", vec![12.0, 14.5, 17.0, 21.0, 24.5, 23.0, f64::NAN, 18.0, 15.5]),
-                TimeSeries::new("Orrin Shelf", vec![8.0, 8.5, 9.5, 11.0, 13.0, 15.0, 16.0, 15.0, 13.5]),
+                TimeSeries::new(
+                    "Veltmar Basin",
+                    vec![12.0, 14.5, 17.0, 21.0, 24.5, 23.0, f64::NAN, 18.0, 15.5],
+                ),
+                TimeSeries::new(
+                    "Orrin Shelf",
+                    vec![8.0, 8.5, 9.5, 11.0, 13.0, 15.0, 16.0, 15.0, 13.5],
+                ),
             ],
             quantity: "speed".into(),
             units: "m/s".into(),
@@ -151,9 +214,25 @@ mod tests {
         let bundle = render_time_series(&spec, &FigureSize::new(760, 420)).unwrap();
         roxmltree::Document::parse(bundle.text("image/svg+xml").unwrap()).unwrap();
         assert_eq!(decode_png(bundle.binary("image/png").unwrap()).0, 760);
-        assert!(bundle.plain_text().contains("9 times from day 1 00 UTC to day 5 00 UTC"), "{}", bundle.plain_text());
-        std::fs::write(check_dir().join("time-series.png"), bundle.binary("image/png").unwrap()).unwrap();
-        let bad = TimeSeriesSpec { times: times[..3].to_vec(), ..spec };
-        assert!(render_time_series(&bad, &FigureSize::default()).unwrap_err().to_string().contains("9 values for 3 times"));
+        assert!(
+            bundle
+                .plain_text()
+                .contains("9 times from day 1 00 UTC to day 5 00 UTC"),
+            "{}",
+            bundle.plain_text()
+        );
+        std::fs::write(
+            check_dir().join("time-series.png"),
+            bundle.binary("image/png").unwrap(),
+        )
+        .unwrap();
+        let bad = TimeSeriesSpec {
+            times: times[..3].to_vec(),
+            ..spec
+        };
+        assert!(render_time_series(&bad, &FigureSize::default())
+            .unwrap_err()
+            .to_string()
+            .contains("9 values for 3 times"));
     }
 }
