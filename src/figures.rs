@@ -85,3 +85,191 @@ pub fn vector_map_with(w: &VectorField, size: &FigureSize) -> Result<MimeBundle,
 pub fn vector_map(w: &VectorField) -> Option<MimeBundle> {
     vector_map_with(w, &FigureSize::default()).ok()
 }
+
+use crate::diagnostics::{point_values, Case, DiagnosticError};
+use crate::physics::advection::{implied_advection, ImpliedAdvection};
+use crate::physics::thermal_wind::turning_angle;
+use crate::render::hodograph::{render_hodograph, HodographPoint, HodographSpec};
+
+fn place(latitude: f64, longitude: f64) -> String {
+    format!("{} {}", crate::lang::eval::format_latitude(latitude), crate::lang::eval::format_longitude(longitude))
+}
+
+fn time_label(f: &Field) -> String {
+    f.times.as_ref().map(|t| t.labels()[0].clone()).unwrap_or_default()
+}
+
+/// Why a figure could not be made.
+#[derive(Debug, thiserror::Error)]
+pub enum FigureError {
+    #[error(transparent)]
+    Engine(#[from] DiagnosticError),
+    #[error(transparent)]
+    Render(#[from] RenderError),
+    #[error("{0}")]
+    Data(String),
+}
+
+/// Hodograph of the geostrophic (and analysed, when present) wind at a
+/// point, at the first time of the case: each level's wind joined in order,
+/// each layer's thermal wind the segment between its ends; the caption says
+/// whether the wind veers or backs from the lowest to the highest level and
+/// which advection that implies (hemisphere-aware).
+pub fn hodograph(case: &Case, latitude: f64, longitude: f64, size: &FigureSize) -> Result<MimeBundle, FigureError> {
+    let first = crate::io::Selection { times: Some(vec![case.selection.times.as_ref().and_then(|t| t.first().copied()).unwrap_or(0)]), ..case.selection.clone() };
+    let case = case.with_selection(first);
+    let (name, kind) = match (case.dataset.find_role(crate::io::Role::Geopotential), case.dataset.find_role(crate::io::Role::GeopotentialHeight)) {
+        (Some(v), _) => (v.name.clone(), crate::physics::geostrophic::GeopotentialKind::Geopotential),
+        (None, Some(v)) => (v.name.clone(), crate::physics::geostrophic::GeopotentialKind::Height),
+        _ => return Err(FigureError::Data("a hodograph needs geopotential or geopotential height on pressure levels".into())),
+    };
+    let z = case.field(&name)?;
+    let levels = z.levels.clone().ok_or_else(|| FigureError::Data(format!("`{name}` has no pressure levels")))?;
+    let wind = case.geostrophic_wind_of(&z, kind, "")?;
+    let u = point_values(&wind.eastward, latitude, longitude)?;
+    let v = point_values(&wind.northward, latitude, longitude)?;
+    let mut order: Vec<usize> = (0..levels.len()).collect();
+    order.sort_by(|&a, &b| levels[b].total_cmp(&levels[a]));
+    let geostrophic: Vec<HodographPoint> = order.iter().map(|&k| HodographPoint::new(levels[k], u[k] as f64, v[k] as f64)).filter(|p| p.u.is_finite() && p.v.is_finite()).collect();
+    let analysed = match (case.dataset.find_role(crate::io::Role::EastwardWind), case.dataset.find_role(crate::io::Role::NorthwardWind)) {
+        (Some(ue), Some(vn)) => {
+            let (ue, vn) = (ue.name.clone(), vn.name.clone());
+            let (uf, vf) = (case.field(&ue)?, case.field(&vn)?);
+            let (ua, va) = (point_values(&uf, latitude, longitude)?, point_values(&vf, latitude, longitude)?);
+            let wl = uf.levels.clone().unwrap_or_default();
+            let mut points: Vec<HodographPoint> = (0..wl.len()).map(|k| HodographPoint::new(wl[k], ua[k] as f64, va[k] as f64)).filter(|p| p.u.is_finite() && p.v.is_finite()).collect();
+            points.sort_by(|a, b| b.pressure.total_cmp(&a.pressure));
+            Some(points)
+        }
+        _ => None,
+    };
+    let caption = match (geostrophic.first(), geostrophic.last()) {
+        (Some(b), Some(t)) if geostrophic.len() > 1 => {
+            let angle = turning_angle(b.u as f32, b.v as f32, t.u as f32, t.v as f32) as f64;
+            let sense = if angle > 0.0 { "veers" } else { "backs" };
+            let advection = match implied_advection(angle, latitude) {
+                ImpliedAdvection::Warm => "warm advection",
+                ImpliedAdvection::Cold => "cold advection",
+                ImpliedAdvection::Neutral => "no advection",
+            };
+            format!(
+                "From {} to {} hPa the geostrophic wind {sense} by {:.0} degrees: {advection} in the layer ({} hemisphere).",
+                b.pressure / 100.0,
+                t.pressure / 100.0,
+                angle.abs(),
+                if latitude >= 0.0 { "northern" } else { "southern" }
+            )
+        }
+        _ => String::new(),
+    };
+    let spec = HodographSpec {
+        title: "Hodograph of the geostrophic wind".into(),
+        location: format!("{}  {}", place(latitude, longitude), time_label(&z)),
+        geostrophic,
+        analysed,
+        thermal_layers: Vec::new(),
+        caption,
+    };
+    Ok(render_hodograph(&spec, size)?)
+}
+
+/// Vertical profile at a point of one or more fields with levels.
+pub fn profile(fields: &[&Field], latitude: f64, longitude: f64, size: &FigureSize) -> Result<MimeBundle, FigureError> {
+    use crate::render::profile::{render_profile, ProfileSeries, ProfileSpec};
+    let mut series = Vec::new();
+    for f in fields {
+        let levels = f.levels.clone().ok_or_else(|| FigureError::Data(format!("`{}` has no pressure levels to draw a profile of", f.name)))?;
+        let values = point_values(f, latitude, longitude)?;
+        series.push(ProfileSeries::new(f.long_name.clone(), levels.clone(), values[..levels.len()].iter().map(|&v| v as f64).collect()));
+    }
+    let first = fields.first().ok_or_else(|| FigureError::Data("nothing to draw".into()))?;
+    let spec = ProfileSpec {
+        title: format!("Profile of {}", first.long_name),
+        subtitle: format!("{}  {}", place(latitude, longitude), time_label(first)),
+        quantity: first.long_name.clone(),
+        units: first.units.clone(),
+        series,
+        caption: String::new(),
+    };
+    Ok(render_profile(&spec, size)?)
+}
+
+/// Cross-section of a field with levels along the great circle between two
+/// points, against distance and log pressure; with a wind, the component
+/// normal to the section drawn as lines.
+pub fn section(field: &Field, wind: Option<&VectorField>, from: (f64, f64), to: (f64, f64), size: &FigureSize) -> Result<MimeBundle, FigureError> {
+    use crate::render::cross_section::{render_cross_section, CrossSectionSpec};
+    let levels = field.levels.clone().ok_or_else(|| FigureError::Data(format!("`{}` has no pressure levels to draw a section of", field.name)))?;
+    let n = 61;
+    let (p1, l1) = (from.0.to_radians(), from.1.to_radians());
+    let (p2, l2) = (to.0.to_radians(), to.1.to_radians());
+    // Great-circle interpolation (spherical linear interpolation of unit vectors).
+    let v1 = [p1.cos() * l1.cos(), p1.cos() * l1.sin(), p1.sin()];
+    let v2 = [p2.cos() * l2.cos(), p2.cos() * l2.sin(), p2.sin()];
+    let omega = (v1[0] * v2[0] + v1[1] * v2[1] + v1[2] * v2[2]).clamp(-1.0, 1.0).acos();
+    if omega < 1e-9 {
+        return Err(FigureError::Data("the two ends of the section are the same point".into()));
+    }
+    let radius = crate::constants::EARTH_RADIUS / 1000.0;
+    let mut points = Vec::new();
+    let mut distance = Vec::new();
+    for k in 0..n {
+        let t = k as f64 / (n - 1) as f64;
+        let (a, b) = (((1.0 - t) * omega).sin() / omega.sin(), (t * omega).sin() / omega.sin());
+        let v = [a * v1[0] + b * v2[0], a * v1[1] + b * v2[1], a * v1[2] + b * v2[2]];
+        points.push((v[2].atan2(v[0].hypot(v[1])).to_degrees(), v[1].atan2(v[0]).to_degrees()));
+        distance.push(t * omega * radius);
+    }
+    let mut values = ndarray::Array2::<f32>::from_elem((levels.len(), n), f32::NAN);
+    let mut normal = wind.map(|_| ndarray::Array2::<f32>::from_elem((levels.len(), n), f32::NAN));
+    for (i, &(lat, lon)) in points.iter().enumerate() {
+        let column = point_values(field, lat, lon)?;
+        for k in 0..levels.len() {
+            values[[k, i]] = column[k];
+        }
+        if let (Some(w), Some(nm)) = (wind, normal.as_mut()) {
+            // Unit normal to the section: the along-section direction turned
+            // 90 degrees to the left.
+            let (next_lat, next_lon) = points[(i + 1).min(n - 1)];
+            let (prev_lat, prev_lon) = points[i.saturating_sub(1)];
+            let dx = (next_lon - prev_lon).to_radians() * lat.to_radians().cos();
+            let dy = (next_lat - prev_lat).to_radians();
+            let norm = dx.hypot(dy).max(1e-12);
+            let (nx, ny) = (-dy / norm, dx / norm);
+            let u = point_values(&w.eastward, lat, lon)?;
+            let v = point_values(&w.northward, lat, lon)?;
+            for k in 0..levels.len().min(u.len()) {
+                nm[[k, i]] = (u[k] as f64 * nx + v[k] as f64 * ny) as f32;
+            }
+        }
+    }
+    let mut spec = CrossSectionSpec::new(format!("Section of {}", field.long_name), &distance, &levels, values.view(), field.long_name.clone(), field.units.clone());
+    spec.subtitle = time_label(field);
+    spec.start_label = place(from.0, from.1);
+    spec.end_label = place(to.0, to.1);
+    if let Some(nm) = &normal {
+        spec.normal_wind = Some(nm.view());
+        spec.caption = "Lines: wind component normal to the section (m/s, positive to the left looking along it).".into();
+    }
+    Ok(render_cross_section(&spec, size)?)
+}
+
+/// Time series of a table's first column (point values or area means).
+pub fn time_series(series: &crate::lang::value::Series, size: &FigureSize) -> Result<MimeBundle, FigureError> {
+    use crate::render::time_series::{render_time_series, TimeSeries, TimeSeriesSpec};
+    let column = series.columns.first().cloned().unwrap_or_default();
+    let (quantity, units) = match column.rsplit_once(" (") {
+        Some((q, u)) => (q.to_string(), u.trim_end_matches(')').to_string()),
+        None => (column.clone(), String::new()),
+    };
+    let spec = TimeSeriesSpec {
+        title: series.title.clone(),
+        subtitle: String::new(),
+        times: series.labels.clone(),
+        series: vec![TimeSeries::new(quantity.clone(), series.rows.iter().map(|r| r[0]).collect())],
+        quantity,
+        units,
+        caption: String::new(),
+    };
+    Ok(render_time_series(&spec, size)?)
+}

@@ -51,6 +51,12 @@ pub const NAMES: &[&str] = &[
     "coriolis",
     "recipes",
     "save_recipe",
+    "map",
+    "hodograph",
+    "profile",
+    "section",
+    "time_series",
+    "write_report",
 ];
 
 fn error(message: impl Into<String>, span: Span) -> Diagnostic {
@@ -426,6 +432,75 @@ pub fn call_builtin(
             args.count(0, "")?;
             Ok(Value::Text(super::recipe::library_listing(&evaluator.recipe_folders)))
         }
+        "map" => {
+            options.allow(name, &[])?;
+            if args.values.is_empty() || args.values.len() > 2 {
+                return Err(error("`map` takes a field to shade and, optionally, a vector field to draw on it", span).with_help("map(thickness(1000 hPa to 500 hPa), thermal_wind(1000 hPa to 500 hPa))"));
+            }
+            let figure = match ev.force_with(args.get(0).0.clone(), sel, args.get(0).1)? {
+                Value::Scalar(f) => {
+                    let w = match args.values.get(1) {
+                        Some((v, s)) => Some(vector(ev, v, *s, sel, name)?),
+                        None => None,
+                    };
+                    crate::figures::field_map_with(&f, w.as_deref(), &crate::render::FigureSize::default())
+                }
+                Value::Vector(w) => crate::figures::vector_map_with(&w, &crate::render::FigureSize::default()),
+                other => return Err(wrong(name, &other, args.get(0).1, "a scalar or vector field")),
+            };
+            figure.map(Value::Figure).map_err(|e| error(e.to_string(), span))
+        }
+        "hodograph" => {
+            options.allow(name, &[])?;
+            args.count(1, "point(51.5 north, 31 west)")?;
+            let (lat, lon) = point(&args, 0)?;
+            let case = case_of(ev, None)?;
+            crate::figures::hodograph(&case, lat, lon, &crate::render::FigureSize::new(640, 640)).map(Value::Figure).map_err(|e| error(e.to_string(), span))
+        }
+        "profile" => {
+            options.allow(name, &[])?;
+            if args.values.len() < 2 {
+                return Err(error("`profile` takes one or more fields with levels, then a point", span).with_help("profile(temperature, point(51.5 north, 31 west))"));
+            }
+            let last = args.values.len() - 1;
+            let (lat, lon) = point(&args, last)?;
+            let mut fields = Vec::new();
+            for (v, s) in &args.values[..last] {
+                fields.push(scalar(ev, v, *s, &Selection { times: Some(vec![selection.times.as_ref().and_then(|t| t.first().copied()).unwrap_or(0)]), ..selection.clone() }, name)?);
+            }
+            let refs: Vec<&Field> = fields.iter().map(|f| &**f).collect();
+            crate::figures::profile(&refs, lat, lon, &crate::render::FigureSize::new(520, 640)).map(Value::Figure).map_err(|e| error(e.to_string(), span))
+        }
+        "section" => {
+            options.allow(name, &[])?;
+            if args.values.len() != 3 && args.values.len() != 4 {
+                return Err(error("`section` takes a field with levels, optionally a wind, and two points", span).with_help("section(temperature, wind, point(40 north, 40 west), point(62 north, 20 west))"));
+            }
+            let first_time = Selection { times: Some(vec![selection.times.as_ref().and_then(|t| t.first().copied()).unwrap_or(0)]), ..selection.clone() };
+            let f = scalar(ev, &args.get(0).0, args.get(0).1, &first_time, name)?;
+            let n = args.values.len();
+            let w = if n == 4 { Some(vector(ev, &args.get(1).0, args.get(1).1, &first_time, name)?) } else { None };
+            let (a, b) = (point(&args, n - 2)?, point(&args, n - 1)?);
+            crate::figures::section(&f, w.as_deref(), a, b, &crate::render::FigureSize::new(900, 520)).map(Value::Figure).map_err(|e| error(e.to_string(), span))
+        }
+        "time_series" => {
+            options.allow(name, &[])?;
+            args.count(1, "thickness(1000 hPa to 500 hPa) at point(51.5 north, 31 west)")?;
+            match &args.get(0).0 {
+                Value::Series(s) => crate::figures::time_series(s, &crate::render::FigureSize::new(800, 420)).map(Value::Figure).map_err(|e| error(e.to_string(), span)),
+                other => Err(wrong(name, other, args.get(0).1, "a table over time, such as a field at a point or an area_mean")),
+            }
+        }
+        "write_report" => {
+            options.allow(name, &[])?;
+            args.count(1, "\"case-study.html\"")?;
+            let file = match &args.get(0).0 {
+                Value::Text(t) => evaluator.base_directory.join(t),
+                other => return Err(wrong(name, other, args.get(0).1, "a file name such as \"case-study.html\"")),
+            };
+            let path = super::recipe::write_session_report(evaluator, &file).map_err(|e| error(e, args.get(0).1))?;
+            Ok(Value::Text(format!("wrote the report to {}", path.display())))
+        }
         "save_recipe" => {
             options.allow(name, &[])?;
             args.count(1, "\"my-recipe\"")?;
@@ -455,6 +530,13 @@ fn angle(args: &Args, i: usize, axis: AngleAxis) -> Result<f64> {
     match v {
         Value::Angle { degrees, axis: a } if *a == axis => Ok(*degrees),
         _ => Err(wrong(args.name, v, *span, expected)),
+    }
+}
+
+fn point(args: &Args, i: usize) -> Result<(f64, f64)> {
+    match &args.get(i).0 {
+        Value::Point { latitude, longitude } => Ok((*latitude, *longitude)),
+        other => Err(wrong(args.name, other, args.get(i).1, "a point such as point(51.5 north, 31 west)")),
     }
 }
 

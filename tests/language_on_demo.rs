@@ -1,0 +1,180 @@
+//! The language end to end: scripts on the demo case give the engine's
+//! numbers, the field guide's check values come out through the language,
+//! recipes save, reload and run, and errors render with their carets.
+
+use std::path::{Path, PathBuf};
+use std::sync::{Arc, OnceLock};
+
+use baroc::diagnostics::{Case, Layer, ThicknessRoute};
+use baroc::grid::{Field, Grid, TimeAxis};
+use baroc::io::writer::{write_fields, WriteOptions};
+use baroc::io::Dataset;
+use baroc::lang::value::Value;
+use baroc::session::Session;
+
+fn directory() -> &'static PathBuf {
+    static DIR: OnceLock<PathBuf> = OnceLock::new();
+    DIR.get_or_init(|| {
+        let dir = std::env::temp_dir().join(format!("baroc-language-tests-{}", std::process::id()));
+        baroc::demo::write(&dir.join("baroc-demo")).expect("demo case writes");
+        dir
+    })
+}
+
+fn demo_file() -> PathBuf {
+    directory().join("baroc-demo").join(baroc::demo::FILE_NAME)
+}
+
+fn session() -> Session {
+    let mut s = Session::new();
+    s.evaluator_mut().base_directory = directory().clone();
+    s.evaluator_mut().recipe_folders = vec![directory().join("recipes")];
+    s.run(&format!("open \"{}\"", demo_file().display()), None).expect("opens");
+    s
+}
+
+fn value(session: &mut Session, code: &str) -> Value {
+    match session.run(code, None) {
+        Ok(_) => session.last_values.last().cloned().expect("a value"),
+        Err(e) => panic!("{code}\n{}", e.rendered),
+    }
+}
+
+fn scalar(v: Value) -> Arc<Field> {
+    match v {
+        Value::Scalar(f) => f,
+        _ => panic!("expected a scalar field, got {}", v.kind()),
+    }
+}
+
+fn number_at(v: Value) -> f64 {
+    match v {
+        Value::Series(s) => s.rows[0][0],
+        _ => panic!("expected a table, got {}", v.kind()),
+    }
+}
+
+#[test]
+fn scripts_give_the_engine_numbers() {
+    // The language is a thin layer: the same diagnostic through the language
+    // and through the engine's functions must agree exactly.
+    let case = Case::new(Arc::new(Dataset::open(&[demo_file()]).unwrap()));
+    let layer = Layer::new(100000.0, 50000.0).0;
+    let mut s = session();
+    let direct = case.thickness(layer, ThicknessRoute::Temperature).unwrap();
+    let through = scalar(value(&mut s, "thickness(1000 hPa to 500 hPa)"));
+    assert_eq!(direct.data, through.data);
+    let direct = case.thermal_wind(layer, ThicknessRoute::Geopotential).unwrap();
+    match value(&mut s, "thermal_wind(500 hPa to 1000 hPa) with route thickness") {
+        Value::Vector(w) => assert_eq!(w.eastward.data, direct.eastward.data),
+        other => panic!("{}", other.kind()),
+    }
+    let direct = case.layer_temperature_advection(layer).unwrap();
+    let through = scalar(value(&mut s, "temperature_advection(1000 hPa to 500 hPa)"));
+    assert_eq!(direct.data, through.data);
+    // Conversion: K s-1 to K/day multiplies by 86400.
+    let per_day = scalar(value(&mut s, "temperature_advection(1000 hPa to 500 hPa) as K/day"));
+    let (a, b) = (direct.data[[0, 0, 30, 50]] as f64 * 86400.0, per_day.data[[0, 0, 30, 50]] as f64);
+    assert!((a - b).abs() < 1e-3 * a.abs().max(1.0));
+}
+
+#[test]
+fn selections_read_only_what_is_asked() {
+    let mut s = session();
+    let f = scalar(value(&mut s, "temperature at 500 hPa in box(45 north to 55 north, 40 west to 20 west) at \"2026-10-14 12:00\""));
+    assert_eq!(f.data.shape(), &[1, 1, 14, 27]);
+    assert_eq!(f.times.as_ref().unwrap().labels(), vec!["2026-10-14T12:00:00".to_string()]);
+    let series = value(&mut s, "temperature over 850 hPa to 500 hPa at point(51.5 north, 31 west) at time(0)");
+    match series {
+        Value::Series(t) => assert_eq!(t.rows.len(), 4, "{:?}", t.labels), // 850, 700, 600, 500
+        other => panic!("{}", other.kind()),
+    }
+}
+
+/// Writes a one-time, two-dimensional-in-space dataset of temperature and
+/// geopotential height on standard levels, with the given profiles.
+fn synthetic(path: &Path, latitudes: Vec<f64>, temperature: impl Fn(f64, f64) -> f64, height: impl Fn(f64, f64) -> f64) {
+    let levels = vec![100000.0, 85000.0, 70000.0, 50000.0, 30000.0];
+    let grid = Arc::new(Grid::new(latitudes.clone(), (0..9).map(|i| -4.0 + i as f64).collect()));
+    let times = Some(TimeAxis { values: vec![0.0], units: "hours since 2026-10-01 00:00:00".into(), calendar: "standard".into() });
+    let shape = (1, levels.len(), latitudes.len(), 9);
+    let t = ndarray::Array4::from_shape_fn(shape, |(_, k, j, _)| temperature(levels[k], latitudes[j]) as f32);
+    let z = ndarray::Array4::from_shape_fn(shape, |(_, k, j, _)| height(levels[k], latitudes[j]) as f32);
+    let t = Field::new("t", "K", t, times.clone(), Some(levels.clone()), grid.clone()).unwrap().with_standard_name(Some("air_temperature"));
+    let z = Field::new("zg", "m", z, times, Some(levels), grid).unwrap().with_standard_name(Some("geopotential_height"));
+    write_fields(path, &[&t, &z], &WriteOptions::default()).unwrap();
+}
+
+fn scratch(name: &str) -> PathBuf {
+    directory().join(name)
+}
+
+#[test]
+fn field_guide_check_values_through_the_language() {
+    let lats: Vec<f64> = (0..41).map(|j| 43.0 + 0.1 * j as f64).collect();
+    let a = baroc::constants::EARTH_RADIUS;
+    // Thermal wind worked value (field guide, derived): at 45 N a layer-mean
+    // temperature falling 1 K per 100 km poleward over 1000-500 hPa gives
+    // u_T ~ 19.3 m/s westerly.
+    let falling = move |_: f64, lat: f64| 260.0 - 1.0e-5 * a * (lat - 45.0).to_radians();
+    // Geostrophic worked value (derived): at 45 N a height fall of 60 m per
+    // 500 km poleward gives u_g ~ 11.4 m/s.
+    let heights = move |p: f64, lat: f64| 5500.0 * (100000.0f64 / p).ln() - 60.0 / 5.0e5 * a * (lat - 45.0).to_radians();
+    let path = scratch("worked-values.nc");
+    synthetic(&path, lats.clone(), falling, heights);
+    let mut s = Session::new();
+    s.run(&format!("open \"{}\"", path.display()), None).unwrap();
+    let u_t = number_at(value(&mut s, "thermal_wind(1000 hPa to 500 hPa).eastward at point(45 north, 0 east)"));
+    assert!((u_t - 19.3).abs() < 0.05, "thermal wind {u_t}");
+    let u_g = number_at(value(&mut s, "geostrophic_wind(geopotential_height at 500 hPa).eastward at point(45 north, 0 east)"));
+    assert!((u_g - 11.4).abs() < 0.05, "geostrophic wind {u_g}");
+
+    // 20.3 m of 1000-500 hPa thickness per kelvin of layer mean (derived:
+    // Rd ln 2 / g0).
+    let warm = scratch("isothermal-261.nc");
+    let cold = scratch("isothermal-260.nc");
+    synthetic(&warm, lats.clone(), |_, _| 261.0, |_, _| 0.0);
+    synthetic(&cold, lats.clone(), |_, _| 260.0, |_, _| 0.0);
+    s.run(&format!("open \"{}\"\nlet warm = thickness(1000 hPa to 500 hPa)\nopen \"{}\"\nlet cold = thickness(1000 hPa to 500 hPa)", warm.display(), cold.display()), None).unwrap();
+    let per_kelvin = number_at(value(&mut s, "(warm - cold) at point(45 north, 0 east)"));
+    assert!((per_kelvin - 20.29).abs() < 0.02, "{per_kelvin}");
+
+    // U.S. Standard Atmosphere 1976: 500 hPa stands at about 5574 m and
+    // 1000 hPa at about 111 m (field guide, from memory), so the 1000-500 hPa
+    // thickness of its temperature profile is about 5463 m.
+    let standard = scratch("standard-atmosphere.nc");
+    synthetic(&standard, lats, |p, _| baroc::physics::standard_atmosphere::temperature_at_pressure(p).unwrap(), |_, _| 0.0);
+    s.run(&format!("open \"{}\"", standard.display()), None).unwrap();
+    let dz = number_at(value(&mut s, "thickness(1000 hPa to 500 hPa) at point(45 north, 0 east)"));
+    assert!((dz - (5574.0 - 111.0)).abs() < 5.0, "{dz}");
+}
+
+#[test]
+fn recipes_save_reload_and_run_like_functions() {
+    let mut s = session();
+    s.run("parameter layer = 1000 hPa to 700 hPa \"The layer\"\noutput shear = speed(thermal_wind(layer)) \"Thermal-wind speed\"", None).unwrap();
+    let first = scalar(value(&mut s, "shear"));
+    value(&mut s, "save_recipe(\"lower-shear\")");
+    let saved = std::fs::read_to_string(directory().join("recipes").join("lower-shear.baroc")).unwrap();
+    assert!(saved.contains("parameter layer = 1000 hPa to 700 hPa") && !saved.contains("open "), "{saved}");
+    // A new session loads it from the library and calls it.
+    let mut fresh = session();
+    let listing = value(&mut fresh, "recipes()");
+    assert!(matches!(&listing, Value::Text(t) if t.contains("lower_shear(layer)")));
+    let again = scalar(value(&mut fresh, "lower_shear()"));
+    assert_eq!(first.data, again.data);
+    let other_layer = scalar(value(&mut fresh, "lower_shear(850 hPa to 500 hPa)"));
+    assert_ne!(first.data, other_layer.data);
+}
+
+#[test]
+fn a_failed_cell_changes_nothing() {
+    let mut s = session();
+    s.run("let kept = 5 K", None).unwrap();
+    let err = s.run("let kept = 7 K\nlet broken = temperature + wind", None).unwrap_err();
+    assert!(err.rendered.contains('^'), "{}", err.rendered);
+    match value(&mut s, "kept") {
+        Value::Number { value, .. } => assert_eq!(value, 5.0),
+        other => panic!("{}", other.kind()),
+    }
+}
