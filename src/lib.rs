@@ -7,4 +7,5 @@
 //! of the language.
 
 pub mod constants;
+pub mod kernel;
 pub mod mime;
