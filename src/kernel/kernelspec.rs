@@ -197,6 +197,15 @@ fn write_atomically(path: &Path, bytes: &[u8]) -> Result<(), KernelspecError> {
     let dir = path.parent().unwrap_or_else(|| Path::new("."));
     let mut file = tempfile::NamedTempFile::new_in(dir).map_err(|error| failure(error.to_string()))?;
     file.write_all(bytes).map_err(|error| failure(error.to_string()))?;
+    // Temporary files start private (0600); a kernelspec is read by every
+    // user of a shared prefix, like files Jupyter itself installs (0644).
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        file.as_file()
+            .set_permissions(std::fs::Permissions::from_mode(0o644))
+            .map_err(|error| failure(error.to_string()))?;
+    }
     file.as_file().sync_all().map_err(|error| failure(error.to_string()))?;
     file.persist(path).map_err(|error| failure(error.error.to_string()))?;
     Ok(())
@@ -229,6 +238,12 @@ mod tests {
         }
         // No temporary files left behind.
         assert_eq!(std::fs::read_dir(&dir).unwrap().count(), 3);
+        #[cfg(unix)]
+        {
+            use std::os::unix::fs::PermissionsExt;
+            let mode = std::fs::metadata(dir.join("kernel.json")).unwrap().permissions().mode();
+            assert_eq!(mode & 0o777, 0o644);
+        }
 
         assert_eq!(uninstall_kernelspec(&location).unwrap(), Some(dir.clone()));
         assert!(!dir.exists());
