@@ -139,7 +139,7 @@ async fn serve_async(info: ConnectionInfo, session: Box<dyn KernelSession>) -> R
     ));
     kernel.publish(None, "status", json!({"execution_state": "starting"})).await;
 
-    let (queue_send, queue_recv) = mpsc::unbounded_channel();
+    let (queue_send, queue_recv) = mpsc::unbounded_channel::<Message>();
     let tasks = vec![
         tokio::spawn(heartbeat(hb_send, hb_recv)),
         tokio::spawn(drain_stdin(kernel.clone(), stdin_recv)),
@@ -407,55 +407,54 @@ async fn shell_reader(
 struct Shell {
     execution_count: u64,
     history: History,
+    queue: mpsc::UnboundedReceiver<Message>,
     /// Messages taken off the queue while aborting, to handle next.
     pending: std::collections::VecDeque<Message>,
 }
 
-async fn shell_processor(kernel: Arc<Kernel>, mut sender: RouterSender, mut queue: mpsc::UnboundedReceiver<Message>) {
+async fn shell_processor(kernel: Arc<Kernel>, mut sender: RouterSender, queue: mpsc::UnboundedReceiver<Message>) {
     let mut shell = Shell {
         execution_count: 0,
         history: History::default(),
+        queue,
         pending: Default::default(),
     };
     loop {
         let request = match shell.pending.pop_front() {
             Some(request) => request,
-            None => match queue.recv().await {
+            None => match shell.queue.recv().await {
                 Some(request) => request,
                 None => return,
             },
         };
         kernel.status(&request, "busy").await;
-        let failed_and_stop = handle_shell(&kernel, &mut shell, &mut sender, &request).await;
+        handle_shell(&kernel, &mut shell, &mut sender, &request).await;
         kernel.status(&request, "idle").await;
         if kernel.finish_if_shutting_down() {
             return;
         }
-        if failed_and_stop {
-            abort_queued(&kernel, &mut shell, &mut sender, &mut queue).await;
-        }
     }
 }
 
-/// After a failed cell with stop_on_error, the cells already queued behind
-/// it are not run: "Run all" stops at the first failure.
-async fn abort_queued(
-    kernel: &Kernel,
-    shell: &mut Shell,
-    sender: &mut RouterSender,
-    queue: &mut mpsc::UnboundedReceiver<Message>,
-) {
+/// After a failed cell with stop_on_error, the cells queued behind it are
+/// not run ("Run all" stops at the first failure). Only what arrived before
+/// the failure was answered counts as queued: called before the failed
+/// cell's reply goes out, so a client that sends after seeing the error
+/// never has its request skipped. Returns the skipped requests.
+async fn take_queued_cells(shell: &mut Shell) -> Vec<Message> {
     // Give the reader a turn to queue what has already arrived.
     tokio::task::yield_now().await;
-    while let Ok(request) = queue.try_recv() {
+    while let Ok(request) = shell.queue.try_recv() {
         shell.pending.push_back(request);
     }
-    let mut kept = std::collections::VecDeque::new();
-    for request in shell.pending.drain(..) {
-        if request.msg_type() != "execute_request" {
-            kept.push_back(request);
-            continue;
-        }
+    let (cells, others): (Vec<Message>, Vec<Message>) =
+        shell.pending.drain(..).partition(|request| request.msg_type() == "execute_request");
+    shell.pending = others.into();
+    cells
+}
+
+async fn skip_cells(kernel: &Kernel, shell: &Shell, sender: &mut RouterSender, cells: Vec<Message>) {
+    for request in cells {
         kernel.status(&request, "busy").await;
         // An error reply, as protocol 5.1 and later prefer over "aborted".
         let content = json!({
@@ -468,16 +467,14 @@ async fn abort_queued(
         kernel.reply(sender, &request, "execute_reply", content).await;
         kernel.status(&request, "idle").await;
     }
-    shell.pending = kept;
 }
 
-/// Handle one shell request; true when it was a cell that failed with
-/// stop_on_error set.
-async fn handle_shell(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSender, request: &Message) -> bool {
+/// Handle one shell request.
+async fn handle_shell(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSender, request: &Message) {
     let content = &request.content;
     let code = content.get("code").and_then(Value::as_str).unwrap_or("").to_string();
     match request.msg_type() {
-        "execute_request" => return execute(kernel, shell, sender, request).await,
+        "execute_request" => execute(kernel, shell, sender, request).await,
         "complete_request" => {
             let cursor = cursor_position(content, &code);
             let answer = kernel
@@ -548,7 +545,6 @@ async fn handle_shell(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSen
             }
         }
     }
-    false
 }
 
 fn request_code(request: &Message) -> String {
@@ -609,7 +605,7 @@ fn failure_reply(failure: CallFailure) -> Value {
     json!({"status": "error", "ename": error.ename, "evalue": error.evalue, "traceback": error.traceback})
 }
 
-async fn execute(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSender, request: &Message) -> bool {
+async fn execute(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSender, request: &Message) {
     let content = &request.content;
     let code = request_code(request);
     let silent = content.get("silent").and_then(Value::as_bool).unwrap_or(false);
@@ -674,8 +670,14 @@ async fn execute(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSender, 
             })
         }
     };
+    // A silent request (a front end's own query) failing stops nothing.
+    let skipped = if outcome.error.is_some() && stop_on_error && !silent {
+        take_queued_cells(shell).await
+    } else {
+        Vec::new()
+    };
     kernel.reply(sender, request, "execute_reply", reply).await;
-    outcome.error.is_some() && stop_on_error
+    skip_cells(kernel, shell, sender, skipped).await;
 }
 
 async fn run_cell(kernel: &Kernel, code: String) -> ExecuteOutcome {
