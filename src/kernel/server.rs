@@ -82,6 +82,7 @@ struct Kernel {
 }
 
 async fn serve_async(info: ConnectionInfo, session: Box<dyn KernelSession>) -> Result<(), KernelFailure> {
+    let sigint = SigintListener::install();
     // Static facts are read once, so kernel_info never waits for a busy cell.
     let facts = Facts {
         language_info: session.language_info(),
@@ -146,7 +147,7 @@ async fn serve_async(info: ConnectionInfo, session: Box<dyn KernelSession>) -> R
         tokio::spawn(control_loop(kernel.clone(), control_send, control_recv)),
         tokio::spawn(shell_reader(kernel.clone(), shell_send.clone(), shell_recv, queue_send)),
         tokio::spawn(shell_processor(kernel.clone(), shell_send, queue_recv)),
-        tokio::spawn(interrupt_on_sigint(kernel.clone())),
+        tokio::spawn(interrupt_on_sigint(kernel.clone(), sigint)),
     ];
 
     kernel.shutdown.notified().await;
@@ -330,21 +331,53 @@ async fn drain_stdin(kernel: Arc<Kernel>, mut receiver: RouterReceiver) {
     }
 }
 
-async fn interrupt_on_sigint(kernel: Arc<Kernel>) {
-    // Once a handler is installed, SIGINT (Ctrl-C in the terminal, or a
-    // manager that signals) no longer ends the process; it interrupts the
-    // running cell like an interrupt_request.
-    loop {
-        match tokio::signal::ctrl_c().await {
-            Ok(()) => {
-                log("SIGINT received: interrupting the running cell");
-                kernel.interrupt();
-            }
-            Err(error) => {
-                log(format!("cannot handle SIGINT ({error}); it will end the kernel"));
-                return;
+/// SIGINT turned into an interrupt. Installed first thing, so from then on
+/// SIGINT (Ctrl-C in a terminal, or a manager that signals) never ends the
+/// process; it interrupts the running cell like an interrupt_request.
+struct SigintListener {
+    #[cfg(unix)]
+    signal: tokio::signal::unix::Signal,
+}
+
+impl SigintListener {
+    fn install() -> Option<Self> {
+        #[cfg(unix)]
+        {
+            use tokio::signal::unix::{signal, SignalKind};
+            match signal(SignalKind::interrupt()) {
+                Ok(signal) => Some(Self { signal }),
+                Err(error) => {
+                    log(format!("cannot handle SIGINT ({error}); it will end the kernel"));
+                    None
+                }
             }
         }
+        #[cfg(not(unix))]
+        {
+            Some(Self {})
+        }
+    }
+
+    /// Wait for the next SIGINT; false when no more can arrive.
+    async fn next(&mut self) -> bool {
+        #[cfg(unix)]
+        {
+            self.signal.recv().await.is_some()
+        }
+        #[cfg(not(unix))]
+        {
+            tokio::signal::ctrl_c().await.is_ok()
+        }
+    }
+}
+
+async fn interrupt_on_sigint(kernel: Arc<Kernel>, listener: Option<SigintListener>) {
+    let Some(mut listener) = listener else {
+        return;
+    };
+    while listener.next().await {
+        log("SIGINT received: interrupting the running cell");
+        kernel.interrupt();
     }
 }
 
