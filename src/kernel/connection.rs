@@ -121,7 +121,7 @@ impl ConnectionInfo {
     }
 
     /// The ZeroMQ endpoint of one channel, e.g. "tcp://127.0.0.1:5555" or,
-    /// for ipc, "ipc://<ip>-<port>" (the naming Jupyter's manager uses).
+    /// for ipc, `ipc://IP-PORT` (the naming Jupyter's manager uses).
     pub fn endpoint(&self, channel: Channel) -> String {
         let port = self.port(channel);
         match self.transport {

@@ -67,7 +67,10 @@ impl RouterSender {
 
 /// A PUB socket (iopub): every subscriber whose prefix matches the first
 /// frame gets a copy; with no subscriber the message is dropped, as in
-/// any ZeroMQ publisher.
+/// any ZeroMQ publisher. A subscriber that stops reading loses messages
+/// once its queue is full instead of holding up the kernel (the crate's
+/// 0.7 series queues per subscriber; 0.6 awaited each one in turn, which
+/// let one stuck client freeze every publish).
 pub struct Publisher {
     inner: zeromq::PubSocket,
 }

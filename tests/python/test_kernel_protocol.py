@@ -164,6 +164,25 @@ def test_user_install_goes_where_jupyter_core_looks(tmp_path, request, monkeypat
     assert not expected.exists()
 
 
+def test_ipc_transport(tmp_path):
+    # Connection files may name transport "ipc": endpoints are ipc://IP-PORT.
+    km = KernelManager(kernel_name="baroc", transport="ipc")
+    km.ip = str(tmp_path / "kernel")
+    km.start_kernel()
+    kc = km.client()
+    kc.start_channels()
+    try:
+        kc.wait_for_ready(timeout=30)
+        reply, published = run(kc, "20+22")
+        assert reply["content"]["status"] == "ok"
+        assert [m for m in published if m["msg_type"] == "execute_result"][0]["content"]["data"] == {
+            "text/plain": "42"
+        }
+    finally:
+        kc.stop_channels()
+        km.shutdown_kernel(now=True)
+
+
 # ---------------------------------------------------------------- kernel info and status
 
 
@@ -475,6 +494,31 @@ def test_bad_signature_is_dropped_logged_and_the_kernel_keeps_serving(own_kernel
     text = log.read_text()
     assert "dropped a message on shell: signature does not match" in text
     assert "replayed" in text
+
+
+def test_a_subscriber_that_never_reads_does_not_stall_the_kernel(kernel, kc):
+    # ZeroMQ PUB semantics: messages for a slow subscriber are dropped
+    # rather than holding up the publisher (ZeroMQ guide, "high-water marks").
+    km, _ = kernel
+    info = km.get_connection_info()
+    stuck = zmq.Context.instance().socket(zmq.SUB)
+    stuck.linger = 0
+    stuck.rcvhwm = 1
+    stuck.setsockopt(zmq.RCVBUF, 4096)
+    stuck.setsockopt(zmq.SUBSCRIBE, b"")
+    stuck.connect(f"tcp://{info['ip']}:{info['iopub_port']}")
+    try:
+        time.sleep(0.3)
+        line = "print " + "w" * 4000
+        started = time.monotonic()
+        reply, published = run(kc, "\n".join([line] * 3000), )
+        assert reply["content"]["status"] == "ok"
+        assert sum(1 for m in published if m["msg_type"] == "stream") == 3000
+        reply, _ = run(kc, "1+2")
+        assert reply["content"]["status"] == "ok"
+        assert time.monotonic() - started < 20
+    finally:
+        stuck.close()
 
 
 # ---------------------------------------------------------------- restart and shutdown
