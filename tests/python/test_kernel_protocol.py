@@ -409,6 +409,24 @@ def test_interrupt_stops_a_long_cell_within_a_second(kernel, kc):
     assert km.is_alive()
 
 
+def test_control_and_heartbeat_answer_while_a_cell_runs(kernel, kc):
+    km, _ = kernel
+    msg_id = kc.execute("sleep 60")
+    time.sleep(0.3)
+    try:
+        started = time.monotonic()
+        request = kc.session.msg("kernel_info_request", {})
+        kc.control_channel.send(request)
+        reply = kc.get_control_msg(timeout=5)
+        assert reply["parent_header"]["msg_id"] == request["header"]["msg_id"]
+        assert reply["content"]["implementation"] == "baroc"
+        assert time.monotonic() - started < 0.5
+        assert kc.hb_channel.is_beating()
+    finally:
+        km.interrupt_kernel()
+        assert shell_reply(kc, msg_id, timeout=5)["content"]["ename"] == "Interrupted"
+
+
 def test_interrupt_request_on_shell_is_answered_at_once(kc):
     msg_id = kc.execute("sleep 60")
     time.sleep(0.3)
