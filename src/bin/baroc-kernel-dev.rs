@@ -22,11 +22,13 @@ use std::process::ExitCode;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::{Duration, Instant};
 
-use baroc::kernel::kernelspec::{install_kernelspec, uninstall_kernelspec, KernelspecLocation, DEFAULT_DISPLAY_NAME};
+use baroc::kernel::kernelspec::{
+    install_kernelspec, uninstall_kernelspec, KernelspecLocation, DEFAULT_DISPLAY_NAME,
+};
 use baroc::kernel::session::byte_offset;
 use baroc::kernel::{
-    run_kernel, Completion, ExecuteOutcome, IsComplete, KernelError, KernelSession, LanguageInfo, Output,
-    StreamName,
+    run_kernel, Completion, ExecuteOutcome, IsComplete, KernelError, KernelSession, LanguageInfo,
+    Output, StreamName,
 };
 use baroc::mime::MimeBundle;
 use clap::{Args, Parser, Subcommand};
@@ -87,9 +89,13 @@ fn main() -> ExitCode {
     let cli = Cli::parse();
     let result = match cli.command {
         Command::Kernel { connection_file } => {
-            run_kernel(&connection_file, || Box::new(ToySession::default())).map_err(|error| error.to_string())
+            run_kernel(&connection_file, || Box::new(ToySession::default()))
+                .map_err(|error| error.to_string())
         }
-        Command::Install { location, display_name } => install_kernelspec(&location.location(), &display_name)
+        Command::Install {
+            location,
+            display_name,
+        } => install_kernelspec(&location.location(), &display_name)
             .map(|dir| println!("installed the kernelspec in {}", dir.display()))
             .map_err(|error| error.to_string()),
         Command::Uninstall { location } => match uninstall_kernelspec(&location.location()) {
@@ -169,8 +175,14 @@ impl KernelSession for ToySession {
     fn inspect(&self, code: &str, cursor_pos: usize, detail_level: u8) -> Option<MimeBundle> {
         let at = byte_offset(code, cursor_pos);
         let is_word = |c: char| c.is_alphanumeric() || c == '_';
-        let start = code[..at].rfind(|c: char| !is_word(c)).map(|i| i + 1).unwrap_or(0);
-        let end = code[at..].find(|c: char| !is_word(c)).map(|i| at + i).unwrap_or(code.len());
+        let start = code[..at]
+            .rfind(|c: char| !is_word(c))
+            .map(|i| i + 1)
+            .unwrap_or(0);
+        let end = code[at..]
+            .find(|c: char| !is_word(c))
+            .map(|i| at + i)
+            .unwrap_or(code.len());
         let word = &code[start..end];
         let text = match word {
             "print" => "print TEXT: writes TEXT to standard output".to_string(),
@@ -180,7 +192,11 @@ impl KernelSession for ToySession {
             "panic" => "panic: makes the session panic".to_string(),
             name => format!("{name} = {}", self.names.get(name)?),
         };
-        let text = if detail_level > 0 { format!("{text}\n(toy session)") } else { text };
+        let text = if detail_level > 0 {
+            format!("{text}\n(toy session)")
+        } else {
+            text
+        };
         Some(MimeBundle::plain(text))
     }
 
@@ -198,11 +214,15 @@ impl KernelSession for ToySession {
         }
         let trimmed = code.trim_end();
         if depth > 0 || trimmed.ends_with(['+', '-', '*', '/', '%', '=']) {
-            return IsComplete::Incomplete { indent: "  ".to_string() };
+            return IsComplete::Incomplete {
+                indent: "  ".to_string(),
+            };
         }
         if code.lines().any(|line| {
             let line = line.trim();
-            !line.is_empty() && !starts_with_keyword(line) && line.chars().any(|c| "$#@!?;{}[]".contains(c))
+            !line.is_empty()
+                && !starts_with_keyword(line)
+                && line.chars().any(|c| "$#@!?;{}[]".contains(c))
         }) {
             return IsComplete::Invalid;
         }
@@ -265,7 +285,11 @@ impl ToySession {
         };
         match word {
             "print" | "eprint" => {
-                let name = if word == "print" { StreamName::Stdout } else { StreamName::Stderr };
+                let name = if word == "print" {
+                    StreamName::Stdout
+                } else {
+                    StreamName::Stderr
+                };
                 outputs.push(Output::Stream {
                     name,
                     text: format!("{rest}\n"),
@@ -273,11 +297,15 @@ impl ToySession {
                 Ok(None)
             }
             "sleep" => {
-                let seconds: f64 = rest.parse().ok().filter(|s: &f64| s.is_finite() && *s >= 0.0).ok_or(Failure {
-                    kind: "ToySyntaxError",
-                    message: format!("sleep needs a number of seconds, found \"{rest}\""),
-                    column: statement.len() - rest.len(),
-                })?;
+                let seconds: f64 = rest
+                    .parse()
+                    .ok()
+                    .filter(|s: &f64| s.is_finite() && *s >= 0.0)
+                    .ok_or(Failure {
+                        kind: "ToySyntaxError",
+                        message: format!("sleep needs a number of seconds, found \"{rest}\""),
+                        column: statement.len() - rest.len(),
+                    })?;
                 let deadline = Instant::now() + Duration::from_secs_f64(seconds.min(86_400.0));
                 while Instant::now() < deadline {
                     if interrupt.load(Ordering::SeqCst) {
@@ -351,7 +379,9 @@ impl<'a> Evaluator<'a> {
         let value = self.expression()?;
         self.skip_spaces();
         if let Some(c) = self.peek() {
-            return Err(self.syntax(format!("unexpected \"{c}\"; expected an operator or the end of the line")));
+            return Err(self.syntax(format!(
+                "unexpected \"{c}\"; expected an operator or the end of the line"
+            )));
         }
         Ok(value)
     }
@@ -410,10 +440,16 @@ impl<'a> Evaluator<'a> {
             self.position += 1;
             let right = self.factor()?;
             value = match operator {
-                '*' => value.checked_mul(right).ok_or_else(|| self.arithmetic("integer overflow", at))?,
+                '*' => value
+                    .checked_mul(right)
+                    .ok_or_else(|| self.arithmetic("integer overflow", at))?,
                 _ if right == 0 => return Err(self.arithmetic("division by zero", at)),
-                '/' => value.checked_div(right).ok_or_else(|| self.arithmetic("integer overflow", at))?,
-                _ => value.checked_rem(right).ok_or_else(|| self.arithmetic("integer overflow", at))?,
+                '/' => value
+                    .checked_div(right)
+                    .ok_or_else(|| self.arithmetic("integer overflow", at))?,
+                _ => value
+                    .checked_rem(right)
+                    .ok_or_else(|| self.arithmetic("integer overflow", at))?,
             };
         }
     }
@@ -425,7 +461,9 @@ impl<'a> Evaluator<'a> {
             Some('-') => {
                 self.position += 1;
                 let value = self.factor()?;
-                value.checked_neg().ok_or_else(|| self.arithmetic("integer overflow", start))
+                value
+                    .checked_neg()
+                    .ok_or_else(|| self.arithmetic("integer overflow", start))
             }
             Some('(') => {
                 self.position += 1;
@@ -441,11 +479,13 @@ impl<'a> Evaluator<'a> {
                 while self.peek().is_some_and(|c| c.is_ascii_digit()) {
                     self.position += 1;
                 }
-                self.text[start..self.position].parse().map_err(|_| Failure {
-                    kind: "ToyArithmeticError",
-                    message: "integer too large".to_string(),
-                    column: self.offset + start,
-                })
+                self.text[start..self.position]
+                    .parse()
+                    .map_err(|_| Failure {
+                        kind: "ToyArithmeticError",
+                        message: "integer too large".to_string(),
+                        column: self.offset + start,
+                    })
             }
             Some(c) if c.is_alphabetic() || c == '_' => {
                 while self.peek().is_some_and(|c| c.is_alphanumeric() || c == '_') {
@@ -458,7 +498,9 @@ impl<'a> Evaluator<'a> {
                     column: self.offset + start,
                 })
             }
-            Some(c) => Err(self.syntax(format!("unexpected \"{c}\"; expected a number, a name or \"(\""))),
+            Some(c) => Err(self.syntax(format!(
+                "unexpected \"{c}\"; expected a number, a name or \"(\""
+            ))),
             None => Err(self.syntax("the expression ends too early".to_string())),
         }
     }

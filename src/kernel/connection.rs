@@ -71,10 +71,11 @@ fn default_scheme() -> String {
 impl ConnectionInfo {
     /// Read and check a connection file.
     pub fn from_file(path: &Path) -> Result<Self, KernelFailure> {
-        let text = std::fs::read_to_string(path).map_err(|error| KernelFailure::ConnectionFile {
-            path: path.to_path_buf(),
-            reason: format!("cannot read it: {error}"),
-        })?;
+        let text =
+            std::fs::read_to_string(path).map_err(|error| KernelFailure::ConnectionFile {
+                path: path.to_path_buf(),
+                reason: format!("cannot read it: {error}"),
+            })?;
         Self::parse(&text).map_err(|reason| KernelFailure::ConnectionFile {
             path: path.to_path_buf(),
             reason,

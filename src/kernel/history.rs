@@ -24,27 +24,49 @@ pub struct HistoryEntry {
 /// What a history_request asks for.
 #[derive(Debug, Clone, PartialEq, Eq)]
 pub enum HistoryQuery {
-    Range { session: i64, start: u64, stop: Option<u64> },
-    Tail { n: Option<usize> },
-    Search { pattern: String, unique: bool, n: Option<usize> },
+    Range {
+        session: i64,
+        start: u64,
+        stop: Option<u64>,
+    },
+    Tail {
+        n: Option<usize>,
+    },
+    Search {
+        pattern: String,
+        unique: bool,
+        n: Option<usize>,
+    },
 }
 
 impl HistoryQuery {
     /// Read a query from history_request content; `Err` says what is wrong.
     pub fn from_content(content: &Value) -> Result<Self, String> {
-        let access = content.get("hist_access_type").and_then(Value::as_str).unwrap_or("tail");
+        let access = content
+            .get("hist_access_type")
+            .and_then(Value::as_str)
+            .unwrap_or("tail");
         let count = |key: &str| content.get(key).and_then(Value::as_i64);
         let n = count("n").and_then(|n| usize::try_from(n).ok());
         match access {
             "range" => Ok(HistoryQuery::Range {
                 session: count("session").unwrap_or(0),
-                start: count("start").and_then(|s| u64::try_from(s).ok()).unwrap_or(0),
+                start: count("start")
+                    .and_then(|s| u64::try_from(s).ok())
+                    .unwrap_or(0),
                 stop: count("stop").and_then(|s| u64::try_from(s).ok()),
             }),
             "tail" => Ok(HistoryQuery::Tail { n }),
             "search" => Ok(HistoryQuery::Search {
-                pattern: content.get("pattern").and_then(Value::as_str).unwrap_or("*").to_string(),
-                unique: content.get("unique").and_then(Value::as_bool).unwrap_or(false),
+                pattern: content
+                    .get("pattern")
+                    .and_then(Value::as_str)
+                    .unwrap_or("*")
+                    .to_string(),
+                unique: content
+                    .get("unique")
+                    .and_then(Value::as_bool)
+                    .unwrap_or(false),
                 n,
             }),
             other => Err(format!(
@@ -79,7 +101,11 @@ impl History {
     /// Entries answering `query`, oldest first.
     pub fn query(&self, query: &HistoryQuery) -> Vec<&HistoryEntry> {
         match query {
-            HistoryQuery::Range { session, start, stop } => {
+            HistoryQuery::Range {
+                session,
+                start,
+                stop,
+            } => {
                 // Session 0 means "this session"; negative ones are earlier
                 // sessions, which a fresh process does not have.
                 if *session != 0 && *session != CURRENT_SESSION {
@@ -87,13 +113,18 @@ impl History {
                 }
                 self.entries
                     .iter()
-                    .filter(|entry| entry.line >= *start && stop.is_none_or(|stop| entry.line < stop))
+                    .filter(|entry| {
+                        entry.line >= *start && stop.is_none_or(|stop| entry.line < stop)
+                    })
                     .collect()
             }
             HistoryQuery::Tail { n } => last(self.entries.iter().collect(), *n),
             HistoryQuery::Search { pattern, unique, n } => {
-                let matching: Vec<&HistoryEntry> =
-                    self.entries.iter().filter(|entry| glob_match(pattern, &entry.input)).collect();
+                let matching: Vec<&HistoryEntry> = self
+                    .entries
+                    .iter()
+                    .filter(|entry| glob_match(pattern, &entry.input))
+                    .collect();
                 let matching = if *unique {
                     // Keep the most recent of each distinct input.
                     let mut kept: Vec<&HistoryEntry> = Vec::new();
@@ -259,13 +290,31 @@ mod tests {
     #[test]
     fn tail_range_and_search() {
         let history = sample();
-        assert_eq!(lines(history.query(&HistoryQuery::Tail { n: Some(2) })), [3, 4]);
-        assert_eq!(lines(history.query(&HistoryQuery::Tail { n: None })), [1, 2, 3, 4]);
-        let range = HistoryQuery::Range { session: CURRENT_SESSION, start: 2, stop: Some(4) };
+        assert_eq!(
+            lines(history.query(&HistoryQuery::Tail { n: Some(2) })),
+            [3, 4]
+        );
+        assert_eq!(
+            lines(history.query(&HistoryQuery::Tail { n: None })),
+            [1, 2, 3, 4]
+        );
+        let range = HistoryQuery::Range {
+            session: CURRENT_SESSION,
+            start: 2,
+            stop: Some(4),
+        };
         assert_eq!(lines(history.query(&range)), [2, 3]);
-        let earlier = HistoryQuery::Range { session: -1, start: 0, stop: None };
+        let earlier = HistoryQuery::Range {
+            session: -1,
+            start: 0,
+            stop: None,
+        };
         assert!(history.query(&earlier).is_empty());
-        let search = |unique, n| HistoryQuery::Search { pattern: "1?2*".into(), unique, n };
+        let search = |unique, n| HistoryQuery::Search {
+            pattern: "1?2*".into(),
+            unique,
+            n,
+        };
         assert_eq!(lines(history.query(&search(false, None))), [1, 3]);
         assert_eq!(lines(history.query(&search(true, None))), [3]);
         assert_eq!(lines(history.query(&search(false, Some(1)))), [3]);
@@ -283,8 +332,13 @@ mod tests {
     #[test]
     fn query_from_content_reports_unknown_access() {
         let bad = json!({"hist_access_type": "everything"});
-        assert!(HistoryQuery::from_content(&bad).unwrap_err().contains("range"));
+        assert!(HistoryQuery::from_content(&bad)
+            .unwrap_err()
+            .contains("range"));
         let tail = json!({"hist_access_type": "tail", "n": 3});
-        assert_eq!(HistoryQuery::from_content(&tail), Ok(HistoryQuery::Tail { n: Some(3) }));
+        assert_eq!(
+            HistoryQuery::from_content(&tail),
+            Ok(HistoryQuery::Tail { n: Some(3) })
+        );
     }
 }

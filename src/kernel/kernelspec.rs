@@ -79,7 +79,9 @@ fn non_empty_env(name: &str) -> Option<String> {
 
 fn home_dir() -> Result<PathBuf, KernelspecError> {
     let name = if cfg!(windows) { "USERPROFILE" } else { "HOME" };
-    non_empty_env(name).map(PathBuf::from).ok_or(KernelspecError::NoHome)
+    non_empty_env(name)
+        .map(PathBuf::from)
+        .ok_or(KernelspecError::NoHome)
 }
 
 fn sys_prefix() -> Result<PathBuf, KernelspecError> {
@@ -90,7 +92,10 @@ fn sys_prefix() -> Result<PathBuf, KernelspecError> {
     }
     let mut failures = Vec::new();
     for python in ["python3", "python"] {
-        match Command::new(python).args(["-c", "import sys; print(sys.prefix)"]).output() {
+        match Command::new(python)
+            .args(["-c", "import sys; print(sys.prefix)"])
+            .output()
+        {
             Ok(output) if output.status.success() => {
                 let prefix = String::from_utf8_lossy(&output.stdout).trim().to_string();
                 if !prefix.is_empty() {
@@ -110,7 +115,9 @@ pub fn kernels_dir(location: &KernelspecLocation) -> Result<PathBuf, KernelspecE
     Ok(match location {
         KernelspecLocation::User => jupyter_data_dir()?.join("kernels"),
         KernelspecLocation::Prefix(prefix) => prefix.join("share").join("jupyter").join("kernels"),
-        KernelspecLocation::SysPrefix => sys_prefix()?.join("share").join("jupyter").join("kernels"),
+        KernelspecLocation::SysPrefix => {
+            sys_prefix()?.join("share").join("jupyter").join("kernels")
+        }
     })
 }
 
@@ -134,8 +141,12 @@ pub fn kernel_json(executable: &Path, display_name: &str) -> Value {
 }
 
 /// Install the kernelspec for the running program; returns its folder.
-pub fn install_kernelspec(location: &KernelspecLocation, display_name: &str) -> Result<PathBuf, KernelspecError> {
-    let executable = std::env::current_exe().map_err(|error| KernelspecError::NoExecutable(error.to_string()))?;
+pub fn install_kernelspec(
+    location: &KernelspecLocation,
+    display_name: &str,
+) -> Result<PathBuf, KernelspecError> {
+    let executable = std::env::current_exe()
+        .map_err(|error| KernelspecError::NoExecutable(error.to_string()))?;
     install_kernelspec_for(location, display_name, &executable)
 }
 
@@ -152,7 +163,8 @@ pub fn install_kernelspec_for(
         path: dir.clone(),
         reason: error.to_string(),
     })?;
-    let spec = serde_json::to_vec_pretty(&kernel_json(executable, display_name)).unwrap_or_default();
+    let spec =
+        serde_json::to_vec_pretty(&kernel_json(executable, display_name)).unwrap_or_default();
     write_atomically(&dir.join("kernel.json"), &spec)?;
     for size in [32u32, 64] {
         let path = dir.join(format!("logo-{size}x{size}.png"));
@@ -166,7 +178,9 @@ pub fn install_kernelspec_for(
 }
 
 /// Remove the kernelspec from `location`; `Ok(None)` when none was there.
-pub fn uninstall_kernelspec(location: &KernelspecLocation) -> Result<Option<PathBuf>, KernelspecError> {
+pub fn uninstall_kernelspec(
+    location: &KernelspecLocation,
+) -> Result<Option<PathBuf>, KernelspecError> {
     let dir = kernelspec_dir(location)?;
     if !dir.join("kernel.json").exists() {
         return Ok(None);
@@ -195,8 +209,10 @@ fn write_atomically(path: &Path, bytes: &[u8]) -> Result<(), KernelspecError> {
         reason,
     };
     let dir = path.parent().unwrap_or_else(|| Path::new("."));
-    let mut file = tempfile::NamedTempFile::new_in(dir).map_err(|error| failure(error.to_string()))?;
-    file.write_all(bytes).map_err(|error| failure(error.to_string()))?;
+    let mut file =
+        tempfile::NamedTempFile::new_in(dir).map_err(|error| failure(error.to_string()))?;
+    file.write_all(bytes)
+        .map_err(|error| failure(error.to_string()))?;
     // Temporary files start private (0600); a kernelspec is read by every
     // user of a shared prefix, like files Jupyter itself installs (0644).
     #[cfg(unix)]
@@ -206,8 +222,11 @@ fn write_atomically(path: &Path, bytes: &[u8]) -> Result<(), KernelspecError> {
             .set_permissions(std::fs::Permissions::from_mode(0o644))
             .map_err(|error| failure(error.to_string()))?;
     }
-    file.as_file().sync_all().map_err(|error| failure(error.to_string()))?;
-    file.persist(path).map_err(|error| failure(error.error.to_string()))?;
+    file.as_file()
+        .sync_all()
+        .map_err(|error| failure(error.to_string()))?;
+    file.persist(path)
+        .map_err(|error| failure(error.error.to_string()))?;
     Ok(())
 }
 
@@ -223,10 +242,16 @@ mod tests {
         let dir = install_kernelspec_for(&location, "Baroc (test)", exe).unwrap();
         // Layout Jupyter searches: <prefix>/share/jupyter/kernels/<name>/kernel.json.
         assert_eq!(dir, prefix.path().join("share/jupyter/kernels/baroc"));
-        let spec: Value = serde_json::from_slice(&std::fs::read(dir.join("kernel.json")).unwrap()).unwrap();
+        let spec: Value =
+            serde_json::from_slice(&std::fs::read(dir.join("kernel.json")).unwrap()).unwrap();
         assert_eq!(
             spec["argv"],
-            json!(["/opt/tools/bin/baroc", "kernel", "--connection-file", "{connection_file}"])
+            json!([
+                "/opt/tools/bin/baroc",
+                "kernel",
+                "--connection-file",
+                "{connection_file}"
+            ])
         );
         assert_eq!(spec["display_name"], "Baroc (test)");
         assert_eq!(spec["language"], "baroc");
@@ -241,7 +266,10 @@ mod tests {
         #[cfg(unix)]
         {
             use std::os::unix::fs::PermissionsExt;
-            let mode = std::fs::metadata(dir.join("kernel.json")).unwrap().permissions().mode();
+            let mode = std::fs::metadata(dir.join("kernel.json"))
+                .unwrap()
+                .permissions()
+                .mode();
             assert_eq!(mode & 0o777, 0o644);
         }
 

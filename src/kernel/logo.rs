@@ -33,7 +33,10 @@ fn arrows() -> [Arrow; 2] {
     // Veering of the high arrow: 30 degrees above east, length 0.62.
     let angle = 30f32.to_radians();
     let high_tail = (0.20, 0.40);
-    let high_tip = (high_tail.0 + 0.62 * angle.cos(), high_tail.1 - 0.62 * angle.sin());
+    let high_tip = (
+        high_tail.0 + 0.62 * angle.cos(),
+        high_tail.1 - 0.62 * angle.sin(),
+    );
     [
         Arrow {
             tail: (0.20, 0.72),
@@ -74,9 +77,25 @@ fn sample(x: f32, y: f32) -> [f32; 4] {
 
 fn inside_rounded_square(x: f32, y: f32, margin: f32, radius: f32) -> bool {
     let (low, high) = (margin + radius, 1.0 - margin - radius);
-    let dx = if x < low { low - x } else if x > high { x - high } else { 0.0 };
-    let dy = if y < low { low - y } else if y > high { y - high } else { 0.0 };
-    x >= margin && x <= 1.0 - margin && y >= margin && y <= 1.0 - margin && dx * dx + dy * dy <= radius * radius
+    let dx = if x < low {
+        low - x
+    } else if x > high {
+        x - high
+    } else {
+        0.0
+    };
+    let dy = if y < low {
+        low - y
+    } else if y > high {
+        y - high
+    } else {
+        0.0
+    };
+    x >= margin
+        && x <= 1.0 - margin
+        && y >= margin
+        && y <= 1.0 - margin
+        && dx * dx + dy * dy <= radius * radius
 }
 
 fn arrow_contains(arrow: &Arrow, x: f32, y: f32) -> bool {
@@ -214,11 +233,20 @@ mod tests {
         let (_, pixels) = decode(&logo_png(size).unwrap());
         // Middle of the low arrow's shaft, (0.40, 0.72) in unit coordinates.
         let low = pixel(&pixels, size, 25, 46);
-        assert!(low[2] > 230 && low[0] < 190, "low arrow is pale blue: {low:?}");
+        assert!(
+            low[2] > 230 && low[0] < 190,
+            "low arrow is pale blue: {low:?}"
+        );
         // On the high arrow's shaft, 0.3 along it from the tail.
-        let (x, y) = (0.20 + 0.3 * 30f32.to_radians().cos(), 0.40 - 0.3 * 30f32.to_radians().sin());
+        let (x, y) = (
+            0.20 + 0.3 * 30f32.to_radians().cos(),
+            0.40 - 0.3 * 30f32.to_radians().sin(),
+        );
         let high = pixel(&pixels, size, (x * 64.0) as u32, (y * 64.0) as u32);
-        assert!(high[0] > 230 && high[2] < 120, "high arrow is amber: {high:?}");
+        assert!(
+            high[0] > 230 && high[2] < 120,
+            "high arrow is amber: {high:?}"
+        );
         // Plain tile near the bottom right: opaque and dark.
         let tile = pixel(&pixels, size, 52, 56);
         assert_eq!(tile[3], 255);

@@ -37,10 +37,13 @@ use serde_json::{Map, Value};
 use crate::mime::{MimeBundle, MimeData};
 
 pub use connection::ConnectionInfo;
-pub use kernelspec::{install_kernelspec, uninstall_kernelspec, KernelspecError, KernelspecLocation};
+pub use kernelspec::{
+    install_kernelspec, uninstall_kernelspec, KernelspecError, KernelspecLocation,
+};
 pub use server::{run_kernel, serve};
 pub use session::{
-    Completion, ExecuteOutcome, HelpLink, IsComplete, KernelError, KernelSession, LanguageInfo, Output, StreamName,
+    Completion, ExecuteOutcome, HelpLink, IsComplete, KernelError, KernelSession, LanguageInfo,
+    Output, StreamName,
 };
 
 /// Why the kernel could not start or had to stop.
@@ -78,7 +81,9 @@ pub fn mime_bundle_to_json(bundle: &MimeBundle) -> Value {
                 serde_json::from_str(text).unwrap_or_else(|_| Value::String(text.clone()))
             }
             MimeData::Text(text) => Value::String(text.clone()),
-            MimeData::Binary(bytes) => Value::String(base64::engine::general_purpose::STANDARD.encode(bytes)),
+            MimeData::Binary(bytes) => {
+                Value::String(base64::engine::general_purpose::STANDARD.encode(bytes))
+            }
         };
         data.insert(mime.clone(), value);
     }

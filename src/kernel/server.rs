@@ -81,7 +81,10 @@ struct Kernel {
     shutting_down: AtomicBool,
 }
 
-async fn serve_async(info: ConnectionInfo, session: Box<dyn KernelSession>) -> Result<(), KernelFailure> {
+async fn serve_async(
+    info: ConnectionInfo,
+    session: Box<dyn KernelSession>,
+) -> Result<(), KernelFailure> {
     let sigint = SigintListener::install();
     // Static facts are read once, so kernel_info never waits for a busy cell.
     let facts = Facts {
@@ -114,7 +117,8 @@ async fn serve_async(info: ConnectionInfo, session: Box<dyn KernelSession>) -> R
         .await
         .map_err(bind_error(Channel::Stdin, endpoint(Channel::Stdin)))?;
 
-    let worker = Worker::start(session).map_err(|error| KernelFailure::Runtime(error.to_string()))?;
+    let worker =
+        Worker::start(session).map_err(|error| KernelFailure::Runtime(error.to_string()))?;
     let auth = Authenticator::new(&info.key);
     if !auth.signs() {
         log("the connection file has an empty key: messages are neither signed nor checked");
@@ -138,14 +142,21 @@ async fn serve_async(info: ConnectionInfo, session: Box<dyn KernelSession>) -> R
         kernel.info.endpoint(Channel::Stdin),
         kernel.info.endpoint(Channel::Heartbeat),
     ));
-    kernel.publish(None, "status", json!({"execution_state": "starting"})).await;
+    kernel
+        .publish(None, "status", json!({"execution_state": "starting"}))
+        .await;
 
     let (queue_send, queue_recv) = mpsc::unbounded_channel::<Message>();
     let tasks = vec![
         tokio::spawn(heartbeat(hb_send, hb_recv)),
         tokio::spawn(drain_stdin(kernel.clone(), stdin_recv)),
         tokio::spawn(control_loop(kernel.clone(), control_send, control_recv)),
-        tokio::spawn(shell_reader(kernel.clone(), shell_send.clone(), shell_recv, queue_send)),
+        tokio::spawn(shell_reader(
+            kernel.clone(),
+            shell_send.clone(),
+            shell_recv,
+            queue_send,
+        )),
         tokio::spawn(shell_processor(kernel.clone(), shell_send, queue_recv)),
         tokio::spawn(interrupt_on_sigint(kernel.clone(), sigint)),
     ];
@@ -165,18 +176,29 @@ impl Kernel {
     async fn publish(&self, parent: Option<&Message>, msg_type: &str, content: Value) {
         let topic = format!("kernel.{}.{msg_type}", self.session_id).into_bytes();
         let header = Header::new(msg_type, &self.session_id);
-        let parent_header = parent.map(Message::header_value).unwrap_or_else(|| json!({}));
-        let frames = self.auth.encode(&[topic], &header, &parent_header, &json!({}), &content);
+        let parent_header = parent
+            .map(Message::header_value)
+            .unwrap_or_else(|| json!({}));
+        let frames = self
+            .auth
+            .encode(&[topic], &header, &parent_header, &json!({}), &content);
         if let Err(error) = self.iopub.lock().await.send(frames).await {
             log(format!("cannot publish {msg_type} on iopub: {error}"));
         }
     }
 
     async fn status(&self, parent: &Message, state: &str) {
-        self.publish(Some(parent), "status", json!({"execution_state": state})).await;
+        self.publish(Some(parent), "status", json!({"execution_state": state}))
+            .await;
     }
 
-    async fn reply(&self, sender: &mut RouterSender, request: &Message, msg_type: &str, content: Value) {
+    async fn reply(
+        &self,
+        sender: &mut RouterSender,
+        request: &Message,
+        msg_type: &str,
+        content: Value,
+    ) {
         let header = Header::new(msg_type, &self.session_id);
         let frames = self.auth.encode(
             &request.identities,
@@ -231,12 +253,18 @@ impl Kernel {
     async fn handle_common(&self, sender: &mut RouterSender, request: &Message) -> bool {
         match request.msg_type() {
             "kernel_info_request" => {
-                self.reply(sender, request, "kernel_info_reply", self.kernel_info_content())
-                    .await
+                self.reply(
+                    sender,
+                    request,
+                    "kernel_info_reply",
+                    self.kernel_info_content(),
+                )
+                .await
             }
             "interrupt_request" => {
                 self.interrupt();
-                self.reply(sender, request, "interrupt_reply", json!({"status": "ok"})).await;
+                self.reply(sender, request, "interrupt_reply", json!({"status": "ok"}))
+                    .await;
             }
             "connect_request" => {
                 let content = json!({
@@ -250,9 +278,14 @@ impl Kernel {
                 self.reply(sender, request, "connect_reply", content).await;
             }
             "shutdown_request" => {
-                let restart = request.content.get("restart").and_then(Value::as_bool).unwrap_or(false);
+                let restart = request
+                    .content
+                    .get("restart")
+                    .and_then(Value::as_bool)
+                    .unwrap_or(false);
                 let content = json!({"status": "ok", "restart": restart});
-                self.reply(sender, request, "shutdown_reply", content.clone()).await;
+                self.reply(sender, request, "shutdown_reply", content.clone())
+                    .await;
                 // Also on iopub, so every client learns the kernel is going.
                 self.publish(Some(request), "shutdown_reply", content).await;
                 self.shutting_down.store(true, Ordering::SeqCst);
@@ -275,9 +308,13 @@ impl Kernel {
                     "evalue": format!("the Baroc kernel does not handle {msg_type} on the {} channel", channel.name()),
                     "traceback": [],
                 });
-                self.reply(sender, request, &format!("{stem}_reply"), content).await;
+                self.reply(sender, request, &format!("{stem}_reply"), content)
+                    .await;
             }
-            None => log(format!("ignored a {msg_type} message on {}", channel.name())),
+            None => log(format!(
+                "ignored a {msg_type} message on {}",
+                channel.name()
+            )),
         }
     }
 
@@ -323,7 +360,10 @@ async fn drain_stdin(kernel: Arc<Kernel>, mut receiver: RouterReceiver) {
         match receiver.recv().await {
             Ok(frames) => {
                 if let Some(message) = accept(&kernel, Channel::Stdin, frames) {
-                    log(format!("ignored a {} message on stdin: no input was asked for", message.msg_type()));
+                    log(format!(
+                        "ignored a {} message on stdin: no input was asked for",
+                        message.msg_type()
+                    ));
                 }
             }
             Err(_) => tokio::time::sleep(ERROR_BACKOFF).await,
@@ -347,7 +387,9 @@ impl SigintListener {
             match signal(SignalKind::interrupt()) {
                 Ok(signal) => Some(Self { signal }),
                 Err(error) => {
-                    log(format!("cannot handle SIGINT ({error}); it will end the kernel"));
+                    log(format!(
+                        "cannot handle SIGINT ({error}); it will end the kernel"
+                    ));
                     None
                 }
             }
@@ -445,7 +487,11 @@ struct Shell {
     pending: std::collections::VecDeque<Message>,
 }
 
-async fn shell_processor(kernel: Arc<Kernel>, mut sender: RouterSender, queue: mpsc::UnboundedReceiver<Message>) {
+async fn shell_processor(
+    kernel: Arc<Kernel>,
+    mut sender: RouterSender,
+    queue: mpsc::UnboundedReceiver<Message>,
+) {
     let mut shell = Shell {
         execution_count: 0,
         history: History::default(),
@@ -480,13 +526,20 @@ async fn take_queued_cells(shell: &mut Shell) -> Vec<Message> {
     while let Ok(request) = shell.queue.try_recv() {
         shell.pending.push_back(request);
     }
-    let (cells, others): (Vec<Message>, Vec<Message>) =
-        shell.pending.drain(..).partition(|request| request.msg_type() == "execute_request");
+    let (cells, others): (Vec<Message>, Vec<Message>) = shell
+        .pending
+        .drain(..)
+        .partition(|request| request.msg_type() == "execute_request");
     shell.pending = others.into();
     cells
 }
 
-async fn skip_cells(kernel: &Kernel, shell: &Shell, sender: &mut RouterSender, cells: Vec<Message>) {
+async fn skip_cells(
+    kernel: &Kernel,
+    shell: &Shell,
+    sender: &mut RouterSender,
+    cells: Vec<Message>,
+) {
     for request in cells {
         kernel.status(&request, "busy").await;
         // An error reply, as protocol 5.1 and later prefer over "aborted".
@@ -497,15 +550,26 @@ async fn skip_cells(kernel: &Kernel, shell: &Shell, sender: &mut RouterSender, c
             "traceback": [],
             "execution_count": shell.execution_count,
         });
-        kernel.reply(sender, &request, "execute_reply", content).await;
+        kernel
+            .reply(sender, &request, "execute_reply", content)
+            .await;
         kernel.status(&request, "idle").await;
     }
 }
 
 /// Handle one shell request.
-async fn handle_shell(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSender, request: &Message) {
+async fn handle_shell(
+    kernel: &Kernel,
+    shell: &mut Shell,
+    sender: &mut RouterSender,
+    request: &Message,
+) {
     let content = &request.content;
-    let code = content.get("code").and_then(Value::as_str).unwrap_or("").to_string();
+    let code = content
+        .get("code")
+        .and_then(Value::as_str)
+        .unwrap_or("")
+        .to_string();
     match request.msg_type() {
         "execute_request" => execute(kernel, shell, sender, request).await,
         "complete_request" => {
@@ -515,14 +579,20 @@ async fn handle_shell(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSen
                 .run(move |session| session.complete(&code, cursor))
                 .await;
             let reply = match answer {
-                Ok(completion) => complete_content(completion, codepoint_len(&request_code(request))),
+                Ok(completion) => {
+                    complete_content(completion, codepoint_len(&request_code(request)))
+                }
                 Err(failure) => failure_reply(failure),
             };
             kernel.reply(sender, request, "complete_reply", reply).await;
         }
         "inspect_request" => {
             let cursor = cursor_position(content, &code);
-            let detail = content.get("detail_level").and_then(Value::as_u64).unwrap_or(0).min(255) as u8;
+            let detail = content
+                .get("detail_level")
+                .and_then(Value::as_u64)
+                .unwrap_or(0)
+                .min(255) as u8;
             let answer = kernel
                 .worker
                 .run(move |session| session.inspect(&code, cursor, detail))
@@ -537,20 +607,30 @@ async fn handle_shell(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSen
             kernel.reply(sender, request, "inspect_reply", reply).await;
         }
         "is_complete_request" => {
-            let answer = kernel.worker.run(move |session| session.is_complete(&code)).await;
+            let answer = kernel
+                .worker
+                .run(move |session| session.is_complete(&code))
+                .await;
             let reply = match answer {
                 Ok(IsComplete::Complete) => json!({"status": "complete"}),
-                Ok(IsComplete::Incomplete { indent }) => json!({"status": "incomplete", "indent": indent}),
+                Ok(IsComplete::Incomplete { indent }) => {
+                    json!({"status": "incomplete", "indent": indent})
+                }
                 Ok(IsComplete::Invalid) => json!({"status": "invalid"}),
                 Ok(IsComplete::Unknown) => json!({"status": "unknown"}),
                 Err(failure) => failure_reply(failure),
             };
-            kernel.reply(sender, request, "is_complete_reply", reply).await;
+            kernel
+                .reply(sender, request, "is_complete_reply", reply)
+                .await;
         }
         "history_request" => {
             let reply = match HistoryQuery::from_content(content) {
                 Ok(query) => {
-                    let output = content.get("output").and_then(Value::as_bool).unwrap_or(false);
+                    let output = content
+                        .get("output")
+                        .and_then(Value::as_bool)
+                        .unwrap_or(false);
                     json!({"status": "ok", "history": shell.history.reply_entries(&query, output)})
                 }
                 Err(reason) => json!({
@@ -561,14 +641,23 @@ async fn handle_shell(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSen
         }
         "comm_info_request" => {
             kernel
-                .reply(sender, request, "comm_info_reply", json!({"status": "ok", "comms": {}}))
+                .reply(
+                    sender,
+                    request,
+                    "comm_info_reply",
+                    json!({"status": "ok", "comms": {}}),
+                )
                 .await;
         }
         "comm_open" => {
             // No comm targets exist; closing tells the front end so at once.
             let comm_id = content.get("comm_id").cloned().unwrap_or(Value::Null);
             kernel
-                .publish(Some(request), "comm_close", json!({"comm_id": comm_id, "data": {}}))
+                .publish(
+                    Some(request),
+                    "comm_close",
+                    json!({"comm_id": comm_id, "data": {}}),
+                )
                 .await;
         }
         "comm_msg" | "comm_close" => {}
@@ -581,7 +670,12 @@ async fn handle_shell(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSen
 }
 
 fn request_code(request: &Message) -> String {
-    request.content.get("code").and_then(Value::as_str).unwrap_or("").to_string()
+    request
+        .content
+        .get("code")
+        .and_then(Value::as_str)
+        .unwrap_or("")
+        .to_string()
 }
 
 /// The request's cursor, in code points, clamped to the code's length
@@ -628,7 +722,10 @@ fn failure_error(failure: CallFailure) -> KernelError {
         CallFailure::WorkerGone => KernelError::new(
             "InternalError",
             "the Baroc session is no longer running; restart the kernel",
-            vec!["InternalError: the Baroc session is no longer running; restart the kernel".to_string()],
+            vec![
+                "InternalError: the Baroc session is no longer running; restart the kernel"
+                    .to_string(),
+            ],
         ),
     }
 }
@@ -641,17 +738,31 @@ fn failure_reply(failure: CallFailure) -> Value {
 async fn execute(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSender, request: &Message) {
     let content = &request.content;
     let code = request_code(request);
-    let silent = content.get("silent").and_then(Value::as_bool).unwrap_or(false);
+    let silent = content
+        .get("silent")
+        .and_then(Value::as_bool)
+        .unwrap_or(false);
     // The protocol: store_history defaults to true and is forced off by silent.
-    let store_history = !silent && content.get("store_history").and_then(Value::as_bool).unwrap_or(true);
-    let stop_on_error = content.get("stop_on_error").and_then(Value::as_bool).unwrap_or(true);
+    let store_history = !silent
+        && content
+            .get("store_history")
+            .and_then(Value::as_bool)
+            .unwrap_or(true);
+    let stop_on_error = content
+        .get("stop_on_error")
+        .and_then(Value::as_bool)
+        .unwrap_or(true);
     if store_history {
         shell.execution_count += 1;
     }
     let count = shell.execution_count;
     if !silent {
         kernel
-            .publish(Some(request), "execute_input", json!({"code": code, "execution_count": count}))
+            .publish(
+                Some(request),
+                "execute_input",
+                json!({"code": code, "execution_count": count}),
+            )
             .await;
     }
 
@@ -662,7 +773,11 @@ async fn execute(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSender, 
             match output {
                 Output::Stream { name, text } => {
                     kernel
-                        .publish(Some(request), "stream", json!({"name": name.as_str(), "text": text}))
+                        .publish(
+                            Some(request),
+                            "stream",
+                            json!({"name": name.as_str(), "text": text}),
+                        )
                         .await
                 }
                 Output::Display(bundle) => {
@@ -676,12 +791,16 @@ async fn execute(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSender, 
             kernel.publish(Some(request), "execute_result", data).await;
         }
         if let Some(error) = &outcome.error {
-            let data = json!({"ename": error.ename, "evalue": error.evalue, "traceback": error.traceback});
+            let data =
+                json!({"ename": error.ename, "evalue": error.evalue, "traceback": error.traceback});
             kernel.publish(Some(request), "error", data).await;
         }
     }
     if store_history {
-        let output = outcome.result.as_ref().map(|bundle| bundle.plain_text().to_string());
+        let output = outcome
+            .result
+            .as_ref()
+            .map(|bundle| bundle.plain_text().to_string());
         shell.history.push(count, &code, output);
     }
 
@@ -694,7 +813,10 @@ async fn execute(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSender, 
             "traceback": error.traceback,
         }),
         None => {
-            let expressions = content.get("user_expressions").cloned().unwrap_or_else(|| json!({}));
+            let expressions = content
+                .get("user_expressions")
+                .cloned()
+                .unwrap_or_else(|| json!({}));
             json!({
                 "status": "ok",
                 "execution_count": count,
@@ -716,7 +838,11 @@ async fn execute(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSender, 
 async fn run_cell(kernel: &Kernel, code: String) -> ExecuteOutcome {
     kernel.interrupt.store(false, Ordering::SeqCst);
     let flag = kernel.interrupt.clone();
-    match kernel.worker.run(move |session| session.execute(&code, &flag)).await {
+    match kernel
+        .worker
+        .run(move |session| session.execute(&code, &flag))
+        .await
+    {
         Ok(outcome) => outcome,
         Err(failure) => ExecuteOutcome::failure(failure_error(failure)),
     }
@@ -736,7 +862,9 @@ async fn evaluate_expressions(kernel: &Kernel, expressions: &Value) -> Value {
             (Some(error), _) => json!({
                 "status": "error", "ename": error.ename, "evalue": error.evalue, "traceback": error.traceback,
             }),
-            (None, Some(bundle)) => json!({"status": "ok", "data": mime_bundle_to_json(&bundle), "metadata": {}}),
+            (None, Some(bundle)) => {
+                json!({"status": "ok", "data": mime_bundle_to_json(&bundle), "metadata": {}})
+            }
             (None, None) => json!({"status": "ok", "data": {}, "metadata": {}}),
         };
         results.insert(name.clone(), value);

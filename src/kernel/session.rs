@@ -118,7 +118,11 @@ pub struct KernelError {
 }
 
 impl KernelError {
-    pub fn new(ename: impl Into<String>, evalue: impl Into<String>, traceback: Vec<String>) -> Self {
+    pub fn new(
+        ename: impl Into<String>,
+        evalue: impl Into<String>,
+        traceback: Vec<String>,
+    ) -> Self {
         Self {
             ename: ename.into(),
             evalue: evalue.into(),

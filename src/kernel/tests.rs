@@ -22,7 +22,11 @@ impl KernelSession for Scripted {
     fn execute(&mut self, code: &str, interrupt: &AtomicBool) -> ExecuteOutcome {
         match code {
             "value" => ExecuteOutcome::value(MimeBundle::plain("42")),
-            "fail" => ExecuteOutcome::failure(KernelError::new("Failure", "asked to fail", vec!["fail".into()])),
+            "fail" => ExecuteOutcome::failure(KernelError::new(
+                "Failure",
+                "asked to fail",
+                vec!["fail".into()],
+            )),
             "boom" => panic!("scripted panic"),
             "wait" => {
                 let start = Instant::now();
@@ -64,7 +68,9 @@ impl KernelSession for Scripted {
 
     fn is_complete(&self, code: &str) -> IsComplete {
         if code.ends_with('(') {
-            IsComplete::Incomplete { indent: "  ".into() }
+            IsComplete::Incomplete {
+                indent: "  ".into(),
+            }
         } else {
             IsComplete::Complete
         }
@@ -87,7 +93,11 @@ impl KernelSession for Scripted {
 }
 
 fn free_port() -> u16 {
-    std::net::TcpListener::bind("127.0.0.1:0").unwrap().local_addr().unwrap().port()
+    std::net::TcpListener::bind("127.0.0.1:0")
+        .unwrap()
+        .local_addr()
+        .unwrap()
+        .port()
 }
 
 fn connection(key: &str) -> ConnectionInfo {
@@ -111,7 +121,10 @@ impl Client {
         let mut shell = zeromq::DealerSocket::new();
         shell.connect(&info.endpoint(Channel::Shell)).await.unwrap();
         let mut control = zeromq::DealerSocket::new();
-        control.connect(&info.endpoint(Channel::Control)).await.unwrap();
+        control
+            .connect(&info.endpoint(Channel::Control))
+            .await
+            .unwrap();
         let mut iopub = zeromq::SubSocket::new();
         iopub.connect(&info.endpoint(Channel::Iopub)).await.unwrap();
         iopub.subscribe("").await.unwrap();
@@ -126,12 +139,19 @@ impl Client {
     fn frames(&self, msg_type: &str, content: Value) -> (String, Vec<Vec<u8>>) {
         let header = Header::new(msg_type, "test-client");
         let id = header.msg_id.clone();
-        (id, self.auth.encode(&[], &header, &json!({}), &json!({}), &content))
+        (
+            id,
+            self.auth
+                .encode(&[], &header, &json!({}), &json!({}), &content),
+        )
     }
 
     async fn send(socket: &mut zeromq::DealerSocket, frames: Vec<Vec<u8>>) {
         let frames: Vec<bytes::Bytes> = frames.into_iter().map(bytes::Bytes::from).collect();
-        socket.send(ZmqMessage::try_from(frames).unwrap()).await.unwrap();
+        socket
+            .send(ZmqMessage::try_from(frames).unwrap())
+            .await
+            .unwrap();
     }
 
     async fn request(&mut self, msg_type: &str, content: Value) -> String {
@@ -140,14 +160,27 @@ impl Client {
         id
     }
 
-    async fn receive(auth: &Authenticator, socket: &mut impl SocketRecv, wait: Duration) -> Option<Message> {
-        let received = tokio::time::timeout(wait, socket.recv()).await.ok()?.unwrap();
-        let frames = received.into_vec().into_iter().map(|frame| frame.to_vec()).collect();
+    async fn receive(
+        auth: &Authenticator,
+        socket: &mut impl SocketRecv,
+        wait: Duration,
+    ) -> Option<Message> {
+        let received = tokio::time::timeout(wait, socket.recv())
+            .await
+            .ok()?
+            .unwrap();
+        let frames = received
+            .into_vec()
+            .into_iter()
+            .map(|frame| frame.to_vec())
+            .collect();
         Some(auth.decode(frames).unwrap())
     }
 
     async fn shell_reply(&mut self) -> Message {
-        Self::receive(&self.auth, &mut self.shell, Duration::from_secs(10)).await.expect("a shell reply")
+        Self::receive(&self.auth, &mut self.shell, Duration::from_secs(10))
+            .await
+            .expect("a shell reply")
     }
 
     /// Iopub messages of one request up to and including its idle status.
@@ -160,7 +193,8 @@ impl Client {
             if message.parent_header["msg_id"] != parent {
                 continue;
             }
-            let idle = message.msg_type() == "status" && message.content["execution_state"] == "idle";
+            let idle =
+                message.msg_type() == "status" && message.content["execution_state"] == "idle";
             seen.push(message);
             if idle {
                 return seen;
@@ -170,7 +204,10 @@ impl Client {
 }
 
 fn types(messages: &[Message]) -> Vec<String> {
-    messages.iter().map(|message| message.msg_type().to_string()).collect()
+    messages
+        .iter()
+        .map(|message| message.msg_type().to_string())
+        .collect()
 }
 
 #[test]
@@ -178,7 +215,10 @@ fn serves_requests_survives_panics_and_refuses_bad_signatures() {
     let info = connection("a-test-key");
     let kernel_info = info.clone();
     let kernel = std::thread::spawn(move || serve(kernel_info, Box::new(Scripted)));
-    let runtime = tokio::runtime::Builder::new_current_thread().enable_all().build().unwrap();
+    let runtime = tokio::runtime::Builder::new_current_thread()
+        .enable_all()
+        .build()
+        .unwrap();
     runtime.block_on(async {
         let mut client = Client::connect(&info).await;
         // Repeat kernel_info until iopub shows the subscription is live,
@@ -190,7 +230,9 @@ fn serves_requests_survives_panics_and_refuses_bad_signatures() {
             assert_eq!(reply.msg_type(), "kernel_info_reply");
             assert_eq!(reply.content["protocol_version"], "5.3");
             assert_eq!(reply.content["language_info"]["name"], "scripted");
-            if let Some(status) = Client::receive(&client.auth, &mut client.iopub, Duration::from_millis(200)).await {
+            if let Some(status) =
+                Client::receive(&client.auth, &mut client.iopub, Duration::from_millis(200)).await
+            {
                 assert_eq!(status.parent_header["msg_id"], id);
                 ready = true;
                 break;
@@ -199,21 +241,31 @@ fn serves_requests_survives_panics_and_refuses_bad_signatures() {
         assert!(ready, "no iopub traffic after kernel_info");
         let _ = Client::receive(&client.auth, &mut client.iopub, Duration::from_millis(200)).await;
 
-        let id = client.request("execute_request", json!({"code": "value"})).await;
+        let id = client
+            .request("execute_request", json!({"code": "value"}))
+            .await;
         let reply = client.shell_reply().await;
         assert_eq!(reply.content["status"], "ok");
         assert_eq!(reply.content["execution_count"], 1);
         let published = client.iopub_until_idle(&id).await;
-        assert_eq!(types(&published), ["status", "execute_input", "execute_result", "status"]);
+        assert_eq!(
+            types(&published),
+            ["status", "execute_input", "execute_result", "status"]
+        );
         assert_eq!(published[2].content["data"]["text/plain"], "42");
 
-        let id = client.request("execute_request", json!({"code": "boom"})).await;
+        let id = client
+            .request("execute_request", json!({"code": "boom"}))
+            .await;
         let reply = client.shell_reply().await;
         assert_eq!(reply.content["status"], "error");
         assert_eq!(reply.content["execution_count"], 2);
         assert_eq!(reply.content["ename"], "InternalError");
         let published = client.iopub_until_idle(&id).await;
-        assert_eq!(types(&published), ["status", "execute_input", "error", "status"]);
+        assert_eq!(
+            types(&published),
+            ["status", "execute_input", "error", "status"]
+        );
 
         // A message signed with another key is dropped without any answer.
         let (_, mut forged) = client.frames("execute_request", json!({"code": "say forged"}));
@@ -222,10 +274,16 @@ fn serves_requests_survives_panics_and_refuses_bad_signatures() {
         let signature = wrong.sign([&header, &forged[3], &forged[4], &forged[5]]);
         forged[1] = signature.into_bytes();
         Client::send(&mut client.shell, forged).await;
-        assert!(Client::receive(&client.auth, &mut client.shell, Duration::from_millis(500)).await.is_none());
+        assert!(
+            Client::receive(&client.auth, &mut client.shell, Duration::from_millis(500))
+                .await
+                .is_none()
+        );
 
         // The kernel still serves, and the panic did not cost the session.
-        client.request("execute_request", json!({"code": "say hi"})).await;
+        client
+            .request("execute_request", json!({"code": "say hi"}))
+            .await;
         let reply = client.shell_reply().await;
         assert_eq!(reply.content["status"], "ok");
         assert_eq!(reply.content["execution_count"], 3);
@@ -239,12 +297,16 @@ fn serves_requests_survives_panics_and_refuses_bad_signatures() {
         assert_eq!(reply.content["cursor_end"], 2);
 
         // A long cell is interrupted from the control channel.
-        let id = client.request("execute_request", json!({"code": "wait"})).await;
+        let id = client
+            .request("execute_request", json!({"code": "wait"}))
+            .await;
         tokio::time::sleep(Duration::from_millis(100)).await;
         let started = Instant::now();
         let (_, interrupt) = client.frames("interrupt_request", json!({}));
         Client::send(&mut client.control, interrupt).await;
-        let reply = Client::receive(&client.auth, &mut client.control, Duration::from_secs(5)).await.unwrap();
+        let reply = Client::receive(&client.auth, &mut client.control, Duration::from_secs(5))
+            .await
+            .unwrap();
         assert_eq!(reply.msg_type(), "interrupt_reply");
         let reply = client.shell_reply().await;
         assert_eq!(reply.parent_header["msg_id"], id);
@@ -253,7 +315,9 @@ fn serves_requests_survives_panics_and_refuses_bad_signatures() {
 
         let (_, shutdown) = client.frames("shutdown_request", json!({"restart": false}));
         Client::send(&mut client.control, shutdown).await;
-        let reply = Client::receive(&client.auth, &mut client.control, Duration::from_secs(5)).await.unwrap();
+        let reply = Client::receive(&client.auth, &mut client.control, Duration::from_secs(5))
+            .await
+            .unwrap();
         assert_eq!(reply.msg_type(), "shutdown_reply");
         assert_eq!(reply.content["restart"], false);
     });

@@ -24,11 +24,16 @@ fn error(error: impl std::fmt::Display) -> TransportError {
 
 fn to_zmq(frames: Vec<Vec<u8>>) -> Result<ZmqMessage, TransportError> {
     let frames: Vec<Bytes> = frames.into_iter().map(Bytes::from).collect();
-    ZmqMessage::try_from(frames).map_err(|_| TransportError("cannot send a message of no frames".to_string()))
+    ZmqMessage::try_from(frames)
+        .map_err(|_| TransportError("cannot send a message of no frames".to_string()))
 }
 
 fn from_zmq(message: ZmqMessage) -> Vec<Vec<u8>> {
-    message.into_vec().into_iter().map(|frame| frame.to_vec()).collect()
+    message
+        .into_vec()
+        .into_iter()
+        .map(|frame| frame.to_vec())
+        .collect()
 }
 
 /// Receiving half of a ROUTER socket (shell, control, stdin, heartbeat).

@@ -57,7 +57,9 @@ impl fmt::Display for WireError {
             ),
             WireError::BadSignature => write!(f, "signature does not match the connection key"),
             WireError::ReplayedSignature => write!(f, "signature already seen (replayed message)"),
-            WireError::InvalidJson { frame, reason } => write!(f, "{frame} frame is not a JSON object: {reason}"),
+            WireError::InvalidJson { frame, reason } => {
+                write!(f, "{frame} frame is not a JSON object: {reason}")
+            }
         }
     }
 }
@@ -211,10 +213,11 @@ impl Authenticator {
             return Err(WireError::ReplayedSignature);
         }
 
-        let header: Header = serde_json::from_slice(&header).map_err(|error| WireError::InvalidJson {
-            frame: "header",
-            reason: error.to_string(),
-        })?;
+        let header: Header =
+            serde_json::from_slice(&header).map_err(|error| WireError::InvalidJson {
+                frame: "header",
+                reason: error.to_string(),
+            })?;
         let parent_header = parse_object(&parent, "parent_header")?;
         let metadata = parse_object(&metadata, "metadata")?;
         let content = parse_object(&content, "content")?;
@@ -328,7 +331,9 @@ pub fn new_id() -> String {
 /// The current UTC time as ISO 8601 with microseconds, e.g.
 /// "2031-04-02T09:15:27.004512Z" (the form Jupyter's clients parse).
 pub fn iso8601_now() -> String {
-    let since_epoch = SystemTime::now().duration_since(UNIX_EPOCH).unwrap_or_default();
+    let since_epoch = SystemTime::now()
+        .duration_since(UNIX_EPOCH)
+        .unwrap_or_default();
     iso8601(since_epoch.as_secs() as i64, since_epoch.subsec_micros())
 }
 
@@ -352,11 +357,16 @@ fn civil_from_days(days: i64) -> (i64, u32, u32) {
     let z = days + 719_468;
     let era = z.div_euclid(146_097);
     let day_of_era = z.rem_euclid(146_097);
-    let year_of_era = (day_of_era - day_of_era / 1460 + day_of_era / 36_524 - day_of_era / 146_096) / 365;
+    let year_of_era =
+        (day_of_era - day_of_era / 1460 + day_of_era / 36_524 - day_of_era / 146_096) / 365;
     let day_of_year = day_of_era - (365 * year_of_era + year_of_era / 4 - year_of_era / 100);
     let month_index = (5 * day_of_year + 2) / 153;
     let day = (day_of_year - (153 * month_index + 2) / 5 + 1) as u32;
-    let month = if month_index < 10 { month_index + 3 } else { month_index - 9 } as u32;
+    let month = if month_index < 10 {
+        month_index + 3
+    } else {
+        month_index - 9
+    } as u32;
     let year = year_of_era + era * 400 + i64::from(month <= 2);
     (year, month, day)
 }
@@ -402,7 +412,10 @@ mod tests {
     fn wrong_key_tampering_and_replay_are_refused() {
         let sender = Authenticator::new("secret");
         let receiver = Authenticator::new("other key");
-        assert_eq!(receiver.decode(sample(&sender)), Err(WireError::BadSignature));
+        assert_eq!(
+            receiver.decode(sample(&sender)),
+            Err(WireError::BadSignature)
+        );
 
         let receiver = Authenticator::new("secret");
         let mut frames = sample(&sender);
@@ -446,7 +459,10 @@ mod tests {
         // Values from Python: datetime.fromtimestamp(t, timezone.utc).isoformat().
         assert_eq!(iso8601(0, 0), "1970-01-01T00:00:00.000000Z");
         assert_eq!(iso8601(951_782_400, 5), "2000-02-29T00:00:00.000005Z");
-        assert_eq!(iso8601(1_709_251_199, 999_999), "2024-02-29T23:59:59.999999Z");
+        assert_eq!(
+            iso8601(1_709_251_199, 999_999),
+            "2024-02-29T23:59:59.999999Z"
+        );
         assert_eq!(iso8601(-1, 0), "1969-12-31T23:59:59.000000Z");
     }
 

@@ -30,12 +30,14 @@ pub enum CallFailure {
 impl Worker {
     pub fn start(mut session: Box<dyn KernelSession>) -> std::io::Result<Self> {
         let (jobs, queue) = mpsc::channel::<Job>();
-        std::thread::Builder::new().name("baroc-session".to_string()).spawn(move || {
-            // Ends when the kernel drops its `Worker` (the sender).
-            for job in queue {
-                job(session.as_mut());
-            }
-        })?;
+        std::thread::Builder::new()
+            .name("baroc-session".to_string())
+            .spawn(move || {
+                // Ends when the kernel drops its `Worker` (the sender).
+                for job in queue {
+                    job(session.as_mut());
+                }
+            })?;
         Ok(Self { jobs })
     }
 
