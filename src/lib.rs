@@ -16,6 +16,7 @@ pub mod figures;
 pub mod grid;
 pub mod io;
 pub mod lang;
+pub mod kernel;
 pub mod mime;
 pub mod physics;
 pub mod session;

@@ -1,4 +1,16 @@
-"""Shared fixtures: the baroc binary and the demo case, made once per run."""
+"""Shared set-up: the Baroc kernel installed once into a temporary Jupyter
+path for the whole run (before any test class is set up:
+jupyter_kernel_test starts its kernel in setUpClass), the baroc binary, and
+the demo case, made once per run."""
+
+from __future__ import annotations
+
+import sys
+from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+from kernel_env import TemporaryJupyter  # noqa: E402
 
 import json
 import os
@@ -38,3 +50,17 @@ def demo_case(baroc, tmp_path_factory):
     directory = tmp_path_factory.mktemp("demo")
     run(baroc, "demo", "--output", directory)
     return directory / "marrowind-wave-2026-10-14.nc"
+
+
+_jupyter: TemporaryJupyter | None = None
+
+
+def pytest_configure(config) -> None:
+    global _jupyter
+    _jupyter = TemporaryJupyter()
+    config.baroc_jupyter = _jupyter
+
+
+def pytest_unconfigure(config) -> None:
+    if _jupyter is not None:
+        _jupyter.close()
