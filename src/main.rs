@@ -80,6 +80,81 @@ enum Command {
         #[arg(long, value_enum, default_value = "text")]
         format: Format,
     },
+    /// The Jupyter kernel: run it (Jupyter does, from kernel.json), install or uninstall its kernelspec.
+    #[command(after_help = "Examples:\n  baroc kernel install --user\n  jupyter lab   # then pick the Baroc kernel\n  baroc kernel uninstall --user")]
+    Kernel {
+        /// The connection file Jupyter passes when it starts the kernel.
+        #[arg(long)]
+        connection_file: Option<PathBuf>,
+        #[command(subcommand)]
+        action: Option<KernelAction>,
+    },
+}
+
+#[derive(Subcommand)]
+enum KernelAction {
+    /// Install the kernelspec (display name, language, logos, interrupt by message).
+    Install {
+        #[command(flatten)]
+        location: KernelLocation,
+        /// The name Jupyter shows for the kernel.
+        #[arg(long, default_value = baroc::kernel::kernelspec::DEFAULT_DISPLAY_NAME)]
+        display_name: String,
+    },
+    /// Remove the kernelspec.
+    Uninstall {
+        #[command(flatten)]
+        location: KernelLocation,
+    },
+}
+
+#[derive(clap::Args)]
+#[group(multiple = false)]
+struct KernelLocation {
+    /// The user's Jupyter data directory (the default).
+    #[arg(long)]
+    user: bool,
+    /// DIR/share/jupyter/kernels.
+    #[arg(long, value_name = "DIR")]
+    prefix: Option<PathBuf>,
+    /// The active Python environment's prefix (sys.prefix).
+    #[arg(long)]
+    sys_prefix: bool,
+}
+
+impl KernelLocation {
+    fn location(&self) -> baroc::kernel::kernelspec::KernelspecLocation {
+        use baroc::kernel::kernelspec::KernelspecLocation;
+        match (&self.prefix, self.sys_prefix) {
+            (Some(prefix), _) => KernelspecLocation::Prefix(prefix.clone()),
+            (None, true) => KernelspecLocation::SysPrefix,
+            _ => KernelspecLocation::User,
+        }
+    }
+}
+
+fn kernel(connection_file: Option<PathBuf>, action: Option<KernelAction>) -> Result<(), String> {
+    use baroc::kernel::kernelspec::{install_kernelspec, uninstall_kernelspec};
+    match (connection_file, action) {
+        (Some(file), None) => baroc::kernel::run_kernel(&file, || Box::new(baroc::kernel::baroc_session::BarocKernelSession::new())).map_err(|e| format!("error: {e}")),
+        (None, Some(KernelAction::Install { location, display_name })) => {
+            let dir = install_kernelspec(&location.location(), &display_name).map_err(|e| format!("error: {e}"))?;
+            out(&format!("installed the Baroc kernelspec in {}\n", dir.display()));
+            Ok(())
+        }
+        (None, Some(KernelAction::Uninstall { location })) => match uninstall_kernelspec(&location.location()).map_err(|e| format!("error: {e}"))? {
+            Some(dir) => {
+                out(&format!("removed the Baroc kernelspec from {}\n", dir.display()));
+                Ok(())
+            }
+            None => {
+                out("no Baroc kernelspec was installed there\n");
+                Ok(())
+            }
+        },
+        (Some(_), Some(_)) => Err("error: --connection-file runs the kernel; it does not go with install or uninstall".into()),
+        (None, None) => Err("error: say what to do: `baroc kernel install --user`, `baroc kernel uninstall --user`, or (as Jupyter does) `baroc kernel --connection-file FILE`".into()),
+    }
 }
 
 #[derive(clap::Args)]
@@ -115,6 +190,7 @@ fn main() -> ExitCode {
         Command::Inspect { files } => Dataset::open(&files).map(|d| out(&format!("{}\n", baroc::io::describe(&d)))).map_err(|e| format!("error: {e}")),
         Command::Run { program, output, report, each_time } => run(program, output, report, each_time),
         Command::Table { program, points, regions, format } => table(program, points, regions, format),
+        Command::Kernel { connection_file, action } => kernel(connection_file, action),
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,

@@ -24,6 +24,8 @@ pub struct CellOutput {
     pub result: Option<MimeBundle>,
     /// Notes and warnings, rendered (empty if none).
     pub notes: String,
+    /// What `print` wrote.
+    pub printed: String,
 }
 
 /// A cell that failed: the rendered diagnostic (caret included) and its
@@ -87,6 +89,7 @@ impl Session {
         let outcome = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| self.evaluator.run(&program, code)));
         self.evaluator.set_interrupt(None);
         let notes = lang::eval::take_notes();
+        let printed = lang::eval::take_printed();
         let shown = match outcome {
             Ok(Ok(shown)) => shown,
             Ok(Err(d)) => {
@@ -101,10 +104,12 @@ impl Session {
                 return Err(self.fail(&[d], code));
             }
         };
+        // `print(...)` shows its text on stdout, not as a value.
+        let shown: Vec<_> = shown.into_iter().filter(|(_, v)| !matches!(v, Value::Text(t) if t.is_empty())).collect();
         let mut bundles: Vec<MimeBundle> = shown.iter().map(|(_, v)| crate::display::bundle(v)).collect();
         self.last_values = shown.into_iter().map(|(_, v)| v).collect();
         let result = bundles.pop();
-        Ok(CellOutput { displays: bundles, result, notes: if notes.is_empty() { String::new() } else { lang::render_all(&notes, code, &self.render_options) } })
+        Ok(CellOutput { displays: bundles, result, notes: if notes.is_empty() { String::new() } else { lang::render_all(&notes, code, &self.render_options) }, printed })
     }
 
     /// Whether the text is a finished cell.
@@ -176,5 +181,49 @@ impl Session {
         }
         text.push_str(&format!("  source: {}", dataset.labels().join(", ")));
         Some(text)
+    }
+}
+
+/// What `Session::show` returns: a cell's output or its error, shown inline
+/// by the evcxr Rust kernel through its display protocol (the
+/// `evcxr_display` method evcxr calls on a cell's final value).
+#[derive(Debug, Clone)]
+pub enum Shown {
+    Output(CellOutput),
+    Error(CellError),
+}
+
+impl Shown {
+    /// Prints every bundle of the cell between evcxr's content markers.
+    pub fn evcxr_display(&self) {
+        print!("{}", self.evcxr_text());
+    }
+
+    /// The text `evcxr_display` prints (for tests).
+    pub fn evcxr_text(&self) -> String {
+        match self {
+            Shown::Output(out) => {
+                let mut text = String::new();
+                if !out.printed.is_empty() {
+                    text.push_str(&crate::render::evcxr::evcxr_display_string(&MimeBundle::plain(out.printed.clone())));
+                }
+                for b in out.displays.iter().chain(out.result.iter()) {
+                    text.push_str(&crate::render::evcxr::evcxr_display_string(b));
+                }
+                text
+            }
+            Shown::Error(e) => crate::render::evcxr::evcxr_display_string(&MimeBundle::plain(e.rendered.clone())),
+        }
+    }
+}
+
+impl Session {
+    /// Runs a cell for a Rust notebook: the result displays itself inline
+    /// in evcxr (`session.show("thickness(1000 hPa to 500 hPa)")`).
+    pub fn show(&mut self, code: &str) -> Shown {
+        match self.run(code, None) {
+            Ok(out) => Shown::Output(out),
+            Err(e) => Shown::Error(e),
+        }
     }
 }

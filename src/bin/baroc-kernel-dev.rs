@@ -1,7 +1,9 @@
-//! TEMPORARY development kernel: the notebook kernel driven by a toy
-//! session, for testing the kernel with real Jupyter clients before the
-//! Baroc language is plugged in. Not the product; delete once `baroc
-//! kernel` runs the real session.
+//! A test double of the notebook kernel: the real protocol layer driven by
+//! a toy session whose cells can sleep, print to both streams, display and
+//! panic on demand, so the protocol tests (tests/python/test_kernel_protocol.py)
+//! can provoke every message sequence. It installs as the kernelspec
+//! `baroc-protocol-double`, beside the real `baroc` kernel. Not the product:
+//! users run `baroc kernel`.
 //!
 //! Usage:
 //!   baroc-kernel-dev kernel --connection-file FILE
@@ -22,8 +24,11 @@ use std::process::ExitCode;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::{Duration, Instant};
 
+/// The kernelspec name of this double.
+const DOUBLE_NAME: &str = "baroc-protocol-double";
+
 use baroc::kernel::kernelspec::{
-    install_kernelspec, uninstall_kernelspec, KernelspecLocation, DEFAULT_DISPLAY_NAME,
+    install_kernelspec_named, uninstall_kernelspec_named, KernelspecLocation, DEFAULT_DISPLAY_NAME,
 };
 use baroc::kernel::session::byte_offset;
 use baroc::kernel::{
@@ -95,10 +100,14 @@ fn main() -> ExitCode {
         Command::Install {
             location,
             display_name,
-        } => install_kernelspec(&location.location(), &display_name)
+        } => std::env::current_exe()
+            .map_err(|error| error.to_string())
+            .and_then(|exe| {
+                install_kernelspec_named(&location.location(), DOUBLE_NAME, &display_name, &exe).map_err(|error| error.to_string())
+            })
             .map(|dir| println!("installed the kernelspec in {}", dir.display()))
-            .map_err(|error| error.to_string()),
-        Command::Uninstall { location } => match uninstall_kernelspec(&location.location()) {
+        ,
+        Command::Uninstall { location } => match uninstall_kernelspec_named(&location.location(), DOUBLE_NAME) {
             Ok(Some(dir)) => {
                 println!("removed the kernelspec from {}", dir.display());
                 Ok(())
@@ -128,7 +137,7 @@ struct ToySession {
 }
 
 impl KernelSession for ToySession {
-    fn execute(&mut self, code: &str, interrupt: &AtomicBool) -> ExecuteOutcome {
+    fn execute(&mut self, code: &str, interrupt: &std::sync::Arc<AtomicBool>) -> ExecuteOutcome {
         let mut outcome = ExecuteOutcome::default();
         for (number, line) in code.lines().enumerate() {
             let statement = line.trim();

@@ -123,7 +123,13 @@ pub fn kernels_dir(location: &KernelspecLocation) -> Result<PathBuf, KernelspecE
 
 /// The folder of the Baroc kernelspec for `location`.
 pub fn kernelspec_dir(location: &KernelspecLocation) -> Result<PathBuf, KernelspecError> {
-    Ok(kernels_dir(location)?.join(KERNEL_NAME))
+    kernelspec_dir_named(location, KERNEL_NAME)
+}
+
+/// The folder of a kernelspec called `name` for `location` (test doubles
+/// install under their own name beside the real kernel).
+pub fn kernelspec_dir_named(location: &KernelspecLocation, name: &str) -> Result<PathBuf, KernelspecError> {
+    Ok(kernels_dir(location)?.join(name))
 }
 
 /// The content of kernel.json for a kernel started as `executable kernel
@@ -158,7 +164,17 @@ pub fn install_kernelspec_for(
     display_name: &str,
     executable: &Path,
 ) -> Result<PathBuf, KernelspecError> {
-    let dir = kernelspec_dir(location)?;
+    install_kernelspec_named(location, KERNEL_NAME, display_name, executable)
+}
+
+/// Install a kernelspec called `name` that starts `executable`.
+pub fn install_kernelspec_named(
+    location: &KernelspecLocation,
+    name: &str,
+    display_name: &str,
+    executable: &Path,
+) -> Result<PathBuf, KernelspecError> {
+    let dir = kernelspec_dir_named(location, name)?;
     std::fs::create_dir_all(&dir).map_err(|error| KernelspecError::Write {
         path: dir.clone(),
         reason: error.to_string(),
@@ -181,7 +197,15 @@ pub fn install_kernelspec_for(
 pub fn uninstall_kernelspec(
     location: &KernelspecLocation,
 ) -> Result<Option<PathBuf>, KernelspecError> {
-    let dir = kernelspec_dir(location)?;
+    uninstall_kernelspec_named(location, KERNEL_NAME)
+}
+
+/// Remove the kernelspec called `name`, if installed there.
+pub fn uninstall_kernelspec_named(
+    location: &KernelspecLocation,
+    name: &str,
+) -> Result<Option<PathBuf>, KernelspecError> {
+    let dir = kernelspec_dir_named(location, name)?;
     if !dir.join("kernel.json").exists() {
         return Ok(None);
     }

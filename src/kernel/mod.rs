@@ -15,6 +15,7 @@
 //! - `history`: input history for history_request;
 //! - `kernelspec` and `logo`: installing the kernel where Jupyter finds it.
 
+pub mod baroc_session;
 pub mod connection;
 pub mod history;
 pub mod kernelspec;

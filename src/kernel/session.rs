@@ -26,7 +26,7 @@ pub trait KernelSession: Send {
     ///
     /// A panic in here does not end the kernel: it becomes an error reply and
     /// the same session serves the next cell.
-    fn execute(&mut self, code: &str, interrupt: &AtomicBool) -> ExecuteOutcome;
+    fn execute(&mut self, code: &str, interrupt: &std::sync::Arc<AtomicBool>) -> ExecuteOutcome;
 
     /// Completions for the word at `cursor_pos` (code points into `code`).
     fn complete(&self, code: &str, cursor_pos: usize) -> Completion;

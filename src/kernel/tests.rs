@@ -19,7 +19,7 @@ use crate::mime::MimeBundle;
 struct Scripted;
 
 impl KernelSession for Scripted {
-    fn execute(&mut self, code: &str, interrupt: &AtomicBool) -> ExecuteOutcome {
+    fn execute(&mut self, code: &str, interrupt: &std::sync::Arc<AtomicBool>) -> ExecuteOutcome {
         match code {
             "value" => ExecuteOutcome::value(MimeBundle::plain("42")),
             "fail" => ExecuteOutcome::failure(KernelError::new(

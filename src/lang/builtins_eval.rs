@@ -57,6 +57,7 @@ pub const NAMES: &[&str] = &[
     "section",
     "time_series",
     "write_report",
+    "print",
 ];
 
 fn error(message: impl Into<String>, span: Span) -> Diagnostic {
@@ -500,6 +501,15 @@ pub fn call_builtin(
             };
             let path = super::recipe::write_session_report(evaluator, &file).map_err(|e| error(e, args.get(0).1))?;
             Ok(Value::Text(format!("wrote the report to {}", path.display())))
+        }
+        "print" => {
+            options.allow(name, &[])?;
+            let mut parts = Vec::new();
+            for (v, _) in &args.values {
+                parts.push(crate::display::plain(v));
+            }
+            super::eval::print_line(&parts.join(" "));
+            Ok(Value::Text(String::new()))
         }
         "save_recipe" => {
             options.allow(name, &[])?;

@@ -1177,6 +1177,24 @@ fn self_note(message: String, span: Span) {
     NOTES.with(|n| n.borrow_mut().push(Diagnostic::warning(message, span)));
 }
 
+thread_local! {
+    static PRINTED: std::cell::RefCell<String> = const { std::cell::RefCell::new(String::new()) };
+}
+
+/// Appends a line to what the current cell printed (`print`).
+pub fn print_line(text: &str) {
+    PRINTED.with(|p| {
+        let mut p = p.borrow_mut();
+        p.push_str(text);
+        p.push('\n');
+    });
+}
+
+/// Takes what the cell printed since the last call.
+pub fn take_printed() -> String {
+    PRINTED.with(|p| std::mem::take(&mut *p.borrow_mut()))
+}
+
 /// Takes the notes recorded since the last call.
 pub fn take_notes() -> Vec<Diagnostic> {
     NOTES.with(|n| std::mem::take(&mut *n.borrow_mut()))

@@ -26,6 +26,8 @@ from jupyter_client.session import Session
 from nbclient import NotebookClient
 from nbclient.exceptions import CellExecutionError
 
+from kernel_env import DOUBLE
+
 TIMEOUT = 10
 
 
@@ -82,7 +84,7 @@ def wait_dead(km, seconds):
 
 @pytest.fixture(scope="module")
 def kernel():
-    km, kc = start_new_kernel(kernel_name="baroc", startup_timeout=30)
+    km, kc = start_new_kernel(kernel_name=DOUBLE, startup_timeout=30)
     yield km, kc
     kc.stop_channels()
     km.shutdown_kernel(now=True)
@@ -105,7 +107,7 @@ def kc(kernel):
 def own_kernel():
     """A kernel of its own, with stderr captured to a file."""
     log = tempfile.NamedTemporaryFile(prefix="baroc-kernel-", suffix=".log", delete=False)
-    km = KernelManager(kernel_name="baroc")
+    km = KernelManager(kernel_name=DOUBLE)
     km.start_kernel(stderr=log)
     kc = km.client()
     kc.start_channels()
@@ -124,7 +126,7 @@ def own_kernel():
 def test_kernelspec_is_found_by_jupyter(tmp_path):
     # "Kernel specs": kernel.json with argv, display_name, language,
     # interrupt_mode; logos beside it. Checked with jupyter_client's own finder.
-    spec = KernelSpecManager().get_kernel_spec("baroc")
+    spec = KernelSpecManager().get_kernel_spec(DOUBLE)
     assert spec.language == "baroc"
     assert spec.display_name == "Baroc"
     assert spec.interrupt_mode == "message"
@@ -155,10 +157,10 @@ def test_user_install_goes_where_jupyter_core_looks(tmp_path, request, monkeypat
     for name, value in variables.items():
         monkeypatch.setenv(name, value.format(tmp=tmp_path))
     # The reference: jupyter_core's own idea of the user data directory.
-    expected = Path(jupyter_data_dir()) / "kernels" / "baroc"
+    expected = Path(jupyter_data_dir()) / "kernels" / DOUBLE
     subprocess.run([str(binary), "install", "--user", "--display-name", "Baroc (mine)"], env=dict(os.environ),
                    check=True, capture_output=True)
-    spec = KernelSpecManager(kernel_dirs=[str(expected.parent)]).get_kernel_spec("baroc")
+    spec = KernelSpecManager(kernel_dirs=[str(expected.parent)]).get_kernel_spec(DOUBLE)
     assert spec.display_name == "Baroc (mine)"
     subprocess.run([str(binary), "uninstall", "--user"], env=dict(os.environ), check=True, capture_output=True)
     assert not expected.exists()
@@ -166,7 +168,7 @@ def test_user_install_goes_where_jupyter_core_looks(tmp_path, request, monkeypat
 
 def test_ipc_transport(tmp_path):
     # Connection files may name transport "ipc": endpoints are ipc://IP-PORT.
-    km = KernelManager(kernel_name="baroc", transport="ipc")
+    km = KernelManager(kernel_name=DOUBLE, transport="ipc")
     km.ip = str(tmp_path / "kernel")
     km.start_kernel()
     kc = km.client()
@@ -576,7 +578,7 @@ def test_notebook_runs_through_nbclient():
         nbformat.v4.new_code_cell("shear = 30-12\nshear"),
         nbformat.v4.new_code_cell("display"),
     ]
-    NotebookClient(notebook, kernel_name="baroc", timeout=30).execute()
+    NotebookClient(notebook, kernel_name=DOUBLE, timeout=30).execute()
     first, second, third = (cell.outputs for cell in notebook.cells)
     assert first[0]["output_type"] == "stream" and first[0]["text"] == "wind report\n"
     assert second[0]["output_type"] == "execute_result" and second[0]["data"]["text/plain"] == "18"
@@ -589,7 +591,7 @@ def test_nbclient_reports_a_failing_cell():
     notebook = nbformat.v4.new_notebook()
     notebook.cells = [nbformat.v4.new_code_cell("1/0"), nbformat.v4.new_code_cell("print after")]
     with pytest.raises(CellExecutionError) as failure:
-        NotebookClient(notebook, kernel_name="baroc", timeout=30).execute()
+        NotebookClient(notebook, kernel_name=DOUBLE, timeout=30).execute()
     assert "ToyArithmeticError" in str(failure.value)
 
 
