@@ -109,6 +109,10 @@ pub struct SphericalMetric {
     pub inverse_x_scale: Vec<f64>,
     /// cos(lat) per row (0 at the poles).
     pub cos_latitude: Vec<f64>,
+    /// The longitude stencils' weights as three arrays, weight k of column i
+    /// at [k][i], so that whole rows run as contiguous, vectorisable loops
+    /// (`scaled_d_dlon_row`).
+    longitude_weights: [Vec<f64>; 3],
 }
 
 impl SphericalMetric {
@@ -122,12 +126,15 @@ impl SphericalMetric {
             .map(|&lat| if (lat.abs() - 90.0).abs() < 1e-6 { 0.0 } else { lat.to_radians().cos() })
             .collect();
         let inverse_x_scale = cos_latitude.iter().map(|&c| if c == 0.0 { f64::NAN } else { 1.0 / (radius * c) }).collect();
+        let longitude = stencils(&lon_rad, periodic);
+        let longitude_weights = [0, 1, 2].map(|k| longitude.iter().map(|s| s.weight[k]).collect());
         Self {
             latitude: stencils(&lat_rad, None),
-            longitude: stencils(&lon_rad, periodic),
+            longitude,
             inverse_radius: 1.0 / radius,
             inverse_x_scale,
             cos_latitude,
+            longitude_weights,
         }
     }
 
@@ -146,6 +153,49 @@ impl SphericalMetric {
             + s.weight[1] * slice[s.index[1] * nx + i] as f64
             + s.weight[2] * slice[s.index[2] * nx + i] as f64
     }
+
+    /// A whole row of `scale * d/dlon`: out[i] = (scale * d_dlon(row, i)) as
+    /// f32, the same values in the same order of operations. Every interior
+    /// column's stencil is (i-1, i, i+1) (see `stencils`), so the interior
+    /// runs as one contiguous loop without index look-ups, which the compiler
+    /// vectorises; the two edge columns (periodic wrap or one-sided
+    /// differences) take the general stencil.
+    pub fn scaled_d_dlon_row(&self, row: &[f32], scale: f64, out: &mut [f32]) {
+        let n = row.len();
+        assert_eq!(n, self.longitude.len(), "row length differs from the number of longitudes");
+        assert_eq!(out.len(), n, "output row length differs from the input row");
+        if n < 3 {
+            for (i, o) in out.iter_mut().enumerate() {
+                *o = (scale * self.d_dlon(row, i)) as f32;
+            }
+            return;
+        }
+        out[0] = (scale * self.d_dlon(row, 0)) as f32;
+        out[n - 1] = (scale * self.d_dlon(row, n - 1)) as f32;
+        let m = n - 2;
+        let (left, centre, right) = (&row[..m], &row[1..m + 1], &row[2..]);
+        let [w0, w1, w2] = &self.longitude_weights;
+        let (w0, w1, w2) = (&w0[1..m + 1], &w1[1..m + 1], &w2[1..m + 1]);
+        let out = &mut out[1..m + 1];
+        for i in 0..m {
+            out[i] = (scale * (w0[i] * left[i] as f64 + w1[i] * centre[i] as f64 + w2[i] * right[i] as f64)) as f32;
+        }
+    }
+
+    /// A whole row j of `scale * d/dlat` of a slice (rows of `nx` values):
+    /// out[i] = (scale * d_dlat(slice, nx, j, i)) as f32, the same values in
+    /// the same order of operations. The latitude stencil is fixed along a
+    /// row, so this is a contiguous three-row weighted sum.
+    pub fn scaled_d_dlat_row(&self, slice: &[f32], nx: usize, j: usize, scale: f64, out: &mut [f32]) {
+        let s = &self.latitude[j];
+        let row = |k: usize| &slice[s.index[k] * nx..(s.index[k] + 1) * nx];
+        let (a, b, c) = (row(0), row(1), row(2));
+        let [w0, w1, w2] = s.weight;
+        let out = &mut out[..nx];
+        for i in 0..nx {
+            out[i] = (scale * (w0 * a[i] as f64 + w1 * b[i] as f64 + w2 * c[i] as f64)) as f32;
+        }
+    }
 }
 
 /// Runs `kernel(slice_index, slice_data, row_index, output_row)` over every row of every
@@ -158,7 +208,7 @@ where
     let (ns, ny, nx) = input.dim();
     let data = input.as_standard_layout();
     let flat = data.as_slice().expect("standard layout");
-    let mut out = Array3::<f32>::zeros((ns, ny, nx));
+    let mut out = super::allocation::zeroed((ns, ny, nx));
     out.as_slice_mut()
         .expect("fresh array")
         .par_chunks_mut(nx.max(1))
@@ -178,8 +228,8 @@ where
     let (ns, ny, nx) = input.dim();
     let data = input.as_standard_layout();
     let flat = data.as_slice().expect("standard layout");
-    let mut first = Array3::<f32>::zeros((ns, ny, nx));
-    let mut second = Array3::<f32>::zeros((ns, ny, nx));
+    let mut first = super::allocation::zeroed((ns, ny, nx));
+    let mut second = super::allocation::zeroed((ns, ny, nx));
     first
         .as_slice_mut()
         .expect("fresh array")
@@ -199,11 +249,8 @@ pub fn gradient(grid: &Grid, radius: f64, scalar: ArrayView3<f32>) -> (Array3<f3
     let nx = grid.longitudes.len();
     map_rows_pair(scalar, |_, slice, j, dx, dy| {
         let row = &slice[j * nx..(j + 1) * nx];
-        let kx = metric.inverse_x_scale[j];
-        for i in 0..nx {
-            dx[i] = (kx * metric.d_dlon(row, i)) as f32;
-            dy[i] = (metric.inverse_radius * metric.d_dlat(slice, nx, j, i)) as f32;
-        }
+        metric.scaled_d_dlon_row(row, metric.inverse_x_scale[j], dx);
+        metric.scaled_d_dlat_row(slice, nx, j, metric.inverse_radius, dy);
     })
 }
 
@@ -288,6 +335,34 @@ mod tests {
         for (i, s) in stencils(&x, None).iter().enumerate() {
             let d: f64 = (0..3).map(|k| s.weight[k] * f(x[s.index[k]])).sum();
             assert!((d - (4.0 * x[i] - 3.0)).abs() < 1e-12, "point {i}: {d}");
+        }
+    }
+
+    #[test]
+    fn row_kernels_equal_the_element_stencils_exactly() {
+        // The vectorised row loops must reproduce the element-by-element
+        // stencil sums bit for bit: on a periodic global grid, on an open
+        // regional grid with non-uniform spacing (edges one-sided), and on
+        // rows too short for an interior.
+        let periodic = grid(3.0, 7.5, -60.0, 60.0, 0.0, 352.5);
+        assert!(periodic.global);
+        let uneven = Grid::new(vec![10.0, 11.0, 13.5, 14.0, 17.0], vec![-3.0, -2.2, 0.0, 0.4, 2.9, 3.0, 6.0]);
+        let short = Grid::new(vec![40.0, 41.0, 42.0], vec![5.0, 6.0]);
+        for g in [periodic, uneven, short] {
+            let metric = SphericalMetric::new(&g, 6.371e6);
+            let s = sample(&g, |lat, lon| 5000.0 + 300.0 * (2.0 * lon).sin() * lat.cos() + 40.0 * lat * lat);
+            let (ny, nx) = g.shape();
+            let slice = s.as_slice().unwrap();
+            let (mut along_lon, mut along_lat) = (vec![0.0f32; nx], vec![0.0f32; nx]);
+            for j in 0..ny {
+                let row = &slice[j * nx..(j + 1) * nx];
+                metric.scaled_d_dlon_row(row, -1.7e-3, &mut along_lon);
+                metric.scaled_d_dlat_row(slice, nx, j, 2.3e-2, &mut along_lat);
+                for i in 0..nx {
+                    assert_eq!(along_lon[i].to_bits(), ((-1.7e-3 * metric.d_dlon(row, i)) as f32).to_bits(), "row {j} column {i}");
+                    assert_eq!(along_lat[i].to_bits(), ((2.3e-2 * metric.d_dlat(slice, nx, j, i)) as f32).to_bits(), "row {j} column {i}");
+                }
+            }
         }
     }
 
