@@ -47,11 +47,10 @@ pub fn balanced_wind(
             return;
         }
         let row = &slice[j * nx..(j + 1) * nx];
-        let ky = metric.inverse_radius;
-        for i in 0..nx {
-            u[i] = (-k * ky * metric.d_dlat(slice, nx, j, i)) as f32;
-            v[i] = (k * kx * metric.d_dlon(row, i)) as f32;
-        }
+        // Row kernels: u[i] = (-k ky d/dlat) and v[i] = (k kx d/dlon) with the
+        // factors multiplied in the same order as element by element.
+        metric.scaled_d_dlat_row(slice, nx, j, -k * metric.inverse_radius, u);
+        metric.scaled_d_dlon_row(row, k * kx, v);
     })
 }
 

@@ -6,6 +6,7 @@
 //! take [time, level, latitude, longitude]. NaN is missing data throughout.
 
 pub mod advection;
+pub mod allocation;
 pub mod differences;
 pub mod geostrophic;
 pub mod sampling;

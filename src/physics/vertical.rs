@@ -10,7 +10,7 @@
 //! hypsometric thickness dz = (Rd/g0) Tbar ln(p_b/p_t) with Tbar the
 //! ln p-weighted layer mean (field guide, "Formulas"); trapezoid rule in ln p.
 
-use ndarray::{Array3, ArrayView4, Axis, Zip};
+use ndarray::{Array3, Array4, ArrayView4, Axis, Zip};
 use rayon::prelude::*;
 
 /// A linear functional of a column: value = sum of weight * level value.
@@ -30,6 +30,8 @@ pub enum VerticalError {
     BadPressure(f64),
     #[error("no pressure levels in the data")]
     NoLevels,
+    #[error("{levels} pressure levels given for data with {data} levels; they must match")]
+    LevelCount { levels: usize, data: usize },
 }
 
 fn hpa(p: f64) -> f64 {
@@ -132,7 +134,7 @@ where
     F: Fn(f64, f64) -> f64 + Sync,
 {
     let (nt, _, ny, nx) = data.dim();
-    let mut out = Array3::<f32>::zeros((nt, ny, nx));
+    let mut out: Array3<f32> = super::allocation::zeroed((nt, ny, nx));
     out.axis_iter_mut(Axis(0)).into_par_iter().enumerate().for_each(|(t, mut out_t)| {
         // Accumulate level by level over whole rows: contiguous, vectorisable.
         out_t.axis_iter_mut(Axis(0)).into_par_iter().enumerate().for_each(|(j, mut out_row)| {
@@ -186,6 +188,75 @@ pub fn thickness_from_temperature(
         None => apply_weights(temperature, &weights, factor),
         Some(q) => apply_weights_with(temperature, Some(q), &weights, factor, virtual_temperature),
     })
+}
+
+/// Latitude rows per parallel task of `adjacent_layer_thickness`: two levels
+/// of a band of 8 rows of 1440 points (92 KB) stay in a core's cache.
+const ROWS_PER_TASK: usize = 8;
+
+/// Hypsometric thickness (m) of every layer between two adjacent data levels,
+/// [time, level, lat, lon] -> [time, layer, lat, lon], layer k lying between
+/// data levels k and k+1 in the data's own order (so either order of levels
+/// works, and the thickness is positive either way).
+///
+/// dz_k = (Rd/g0) * (T_k + T_k+1)/2 * |ln(p_k / p_k+1)|: the hypsometric
+/// equation with the trapezoid rule in ln p (field guide, "Formulas"), the
+/// same value `thickness_from_temperature` gives for that layer (same
+/// weights, same order of the f64 sums), computed by one pass over the two
+/// levels instead of one general weighted sum per layer. A NaN at either
+/// level makes the thickness NaN. Fails when there are fewer than two
+/// levels, when the levels do not match the data's, when a pressure is not
+/// positive, or when two adjacent levels have the same pressure.
+pub fn adjacent_layer_thickness(levels: &[f64], temperature: ArrayView4<f32>, dry_air_gas_constant: f64, gravity: f64) -> Result<Array4<f32>, VerticalError> {
+    if levels.len() < 2 {
+        return Err(VerticalError::NoLevels);
+    }
+    if let Some(&bad) = levels.iter().find(|p| !(p.is_finite() && **p > 0.0)) {
+        return Err(VerticalError::BadPressure(bad));
+    }
+    // Trapezoid weight of each level of a layer, as layer_integral_weights
+    // computes it for a layer whose boundaries are data levels: 0.5 * d ln p.
+    let mut half_log_ratio = Vec::with_capacity(levels.len() - 1);
+    for pair in levels.windows(2) {
+        let (bottom, top) = if pair[0] > pair[1] { (pair[0], pair[1]) } else { (pair[1], pair[0]) };
+        if (bottom - top).abs() <= 1e-9 * bottom {
+            return Err(VerticalError::EmptyLayer { bottom: hpa(bottom), top: hpa(top) });
+        }
+        half_log_ratio.push(0.5 * (bottom.ln() - top.ln()));
+    }
+    let (nt, nz, ny, nx) = temperature.dim();
+    if nz != levels.len() {
+        return Err(VerticalError::LevelCount { levels: levels.len(), data: nz });
+    }
+    let layers = nz - 1;
+    let factor = dry_air_gas_constant / gravity;
+    let data = temperature.as_standard_layout();
+    let flat = data.as_slice().expect("standard layout");
+    let mut out: Array4<f32> = super::allocation::zeroed((nt, layers, ny, nx));
+    if out.is_empty() {
+        return Ok(out);
+    }
+    // Parallel over bands of latitude rows; inside a band, layer after layer,
+    // so the upper level of one layer is still in cache as the lower level of
+    // the next: every input value comes from memory once, not twice.
+    out.axis_chunks_iter_mut(Axis(2), ROWS_PER_TASK).into_par_iter().enumerate().for_each(|(band, mut block)| {
+        let rows = block.dim().2;
+        for t in 0..nt {
+            for (layer, &w) in half_log_ratio.iter().enumerate() {
+                for r in 0..rows {
+                    let first = ((t * nz + layer) * ny + band * ROWS_PER_TASK + r) * nx;
+                    let second = first + ny * nx;
+                    let (lower, upper) = (&flat[first..first + nx], &flat[second..second + nx]);
+                    let mut out_row = block.slice_mut(ndarray::s![t, layer, r, ..]);
+                    let out_row = out_row.as_slice_mut().expect("rows of a fresh array are contiguous");
+                    for ((o, &a), &b) in out_row.iter_mut().zip(lower).zip(upper) {
+                        *o = ((w * a as f64 + w * b as f64) * factor) as f32;
+                    }
+                }
+            }
+        }
+    });
+    Ok(out)
 }
 
 /// Thickness (m) from geopotential (m2 s-2) or geopotential height (m):
@@ -277,6 +348,52 @@ mod tests {
         let a = thickness_from_temperature(&LEVELS, t1.view(), None, 100000.0, 30000.0, RD, G0).unwrap();
         let b = thickness_from_temperature(&reversed, t2.view(), None, 30000.0, 100000.0, RD, G0).unwrap();
         assert!((a[[0, 0, 0]] - b[[0, 0, 0]]).abs() < 1e-3);
+    }
+
+    #[test]
+    fn adjacent_layers_equal_the_general_layer_thickness() {
+        // The direct two-level kernel must give what the general weighted sum
+        // gives for each layer (same trapezoid weights, same f64 sums), in
+        // either order of the levels. Values vary in every dimension so that
+        // an indexing mistake shows.
+        let t = Array4::from_shape_fn((2, 6, 3, 4), |(n, k, j, i)| 300.0 - 12.0 * k as f32 + 0.7 * j as f32 - 0.3 * i as f32 + 1.5 * n as f32);
+        let reversed: Vec<f64> = LEVELS.iter().rev().copied().collect();
+        let mut t_reversed = t.clone();
+        t_reversed.invert_axis(Axis(1));
+        for (levels, data) in [(LEVELS.to_vec(), t.view()), (reversed, t_reversed.view())] {
+            let all = adjacent_layer_thickness(&levels, data, RD, G0).unwrap();
+            assert_eq!(all.dim(), (2, 5, 3, 4));
+            for k in 0..5 {
+                let one = thickness_from_temperature(&levels, data, None, levels[k], levels[k + 1], RD, G0).unwrap();
+                assert_eq!(all.index_axis(Axis(1), k), one, "layer {k}");
+                assert!(one.iter().all(|&dz| dz > 0.0));
+            }
+        }
+    }
+
+    #[test]
+    fn adjacent_layer_thickness_is_hypsometric_and_keeps_missing_data() {
+        // Isothermal 1000-850 hPa: dz = (Rd/g0) T ln(1000/850) exactly
+        // (hypsometric equation) = 29.2716 * 250 * 0.162519 = 1189.3 m.
+        let mut t = Array4::from_elem((1, 6, 1, 2), 250.0f32);
+        t[[0, 2, 0, 1]] = f32::NAN;
+        let dz = adjacent_layer_thickness(&LEVELS, t.view(), RD, G0).unwrap();
+        let expected = RD / G0 * 250.0 * (100000.0f64 / 85000.0).ln();
+        assert!((dz[[0, 0, 0, 0]] as f64 - expected).abs() < 1e-3);
+        assert!((expected - 1189.3).abs() < 0.1);
+        // The missing value at 700 hPa spoils both layers that touch it only.
+        assert!(dz[[0, 1, 0, 1]].is_nan() && dz[[0, 2, 0, 1]].is_nan());
+        assert!(dz[[0, 0, 0, 1]].is_finite() && dz[[0, 3, 0, 1]].is_finite() && dz[[0, 1, 0, 0]].is_finite());
+    }
+
+    #[test]
+    fn adjacent_layer_thickness_refuses_what_has_no_layers() {
+        let t = Array4::from_elem((1, 3, 1, 1), 250.0f32);
+        assert_eq!(adjacent_layer_thickness(&[85000.0], t.view(), RD, G0).unwrap_err(), VerticalError::NoLevels);
+        assert_eq!(adjacent_layer_thickness(&[85000.0, 85000.0, 50000.0], t.view(), RD, G0).unwrap_err(), VerticalError::EmptyLayer { bottom: 850.0, top: 850.0 });
+        assert_eq!(adjacent_layer_thickness(&[85000.0, -1.0, 50000.0], t.view(), RD, G0).unwrap_err(), VerticalError::BadPressure(-1.0));
+        let err = adjacent_layer_thickness(&[85000.0, 50000.0], t.view(), RD, G0).unwrap_err();
+        assert_eq!(err.to_string(), "2 pressure levels given for data with 3 levels; they must match");
     }
 
     #[test]
