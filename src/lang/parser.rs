@@ -528,10 +528,18 @@ fn syntax_error(error: pest::error::Error<Rule>, source: &str, scanned: &Scan) -
     } else if found_word == "@" {
         diagnostic = diagnostic.with_help("a level is selected with `at`, such as temperature at 500 hPa");
     }
-    if found_span.start >= source.len() {
-        if let Some(&(bracket, offset)) = scanned.open_brackets.last() {
-            let (line, column) = line_and_column(source, offset);
-            diagnostic = diagnostic.with_note(format!("the `{bracket}` at line {line}, column {column} is not closed"));
+    // Name the bracket still open where reading stopped, if the text never
+    // closes it: the likely cause.
+    if !scanned.open_brackets.is_empty() {
+        let mut cut = position.min(source.len());
+        while !source.is_char_boundary(cut) {
+            cut -= 1;
+        }
+        if let Some(&(bracket, offset)) = scan(&source[..cut]).open_brackets.last() {
+            if scanned.open_brackets.iter().any(|&(_, open)| open == offset) {
+                let (line, column) = line_and_column(source, offset);
+                diagnostic = diagnostic.with_note(format!("the `{bracket}` at line {line}, column {column} is not closed"));
+            }
         }
     }
     diagnostic
