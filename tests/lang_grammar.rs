@@ -80,7 +80,7 @@ fn program(source: &str) -> Vec<String> {
     }
 }
 
-fn text_of<'a>(source: &'a str, span: Span) -> &'a str {
+fn text_of(source: &str, span: Span) -> &str {
     &source[span.start..span.end]
 }
 

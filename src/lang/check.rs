@@ -717,9 +717,12 @@ impl Checker<'_> {
         let described = match self.environment.catalog {
             Some(catalog) => match catalog.describe(&names) {
                 Ok(mut info) => {
-                    if info.name.is_empty() {
-                        info.name = display.clone();
-                    }
+                    info.name = match (alias, info.name.is_empty()) {
+                        (Some(alias), false) => format!("{} ({})", alias.name, info.name),
+                        (Some(alias), true) => alias.name.clone(),
+                        (None, true) => display.clone(),
+                        (None, false) => info.name,
+                    };
                     CurrentDataset::Known(info)
                 }
                 Err(message) => {
@@ -1015,9 +1018,9 @@ impl Checker<'_> {
         }
         if KNOWN_UNIT_WORDS.contains(&name) {
             let diagnostic = self.error(format!("unknown name `{name}`"), span, "a unit, not a name");
-            diagnostic.help = Some(format!(
-                "a unit is written right after its number, without spaces around `/`: such as 500 hPa or 10 m/s"
-            ));
+            diagnostic.help = Some(
+                "a unit is written right after its number, without spaces around `/`: such as 500 hPa or 10 m/s".to_string(),
+            );
             return;
         }
         let diagnostic = self.error(format!("unknown name `{name}`"), span, "not defined");
@@ -1656,7 +1659,7 @@ impl Checker<'_> {
                 }
                 let vector_right = right_component == Some(Component::Vector);
                 let vector_left = left_component == Some(Component::Vector);
-                if (vector_left && vector_right) || (operator == Divide && vector_right) {
+                if vector_right && (vector_left || operator == Divide) {
                     self.error(
                         format!("cannot {} by a vector field", if operator == Multiply { "multiply" } else { "divide" }),
                         right.span,
@@ -2029,9 +2032,13 @@ impl Checker<'_> {
                 .help = Some("`as` converts numbers and fields that have units".to_string());
             return Type::Unknown;
         };
+        // `a / 100 km as K/(100 km)` converts only `100 km`: say so.
+        let binds_tight = matches!(value.kind, ExprKind::Number { .. } | ExprKind::Angle { .. })
+            .then(|| format!("`as` binds tighter than arithmetic, so here it converts only `{value}`; to convert a whole expression, put it in parentheses: (...) as {target}"));
         let Some(source) = source_unit else {
-            self.error(format!("a pure number cannot be expressed in {target}"), value.span, "no unit to convert from")
-                .help = Some(format!("write the unit after the number instead, such as 5 {target}"));
+            let diagnostic = self.error(format!("a pure number cannot be expressed in {target}"), value.span, "no unit to convert from");
+            diagnostic.help = Some(format!("write the unit after the number instead, such as 5 {target}"));
+            diagnostic.notes.extend(binds_tight);
             return Type::Unknown;
         };
         match source.conversion_to(&target) {
@@ -2047,8 +2054,9 @@ impl Checker<'_> {
                 let expected = dimension_name(&source)
                     .map(|named| format!("`as` needs a unit of {}, such as {}", named.name, named.examples))
                     .unwrap_or_else(|| format!("`as` needs a unit convertible from {source}"));
-                self.error(format!("cannot express {} in {target}", kind.describe()), unit_text.span, "incompatible unit")
-                    .help = Some(expected);
+                let diagnostic = self.error(format!("cannot express {} in {target}", kind.describe()), unit_text.span, "incompatible unit");
+                diagnostic.help = Some(expected);
+                diagnostic.notes.extend(binds_tight);
                 Type::Unknown
             }
         }
