@@ -305,3 +305,25 @@ fn checking_an_empty_program_reports_nothing() {
     let report = check(&program, &support::environment());
     assert!(report.diagnostics.is_empty() && report.kinds.is_empty());
 }
+
+#[test]
+fn long_chains_of_functions_are_refused_without_exhausting_the_stack() {
+    // Thirty functions, each a 190-term sum that calls the previous one:
+    // every tree is within the parser's limits, but checking a call nests
+    // all the bodies. A 2 MiB stack (a test thread's) must be enough.
+    let mut source = String::from("function f0(a) = a\n");
+    for index in 1..30 {
+        source.push_str(&format!("function f{index}(a) = f{}(a){}\n", index - 1, " + a".repeat(190)));
+    }
+    source.push_str("f29(1 K)\n");
+    let messages = std::thread::Builder::new()
+        .stack_size(2 << 20)
+        .spawn(move || {
+            let (_, report) = check_source(&source, &support::environment()).unwrap();
+            report.errors().map(|diagnostic| diagnostic.message.clone()).collect::<Vec<_>>()
+        })
+        .unwrap()
+        .join()
+        .unwrap();
+    assert_eq!(messages, vec!["this is nested too deeply to check"]);
+}

@@ -528,6 +528,8 @@ pub fn check(program: &Program, environment: &Environment<'_>) -> CheckReport {
         local_functions: BTreeSet::new(),
         reported_no_dataset: false,
         top_level_seen: TopLevel::default(),
+        depth: 0,
+        reported_depth: false,
     };
     let mut kinds = Vec::new();
     for (index, statement) in program.statements.iter().enumerate() {
@@ -551,6 +553,8 @@ pub fn check_source(source: &str, environment: &Environment<'_>) -> Result<(Prog
 
 /// Deepest chain of user-function calls checked.
 const MAX_CALL_DEPTH: usize = 32;
+/// Deepest recursion of the checker over expressions, across calls.
+const MAX_CHECK_DEPTH: usize = 400;
 
 #[derive(Default)]
 struct TopLevel {
@@ -558,6 +562,15 @@ struct TopLevel {
     about: Option<Span>,
     parameters: BTreeMap<String, Span>,
     outputs: BTreeMap<String, Span>,
+}
+
+/// What a call calls.
+enum CallTarget<'e> {
+    User(Box<FunctionDefinition>),
+    Builtin(&'e Builtin),
+    Recipe(String),
+    /// Not callable (reported) or not known at check time.
+    Nothing,
 }
 
 /// A user function being checked at a call.
@@ -581,9 +594,12 @@ struct Checker<'e> {
     local_functions: BTreeSet<String>,
     reported_no_dataset: bool,
     top_level_seen: TopLevel,
+    /// Current recursion depth of `expr`.
+    depth: usize,
+    reported_depth: bool,
 }
 
-impl Checker<'_> {
+impl<'e> Checker<'e> {
     // ------------------------------------------------------------ reporting
 
     fn report(&mut self, mut diagnostic: Diagnostic) {
@@ -854,13 +870,114 @@ impl Checker<'_> {
     // ---------------------------------------------------------- expressions
 
     fn expr(&mut self, expr: &Expr) -> Type {
+        // The parser bounds a tree's depth, but calls of user functions nest
+        // their bodies: bound the checker's own recursion too.
+        if self.depth >= MAX_CHECK_DEPTH {
+            self.too_deep_to_check(expr.span);
+            return Type::Unknown;
+        }
+        self.depth += 1;
+        let kind = self.expr_unguarded(expr);
+        self.depth -= 1;
+        kind
+    }
+
+    /// The recursive step: evaluates the children, then hands their kinds
+    /// to a function that does the checking without recursing. Keeping the
+    /// heavy checks out of the recursive path keeps each level's stack frame
+    /// small (debug builds give every local of a function its own slot).
+    #[inline(never)]
+    fn too_deep_to_check(&mut self, span: Span) {
+        if !self.reported_depth {
+            self.reported_depth = true;
+            self.error("this is nested too deeply to check", span, "too deep")
+                .help = Some("split long expressions with `let`, and long chains of functions calling functions".to_string());
+        }
+    }
+
+    fn expr_unguarded(&mut self, expr: &Expr) -> Type {
         match &expr.kind {
-            ExprKind::Number { value, unit } => match unit {
-                None => Type::Number { unit: None, value: Some(*value) },
-                Some(text) => match self.unit(text) {
-                    Some(unit) => Type::Number { unit: Some(unit), value: Some(*value) },
-                    None => Type::Unknown,
-                },
+            ExprKind::Number { .. } | ExprKind::Angle { .. } => self.literal(expr),
+            ExprKind::String(value) => Type::String(Some(value.clone())),
+            ExprKind::Bool(_) => Type::Bool,
+            ExprKind::Name(name) => self.lookup(name, expr.span),
+            ExprKind::Call { callee, arguments, options } => self.call(expr, callee, arguments, options),
+            ExprKind::Block { statements } => self.block(statements, expr.span),
+            _ => self.operator_node(expr),
+        }
+    }
+
+    /// Operators: the operands first, then the operator's own check. One
+    /// small function per operator, so that each level of recursion holds
+    /// only its own operands' kinds.
+    #[inline(never)]
+    fn operator_node(&mut self, expr: &Expr) -> Type {
+        match &expr.kind {
+            ExprKind::Member { base, member } => self.member_node(base, member),
+            ExprKind::Unary { operator, operand } => self.unary_node(*operator, operand, expr.span),
+            ExprKind::Binary { operator, left, right } => self.binary_node(*operator, left, right, expr.span),
+            ExprKind::Range { from, to } => self.range_node(from, to, expr.span),
+            ExprKind::Select { base, how, selector } => self.select_node(base, *how, selector, expr.span),
+            ExprKind::Convert { value, unit } => self.convert_node(value, unit),
+            ExprKind::If { condition, then_branch, else_branch } => self.if_node(condition, then_branch, else_branch),
+            _ => Type::Unknown,
+        }
+    }
+
+    #[inline(never)]
+    fn member_node(&mut self, base: &Expr, member: &Identifier) -> Type {
+        let kind = self.expr(base);
+        self.member(kind, member)
+    }
+
+    #[inline(never)]
+    fn unary_node(&mut self, operator: UnaryOperator, operand: &Expr, span: Span) -> Type {
+        let kind = self.expr(operand);
+        self.unary(operator, kind, operand, span)
+    }
+
+    #[inline(never)]
+    fn binary_node(&mut self, operator: BinaryOperator, left: &Expr, right: &Expr, span: Span) -> Type {
+        let left_kind = self.expr(left);
+        let right_kind = self.expr(right);
+        self.binary(operator, left_kind, right_kind, left, right, span)
+    }
+
+    #[inline(never)]
+    fn range_node(&mut self, from: &Expr, to: &Expr, span: Span) -> Type {
+        let first = self.expr(from);
+        let second = self.expr(to);
+        self.range(first, second, from, to, span)
+    }
+
+    #[inline(never)]
+    fn select_node(&mut self, base: &Expr, how: SelectHow, selector: &Expr, span: Span) -> Type {
+        let base_kind = self.expr(base);
+        let selector_kind = self.expr(selector);
+        self.select(base_kind, selector_kind, base, how, selector, span)
+    }
+
+    #[inline(never)]
+    fn convert_node(&mut self, value: &Expr, unit: &UnitText) -> Type {
+        let kind = self.expr(value);
+        self.convert(kind, value, unit)
+    }
+
+    #[inline(never)]
+    fn if_node(&mut self, condition: &Expr, then_branch: &Expr, else_branch: &Expr) -> Type {
+        let condition_kind = self.expr(condition);
+        let then_kind = self.expr(then_branch);
+        let else_kind = self.expr(else_branch);
+        self.if_kind(condition_kind, then_kind, else_kind, condition, then_branch, else_branch)
+    }
+
+    #[inline(never)]
+    fn literal(&mut self, expr: &Expr) -> Type {
+        match &expr.kind {
+            ExprKind::Number { value, unit: None } => Type::Number { unit: None, value: Some(*value) },
+            ExprKind::Number { value, unit: Some(text) } => match self.unit(text) {
+                Some(unit) => Type::Number { unit: Some(unit), value: Some(*value) },
+                None => Type::Unknown,
             },
             ExprKind::Angle { value, hemisphere } => {
                 let (axis, limit) =
@@ -878,45 +995,42 @@ impl Checker<'_> {
                 let sign = if matches!(hemisphere, Hemisphere::South | Hemisphere::West) { -1.0 } else { 1.0 };
                 Type::Angle { axis, degrees: Some(sign * value) }
             }
-            ExprKind::String(value) => Type::String(Some(value.clone())),
-            ExprKind::Bool(_) => Type::Bool,
-            ExprKind::Name(name) => self.lookup(name, expr.span),
-            ExprKind::Call { callee, arguments, options } => self.call(expr, callee, arguments, options),
-            ExprKind::Member { base, member } => self.member(base, member),
-            ExprKind::Unary { operator, operand } => self.unary(*operator, operand, expr.span),
-            ExprKind::Binary { operator, left, right } => self.binary(*operator, left, right, expr.span),
-            ExprKind::Range { from, to } => self.range(from, to, expr.span),
-            ExprKind::Select { base, how, selector } => self.select(base, *how, selector, expr.span),
-            ExprKind::Convert { value, unit } => self.convert(value, unit),
-            ExprKind::If { condition, then_branch, else_branch } => {
-                let condition_kind = self.expr(condition);
-                let is_field_condition = matches!(&condition_kind, Type::Field(field) if field.component == Component::Boolean);
-                if !matches!(condition_kind, Type::Bool | Type::Unknown) && !is_field_condition {
-                    self.error("the condition of `if` must be true or false", condition.span, condition_kind.describe())
-                        .help = Some("compare something, such as if temperature > 273.15 K then ...".to_string());
-                }
-                let then_kind = self.expr(then_branch);
-                let else_kind = self.expr(else_branch);
-                if let Some(problem) = incompatible(&then_kind, &else_kind) {
-                    self.error("the two branches of `if` give different kinds of value", then_branch.span.to(else_branch.span), problem)
-                        .help = Some("make both branches the same kind, with units of the same dimension".to_string());
-                    return Type::Unknown;
-                }
-                match (&then_kind, is_field_condition) {
-                    (Type::Unknown, _) => else_kind,
-                    (Type::Number { unit, .. }, true) => Type::Field(FieldType {
-                        component: Component::Scalar,
-                        unit: unit.clone(),
-                        levels: Levels::Unknown,
-                        time: false,
-                        horizontal: true,
-                        origin: None,
-                    }),
-                    (Type::Number { unit, .. }, false) => Type::number(unit.clone()),
-                    _ => then_kind,
-                }
-            }
-            ExprKind::Block { statements } => self.block(statements, expr.span),
+            _ => Type::Unknown,
+        }
+    }
+
+    #[inline(never)]
+    fn if_kind(
+        &mut self,
+        condition_kind: Type,
+        then_kind: Type,
+        else_kind: Type,
+        condition: &Expr,
+        then_branch: &Expr,
+        else_branch: &Expr,
+    ) -> Type {
+        let is_field_condition = matches!(&condition_kind, Type::Field(field) if field.component == Component::Boolean);
+        if !matches!(condition_kind, Type::Bool | Type::Unknown) && !is_field_condition {
+            self.error("the condition of `if` must be true or false", condition.span, condition_kind.describe())
+                .help = Some("compare something, such as if temperature > 273.15 K then ...".to_string());
+        }
+        if let Some(problem) = incompatible(&then_kind, &else_kind) {
+            self.error("the two branches of `if` give different kinds of value", then_branch.span.to(else_branch.span), problem)
+                .help = Some("make both branches the same kind, with units of the same dimension".to_string());
+            return Type::Unknown;
+        }
+        match (&then_kind, is_field_condition) {
+            (Type::Unknown, _) => else_kind,
+            (Type::Number { unit, .. }, true) => Type::Field(FieldType {
+                component: Component::Scalar,
+                unit: unit.clone(),
+                levels: Levels::Unknown,
+                time: false,
+                horizontal: true,
+                origin: None,
+            }),
+            (Type::Number { unit, .. }, false) => Type::number(unit.clone()),
+            _ => then_kind,
         }
     }
 
@@ -1035,17 +1149,40 @@ impl Checker<'_> {
 
     // ---------------------------------------------------------------- calls
 
+    /// A call: the target is resolved, the arguments (and option values
+    /// that are expressions) are checked, then the call itself.
     fn call(&mut self, expr: &Expr, callee: &Expr, arguments: &[Expr], options: &[CallOption]) -> Type {
+        let target = self.call_target(callee);
+        let kinds: Vec<Type> = arguments.iter().map(|argument| self.expr(argument)).collect();
+        let mut option_kinds: Vec<Option<Type>> = Vec::with_capacity(options.len());
+        for option in options {
+            let evaluated = match &target {
+                CallTarget::Builtin(builtin) => {
+                    builtin.option(&option.name.name).is_some_and(|spec| !matches!(spec.kind, OptionKind::Words(_)))
+                }
+                CallTarget::Recipe(_) => true,
+                CallTarget::User(_) | CallTarget::Nothing => false,
+            };
+            option_kinds.push(if evaluated { Some(self.expr(&option.value)) } else { None });
+        }
+        match target {
+            CallTarget::User(definition) => self.user_call(&definition, expr, kinds, arguments, options),
+            CallTarget::Builtin(builtin) => self.builtin_call(builtin, expr, &kinds, arguments, options, &option_kinds),
+            CallTarget::Recipe(name) => self.recipe_call(&name, arguments, options),
+            CallTarget::Nothing => Type::Unknown,
+        }
+    }
+
+    /// What a call calls; reports callees that cannot be called.
+    #[inline(never)]
+    fn call_target(&mut self, callee: &Expr) -> CallTarget<'e> {
         let ExprKind::Name(name) = &callee.kind else {
             let kind = self.expr(callee);
             if !kind.is_unknown() {
                 self.error("only a named function can be called", callee.span, kind.describe())
                     .help = Some("call a built-in operator or a function defined with `function`".to_string());
             }
-            for argument in arguments {
-                self.expr(argument);
-            }
-            return Type::Unknown;
+            return CallTarget::Nothing;
         };
         // A local binding or parameter shadows functions.
         let bound = self
@@ -1056,45 +1193,35 @@ impl Checker<'_> {
             .or_else(|| self.scope.bindings.get(name).map(|binding| binding.kind.clone()));
         let target = match bound {
             Some(Type::Function(target)) => target,
-            Some(Type::Recipe(target)) => return self.recipe_call(&target, expr, arguments, options),
-            Some(Type::Unknown) => {
-                for argument in arguments {
-                    self.expr(argument);
-                }
-                return Type::Unknown;
-            }
+            Some(Type::Recipe(target)) => return CallTarget::Recipe(target),
+            Some(Type::Unknown) => return CallTarget::Nothing,
             Some(kind) => {
                 let diagnostic = self.error(format!("`{name}` is not a function"), callee.span, format!("this is {}", kind.describe()));
                 diagnostic.help = Some(format!("`{name}` was given a value with `let`, `parameter` or `output`; only functions can be called"));
-                for argument in arguments {
-                    self.expr(argument);
-                }
-                return Type::Unknown;
+                return CallTarget::Nothing;
             }
             None => name.clone(),
         };
-        if let Some(definition) = self.scope.functions.get(&target).cloned() {
-            return self.user_call(&definition, expr, arguments, options);
+        if let Some(definition) = self.scope.functions.get(&target) {
+            return CallTarget::User(Box::new(definition.clone()));
         }
         if self.environment.recipes.iter().any(|recipe| recipe.name == target) {
-            return self.recipe_call(&target, expr, arguments, options);
+            return CallTarget::Recipe(target);
         }
-        if let Some(builtin) = self.environment.builtins.iter().find(|builtin| builtin.name == target) {
-            return self.builtin_call(builtin, expr, arguments, options);
+        let environment: &'e Environment<'e> = self.environment;
+        if let Some(builtin) = environment.builtins.iter().find(|builtin| builtin.name == target) {
+            return CallTarget::Builtin(builtin);
         }
         // Calling a dataset variable or role.
         if let Some(info) = self.known_dataset() {
             if let Some(kind) = dataset_name(info, &target) {
                 let diagnostic = self.error(format!("`{target}` is not a function"), callee.span, format!("this is {}", kind.describe()));
                 diagnostic.help = Some(format!("select from it instead, such as {target} at 500 hPa"));
-                return Type::Unknown;
+                return CallTarget::Nothing;
             }
         }
-        for argument in arguments {
-            self.expr(argument);
-        }
         if self.dataset_is_opaque() && self.environment.builtins.is_empty() {
-            return Type::Unknown;
+            return CallTarget::Nothing;
         }
         let functions: Vec<String> = self
             .scope
@@ -1109,10 +1236,11 @@ impl Checker<'_> {
             Some(suggestion) => format!("did you mean `{suggestion}`?"),
             None => "define it with `function`, or see the list of built-in operators".to_string(),
         });
-        Type::Unknown
+        CallTarget::Nothing
     }
 
-    fn recipe_call(&mut self, name: &str, expr: &Expr, arguments: &[Expr], options: &[CallOption]) -> Type {
+    #[inline(never)]
+    fn recipe_call(&mut self, name: &str, arguments: &[Expr], options: &[CallOption]) -> Type {
         let Some(recipe) = self.environment.recipes.iter().find(|recipe| recipe.name == name).cloned() else {
             return Type::Unknown;
         };
@@ -1125,7 +1253,6 @@ impl Checker<'_> {
             ));
         }
         for option in options {
-            self.expr(&option.value);
             if !recipe.parameters.contains(&option.name.name) {
                 let suggestion = did_you_mean(&option.name.name, recipe.parameters.iter().map(String::as_str));
                 let diagnostic = self.error(
@@ -1139,12 +1266,43 @@ impl Checker<'_> {
                 });
             }
         }
-        let _ = expr;
         Type::Unknown
     }
 
-    fn user_call(&mut self, definition: &FunctionDefinition, expr: &Expr, arguments: &[Expr], options: &[CallOption]) -> Type {
-        let argument_kinds: Vec<Type> = arguments.iter().map(|argument| self.expr(argument)).collect();
+    fn user_call(
+        &mut self,
+        definition: &FunctionDefinition,
+        expr: &Expr,
+        argument_kinds: Vec<Type>,
+        arguments: &[Expr],
+        options: &[CallOption],
+    ) -> Type {
+        let Some(frame) = self.user_call_frame(definition, expr, argument_kinds, arguments, options) else {
+            return Type::Unknown;
+        };
+        let foreign = !self.local_functions.contains(&definition.name);
+        self.calls.push(CallFrame { name: definition.name.clone(), call_span: expr.span, call_text: expr.to_string(), foreign });
+        // The body sees its parameters and the top-level scope, not the
+        // caller's locals.
+        let saved = std::mem::take(&mut self.locals);
+        self.locals.push(frame);
+        let result = self.expr(&definition.body);
+        self.locals = saved;
+        self.calls.pop();
+        result
+    }
+
+    /// Checks a call of a user function; the parameters' kinds if it can be
+    /// checked further.
+    #[inline(never)]
+    fn user_call_frame(
+        &mut self,
+        definition: &FunctionDefinition,
+        expr: &Expr,
+        argument_kinds: Vec<Type>,
+        arguments: &[Expr],
+        options: &[CallOption],
+    ) -> Option<BTreeMap<String, Type>> {
         if let Some(first) = options.first() {
             self.error(format!("`{}` takes no options", definition.name), first.name.span, "option of a user function")
                 .help = Some("functions defined with `function` take arguments only; add a parameter instead".to_string());
@@ -1162,33 +1320,30 @@ impl Checker<'_> {
                 "wrong number of arguments",
             )
             .help = Some(format!("call it as {}({})", definition.name, names.join(", ")));
-            return Type::Unknown;
+            return None;
         }
         if self.calls.len() >= MAX_CALL_DEPTH {
             self.error("function calls are nested too deeply to check", expr.span, "too deep")
                 .help = Some(format!("at most {MAX_CALL_DEPTH} functions may call one another in a chain"));
-            return Type::Unknown;
+            return None;
         }
         if self.calls.iter().any(|frame| frame.name == definition.name) {
             // Recursion is rejected at definition; stop here regardless.
-            return Type::Unknown;
+            return None;
         }
-        let frame: BTreeMap<String, Type> =
-            definition.parameters.iter().map(|parameter| parameter.name.clone()).zip(argument_kinds).collect();
-        let foreign = !self.local_functions.contains(&definition.name);
-        self.calls.push(CallFrame { name: definition.name.clone(), call_span: expr.span, call_text: expr.to_string(), foreign });
-        // The body sees its parameters and the top-level scope, not the
-        // caller's locals.
-        let saved = std::mem::take(&mut self.locals);
-        self.locals.push(frame);
-        let result = self.expr(&definition.body);
-        self.locals = saved;
-        self.calls.pop();
-        result
+        Some(definition.parameters.iter().map(|parameter| parameter.name.clone()).zip(argument_kinds).collect())
     }
 
-    fn builtin_call(&mut self, builtin: &Builtin, expr: &Expr, arguments: &[Expr], options: &[CallOption]) -> Type {
-        let kinds: Vec<Type> = arguments.iter().map(|argument| self.expr(argument)).collect();
+    #[inline(never)]
+    fn builtin_call(
+        &mut self,
+        builtin: &Builtin,
+        expr: &Expr,
+        kinds: &[Type],
+        arguments: &[Expr],
+        options: &[CallOption],
+        option_kinds: &[Option<Type>],
+    ) -> Type {
         let mut failed = false;
         if arguments.len() != builtin.parameters.len() {
             let names: Vec<&str> = builtin.parameters.iter().map(|parameter| parameter.name).collect();
@@ -1205,19 +1360,19 @@ impl Checker<'_> {
             .help = Some(format!("{}: {}", builtin.signature(), builtin.documentation));
             failed = true;
         } else {
-            for ((parameter, argument), kind) in builtin.parameters.iter().zip(arguments).zip(&kinds) {
+            for ((parameter, argument), kind) in builtin.parameters.iter().zip(arguments).zip(kinds) {
                 if !self.argument(builtin, parameter, argument, kind) {
                     failed = true;
                 }
             }
         }
-        let chosen = self.options(builtin, options);
+        let chosen = self.options(builtin, options, option_kinds);
         if failed {
             return Type::Unknown;
         }
         self.requirements(builtin, &chosen, expr.span);
-        self.level_ranges(builtin, arguments, &kinds);
-        result_kind(builtin, &kinds, self.known_dataset().is_none_or(DatasetInfo::has_time))
+        self.level_ranges(builtin, arguments, kinds);
+        result_kind(builtin, kinds, self.known_dataset().is_none_or(DatasetInfo::has_time))
     }
 
     /// Checks one argument against its parameter; false if it is wrong.
@@ -1277,10 +1432,11 @@ impl Checker<'_> {
     }
 
     /// Checks the options; returns the chosen words per option name.
-    fn options(&mut self, builtin: &Builtin, options: &[CallOption]) -> BTreeMap<&'static str, String> {
+    fn options(&mut self, builtin: &Builtin, options: &[CallOption], option_kinds: &[Option<Type>]) -> BTreeMap<&'static str, String> {
         let mut chosen = BTreeMap::new();
         let mut seen: BTreeMap<String, Span> = BTreeMap::new();
-        for option in options {
+        for (index, option) in options.iter().enumerate() {
+            let evaluated = option_kinds.get(index).cloned().flatten().unwrap_or(Type::Unknown);
             let name = &option.name.name;
             if seen.contains_key(name) {
                 self.error(format!("the option `{name}` is given twice"), option.name.span, "given again")
@@ -1327,7 +1483,7 @@ impl Checker<'_> {
                     }
                 }
                 OptionKind::Angle => {
-                    let kind = self.expr(&option.value);
+                    let kind = evaluated.clone();
                     let ok = match &kind {
                         Type::Unknown => true,
                         Type::Number { unit, value } => {
@@ -1375,7 +1531,7 @@ impl Checker<'_> {
                     }
                 }
                 OptionKind::Length => {
-                    let kind = self.expr(&option.value);
+                    let kind = evaluated.clone();
                     let ok = match &kind {
                         Type::Unknown => true,
                         Type::Number { unit, .. } => is_dimension(unit, &METRE),
@@ -1489,8 +1645,8 @@ impl Checker<'_> {
 
     // -------------------------------------------------------------- members
 
-    fn member(&mut self, base: &Expr, member: &Identifier) -> Type {
-        let kind = self.expr(base);
+    #[inline(never)]
+    fn member(&mut self, kind: Type, member: &Identifier) -> Type {
         let name = member.name.as_str();
         let members: &[(&str, &str)] = match &kind {
             Type::Unknown => return Type::Unknown,
@@ -1553,8 +1709,8 @@ impl Checker<'_> {
 
     // ------------------------------------------------------------ operators
 
-    fn unary(&mut self, operator: UnaryOperator, operand: &Expr, span: Span) -> Type {
-        let kind = self.expr(operand);
+    #[inline(never)]
+    fn unary(&mut self, operator: UnaryOperator, kind: Type, operand: &Expr, span: Span) -> Type {
         match operator {
             UnaryOperator::Negate => match kind {
                 Type::Number { unit, value } => Type::Number { unit, value: value.map(|value| -value) },
@@ -1579,9 +1735,8 @@ impl Checker<'_> {
         }
     }
 
-    fn binary(&mut self, operator: BinaryOperator, left: &Expr, right: &Expr, span: Span) -> Type {
-        let left_kind = self.expr(left);
-        let right_kind = self.expr(right);
+    #[inline(never)]
+    fn binary(&mut self, operator: BinaryOperator, left_kind: Type, right_kind: Type, left: &Expr, right: &Expr, span: Span) -> Type {
         if left_kind.is_unknown() || right_kind.is_unknown() {
             return Type::Unknown;
         }
@@ -1780,9 +1935,8 @@ impl Checker<'_> {
         None
     }
 
-    fn range(&mut self, from: &Expr, to: &Expr, span: Span) -> Type {
-        let first = self.expr(from);
-        let second = self.expr(to);
+    #[inline(never)]
+    fn range(&mut self, first: Type, second: Type, from: &Expr, to: &Expr, span: Span) -> Type {
         match (&first, &second) {
             (Type::Unknown, _) | (_, Type::Unknown) => Type::Unknown,
             (Type::Number { unit: a, value: x }, Type::Number { unit: b, value: y }) if is_pressure(a) && is_pressure(b) => {
@@ -1886,9 +2040,8 @@ impl Checker<'_> {
         }
     }
 
-    fn select(&mut self, base: &Expr, how: SelectHow, selector: &Expr, span: Span) -> Type {
-        let base_kind = self.expr(base);
-        let selector_kind = self.expr(selector);
+    #[inline(never)]
+    fn select(&mut self, base_kind: Type, selector_kind: Type, base: &Expr, how: SelectHow, selector: &Expr, span: Span) -> Type {
         let word = how.word();
         let field = match &base_kind {
             Type::Unknown => return Type::Unknown,
@@ -2021,8 +2174,8 @@ impl Checker<'_> {
         }
     }
 
-    fn convert(&mut self, value: &Expr, unit_text: &UnitText) -> Type {
-        let kind = self.expr(value);
+    #[inline(never)]
+    fn convert(&mut self, kind: Type, value: &Expr, unit_text: &UnitText) -> Type {
         let Some(target) = self.unit(unit_text) else { return Type::Unknown };
         if kind.is_unknown() {
             return Type::Unknown;
