@@ -296,6 +296,11 @@ fn times_are_read_in_one_format() {
     assert!(normalise_time("2026-10-14 24:00").is_none());
     assert!(normalise_time("tomorrow").is_none());
     assert!(matches!(last_kind("time(3)"), Type::Time { .. }));
+    assert!(matches!(last_kind("time(\"2026-10-14 12:00\")"), Type::Time { at: Some(_) }));
+    // The case has five times, numbered 0 to 4.
+    assert_eq!(errors("time(5)"), vec!["the data have no time step 5"]);
+    assert_eq!(errors("time(\"noon\")"), vec!["\"noon\" is not a time"]);
+    assert_eq!(errors("time(\"2026-11-01 00:00\")"), vec!["2026-11-01 00:00 is outside the times of the data"]);
     assert_eq!(errors("time(1.5)"), vec!["the index or string of `time` must be a time step number such as 0 or a time such as \"2026-10-14 06:00\""]);
 }
 

@@ -1397,6 +1397,9 @@ impl<'e> Checker<'e> {
                     }
                 }
             }
+            if parameter.kind == ParameterKind::IndexOrString {
+                return self.time_argument(kind, argument.span);
+            }
             return true;
         }
         let expected = parameter.kind.describe();
@@ -1429,6 +1432,34 @@ impl<'e> Checker<'e> {
         )
         .help = Some(help);
         false
+    }
+
+    /// A time step number within the data, or a time string.
+    #[inline(never)]
+    fn time_argument(&mut self, kind: &Type, span: Span) -> bool {
+        match kind {
+            Type::String(_) => self.time_of(kind, span).is_some(),
+            Type::Number { value: Some(index), .. } => {
+                let Some(axis) = self.known_dataset().and_then(|info| info.times.clone()) else { return true };
+                if *index >= axis.count as f64 {
+                    self.error(
+                        format!("the data have no time step {}", format_number(*index)),
+                        span,
+                        "past the last time",
+                    )
+                    .help = Some(format!(
+                        "the data have {} times, numbered 0 to {} ({} to {})",
+                        axis.count,
+                        axis.count.saturating_sub(1),
+                        axis.first,
+                        axis.last
+                    ));
+                    return false;
+                }
+                true
+            }
+            _ => true,
+        }
     }
 
     /// Checks the options; returns the chosen words per option name.
