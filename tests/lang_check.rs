@@ -332,3 +332,16 @@ fn long_chains_of_functions_are_refused_without_exhausting_the_stack() {
         .unwrap();
     assert_eq!(messages, vec!["this is nested too deeply to check"]);
 }
+
+#[test]
+fn points_off_the_grid_are_warned_about() {
+    // The case covers 30 to 70 north and 60 west to 20 east.
+    no_errors("wind at point(52.5 north, 21 west)");
+    let outside = report("wind at point(80 north, 21 west)");
+    assert!(!outside.has_errors());
+    assert_eq!(outside.diagnostics[0].message, "this point lies outside the grid of skerry_case.nc");
+    assert_eq!(outside.diagnostics[0].help.as_deref(), Some("the grid covers 30 north to 70 north, 60 west to 20 east"));
+    // 340 east is 20 west: inside, once longitudes wrap.
+    assert!(report("wind at point(50 north, 340 east)").diagnostics.is_empty());
+    assert_eq!(report("wind at point(50 north, 100 east)").diagnostics.len(), 1);
+}

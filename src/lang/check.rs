@@ -1372,6 +1372,9 @@ impl<'e> Checker<'e> {
         }
         self.requirements(builtin, &chosen, expr.span);
         self.level_ranges(builtin, arguments, kinds);
+        if builtin.result_kind == ResultKind::Point {
+            self.point_on_grid(kinds, expr.span);
+        }
         result_kind(builtin, kinds, self.known_dataset().is_none_or(DatasetInfo::has_time))
     }
 
@@ -1432,6 +1435,44 @@ impl<'e> Checker<'e> {
         )
         .help = Some(help);
         false
+    }
+
+    /// Warns when a point lies outside the current dataset's grid (it may be
+    /// meant for another dataset, so this is not an error).
+    #[inline(never)]
+    fn point_on_grid(&mut self, kinds: &[Type], span: Span) {
+        let (Some(Type::Angle { degrees: Some(latitude), .. }), Some(Type::Angle { degrees: Some(longitude), .. })) =
+            (kinds.first(), kinds.get(1))
+        else {
+            return;
+        };
+        let Some(info) = self.known_dataset() else { return };
+        let (Some((south, north)), Some((west, east))) = (info.latitude_range, info.longitude_range) else { return };
+        let tolerance = 1e-9;
+        let inside_latitude = *latitude >= south - tolerance && *latitude <= north + tolerance;
+        // Longitudes wrap: measure eastward from the western edge.
+        let width = east - west;
+        let inside_longitude =
+            width >= 360.0 || (longitude - west).rem_euclid(360.0) <= width.rem_euclid(360.0) + tolerance;
+        if inside_latitude && inside_longitude {
+            return;
+        }
+        let name = info.name.clone();
+        let angle = |value: f64, positive: &str, negative: &str| {
+            format!("{} {}", format_number(value.abs()), if value < 0.0 { negative } else { positive })
+        };
+        let extent = format!(
+            "{} to {}, {} to {}",
+            angle(south, "north", "south"),
+            angle(north, "north", "south"),
+            angle(west, "east", "west"),
+            angle(east, "east", "west")
+        );
+        self.report(
+            Diagnostic::warning(format!("this point lies outside the grid of {name}"), span)
+                .with_label("no data here")
+                .with_help(format!("the grid covers {extent}")),
+        );
     }
 
     /// A time step number within the data, or a time string.
