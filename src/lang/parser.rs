@@ -28,7 +28,7 @@ use grammar::{BarocGrammar, Rule};
 /// Longest source accepted, in bytes. A recipe is a few kilobytes.
 pub const MAX_SOURCE_BYTES: usize = 256 << 10;
 /// Deepest nesting accepted: brackets, plus `if`, prefix `-`/`not` and `^`
-/// chains that the parser handles by recursion (see [`scan`]).
+/// chains that the parser handles by recursion (counted by a quick scan).
 pub const MAX_NESTING: usize = 100;
 /// Deepest syntax tree accepted (long operator chains build deep trees).
 pub const MAX_TREE_DEPTH: u32 = 200;
