@@ -130,6 +130,10 @@ pub fn run(request: &RunRequest) -> Result<RunOutcome, RunError> {
         b.set_prefix("running");
         b
     });
+    {
+        let evaluator = evaluator_for(request, dataset.as_ref())?;
+        lang::check_program(&program, &request.source, &evaluator).map_err(|d| rendered(&d, &request.source))?;
+    }
     let per_step: Vec<Result<(Vec<NamedResult>, RecipeHeader), RunError>> = step_list
         .par_iter()
         .map(|&t| {

@@ -80,15 +80,13 @@ impl Session {
     /// Runs one cell. On failure the session is as it was before the cell.
     pub fn run(&mut self, code: &str, interrupt: Option<Arc<AtomicBool>>) -> Result<CellOutput, CellError> {
         let program = lang::parse(code).map_err(|d| self.fail(&d, code))?;
-        let checked = crate::lang::check_program(&program, code, &self.evaluator);
-        if let Err(d) = checked {
-            return Err(self.fail(&d, code));
-        }
+        let (warnings, scope) = crate::lang::check_program(&program, code, &self.evaluator).map_err(|d| self.fail(&d, code))?;
         let saved = self.evaluator.snapshot();
         self.evaluator.set_interrupt(interrupt);
         let outcome = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| self.evaluator.run(&program, code)));
         self.evaluator.set_interrupt(None);
-        let notes = lang::eval::take_notes();
+        let mut notes = warnings;
+        notes.extend(lang::eval::take_notes());
         let printed = lang::eval::take_printed();
         let shown = match outcome {
             Ok(Ok(shown)) => shown,
@@ -104,6 +102,7 @@ impl Session {
                 return Err(self.fail(&[d], code));
             }
         };
+        self.evaluator.check_scope = scope;
         // `print(...)` shows its text on stdout, not as a value.
         let shown: Vec<_> = shown.into_iter().filter(|(_, v)| !matches!(v, Value::Text(t) if t.is_empty())).collect();
         let mut bundles: Vec<MimeBundle> = shown.iter().map(|(_, v)| crate::display::bundle(v)).collect();

@@ -163,7 +163,7 @@ fn recipes_save_reload_and_run_like_functions() {
     assert!(matches!(&listing, Value::Text(t) if t.contains("lower_shear(layer)")));
     let again = scalar(value(&mut fresh, "lower_shear()"));
     assert_eq!(first.data, again.data);
-    let other_layer = scalar(value(&mut fresh, "lower_shear(850 hPa to 500 hPa)"));
+    let other_layer = scalar(value(&mut fresh, "lower_shear() with layer (850 hPa to 500 hPa)"));
     assert_ne!(first.data, other_layer.data);
 }
 

@@ -60,6 +60,12 @@ pub const NAMES: &[&str] = &[
     "print",
 ];
 
+/// The operators that present rather than compute (pictures, tables,
+/// printing, the recipe library, reports). They are not in the checker's
+/// table of operators (`builtins::BUILTINS`): they accept values of many
+/// kinds and check them when they run.
+pub const PRESENTATION: &[&str] = &["recipes", "save_recipe", "map", "hodograph", "profile", "section", "time_series", "write_report", "print"];
+
 fn error(message: impl Into<String>, span: Span) -> Diagnostic {
     Diagnostic::error(message, span)
 }
@@ -523,7 +529,7 @@ pub fn call_builtin(
         }
         _ => {
             if let Some(path) = evaluator.recipe_path(name) {
-                return super::recipe::call_recipe(evaluator, &path, name, args.values, span);
+                return super::recipe::call_recipe(evaluator, &path, name, args.values, options.values, span);
             }
             let mut d = error(format!("unknown function `{name}`"), name_span);
             if let Some(s) = super::diagnostic::did_you_mean(name, NAMES.iter().copied()) {
@@ -559,5 +565,25 @@ fn angle_range(args: &Args, i: usize, axis: AngleAxis) -> Result<(f64, f64)> {
             _ => Err(wrong(args.name, v, *span, expected)),
         },
         _ => Err(wrong(args.name, v, *span, expected)),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_evaluator_and_the_checker_know_the_same_operators() {
+        // One list of names the evaluator dispatches on, one table the checker
+        // and inspection read: they must agree.
+        for b in crate::lang::builtins::BUILTINS {
+            assert!(NAMES.contains(&b.name), "`{}` is in the checker's table but the evaluator cannot run it", b.name);
+        }
+        for n in NAMES {
+            assert!(
+                crate::lang::builtins::BUILTINS.iter().any(|b| b.name == *n) || PRESENTATION.contains(n),
+                "`{n}` runs but the checker does not know it"
+            );
+        }
     }
 }

@@ -151,7 +151,8 @@ fn line_index(lines: &[Line], offset: usize) -> usize {
         }
     }) {
         Ok(index) => index,
-        Err(index) => index.min(lines.len() - 1),
+        // Between two lines: inside the first one's line break.
+        Err(index) => index.saturating_sub(1).min(lines.len() - 1),
     }
 }
 
@@ -218,7 +219,7 @@ pub fn render(diagnostic: &Diagnostic, source: &str, options: &RenderOptions) ->
     let last = if end > start { line_index(&lines, end - 1) } else { first };
 
     let first_line = &lines[first];
-    let character_column = source[first_line.start..start].chars().count() + 1;
+    let character_column = source[first_line.start..start.clamp(first_line.start, first_line.end)].chars().count() + 1;
     let gutter = (last + 1).to_string().len();
     let pad = " ".repeat(gutter);
     let bar = style.paint("1;34", "|");

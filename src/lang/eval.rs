@@ -71,6 +71,7 @@ pub struct Snapshot {
     recipe: RecipeHeader,
     outputs: Vec<(String, Value)>,
     definitions: Vec<(String, String)>,
+    check_scope: super::check::Scope,
 }
 
 /// Selection state passed down an expression.
@@ -105,6 +106,8 @@ pub struct Evaluator {
     depth: usize,
     interrupt: Option<Arc<AtomicBool>>,
     source: String,
+    /// The checker's view of what earlier programs defined.
+    pub check_scope: super::check::Scope,
     /// Source text of the top-level definitions made so far (bindings,
     /// functions, parameters, outputs), for saving them as a recipe.
     pub definitions: Vec<(String, String)>,
@@ -165,6 +168,7 @@ impl Evaluator {
             depth: 0,
             interrupt: None,
             source: String::new(),
+            check_scope: super::check::Scope::default(),
             definitions: Vec::new(),
         }
     }
@@ -181,6 +185,7 @@ impl Evaluator {
             recipe: self.recipe.clone(),
             outputs: self.outputs.clone(),
             definitions: self.definitions.clone(),
+            check_scope: self.check_scope.clone(),
         }
     }
 
@@ -194,6 +199,7 @@ impl Evaluator {
         self.recipe = s.recipe;
         self.outputs = s.outputs;
         self.definitions = s.definitions;
+        self.check_scope = s.check_scope;
         self.locals.clear();
         self.depth = 0;
     }
@@ -805,12 +811,9 @@ impl Evaluator {
                 if (p1 - p2).abs() < 1e-9 {
                     return Err(error("a layer needs two different pressures", span).with_help("for one level write `at 500 hPa`"));
                 }
-                let (layer, swapped) = Layer::new(p1, p2);
-                if swapped {
-                    // A note, not an error: the trade writes layers both ways.
-                    self_note(format!("the layer {} was written top first; Baroc puts the larger pressure at the bottom", layer.label()), span);
-                }
-                Ok(Value::Layer(layer))
+                // Written top first is fine (the checker notes it): the
+                // larger pressure becomes the bottom.
+                Ok(Value::Layer(Layer::new(p1, p2).0))
             }
             (Value::Number { unit: ux, .. }, Value::Number { unit: uy, .. }) if ux.dimension() == Dimension::PRESSURE || uy.dimension() == Dimension::PRESSURE => {
                 Err(error("a layer runs from one pressure to another", span).with_help("write both ends as pressures, for example 1000 hPa to 500 hPa"))
@@ -1170,11 +1173,6 @@ enum TimeWanted {
 
 thread_local! {
     static NOTES: std::cell::RefCell<Vec<Diagnostic>> = const { std::cell::RefCell::new(Vec::new()) };
-}
-
-/// Records a note (a warning-level diagnostic) for the current run.
-fn self_note(message: String, span: Span) {
-    NOTES.with(|n| n.borrow_mut().push(Diagnostic::warning(message, span)));
 }
 
 thread_local! {

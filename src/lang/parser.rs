@@ -26,16 +26,17 @@ mod grammar {
 use grammar::{BarocGrammar, Rule};
 
 /// Longest source accepted, in bytes. A recipe is a few kilobytes.
-pub const MAX_SOURCE_BYTES: usize = 1 << 20;
+pub const MAX_SOURCE_BYTES: usize = 256 << 10;
 /// Deepest nesting accepted: brackets, plus `if`, prefix `-`/`not` and `^`
-/// chains that the parser handles by recursion (see [`scan`]).
+/// chains that the parser handles by recursion (counted by a quick scan).
 pub const MAX_NESTING: usize = 100;
 /// Deepest syntax tree accepted (long operator chains build deep trees).
 pub const MAX_TREE_DEPTH: u32 = 200;
 /// Budget of grammar rule calls for one parse (pest counts every rule,
-/// sequence and repetition entry). A 50-line recipe uses about a tenth of
-/// a percent of it; it only stops input built to make the parser backtrack.
-pub const CALL_LIMIT: usize = 5_000_000;
+/// sequence and repetition entry). Ordinary text costs about 50 calls per
+/// byte, so the longest accepted source fits twice over; the budget only
+/// stops input built to make the parser backtrack.
+pub const CALL_LIMIT: usize = 25_000_000;
 
 static SET_CALL_LIMIT: Once = Once::new();
 
@@ -78,21 +79,46 @@ pub enum Completeness {
 
 /// Parses a whole program.
 pub fn parse(source: &str) -> Result<Program, Vec<Diagnostic>> {
+    parse_with_scan(source, &scan(source)).map_err(|failure| failure.diagnostics)
+}
+
+/// Why a parse failed, with what `is_complete` needs to know.
+struct Failure {
+    diagnostics: Vec<Diagnostic>,
+    /// Where the grammar stopped, for a syntax error (not for limits or
+    /// errors found while building the tree).
+    syntax_position: Option<usize>,
+}
+
+fn parse_with_scan(source: &str, scanned: &Scan) -> Result<Program, Failure> {
+    let fail = |diagnostic: Diagnostic| Failure { diagnostics: vec![diagnostic], syntax_position: None };
     if source.len() > MAX_SOURCE_BYTES {
-        return Err(vec![Diagnostic::error(
-            format!("this text is too long to read ({} bytes; the limit is {MAX_SOURCE_BYTES})", source.len()),
-            Span::new(0, 0),
-        )
-        .with_help("split it into several recipes or cells")]);
+        return Err(fail(
+            Diagnostic::error(
+                format!("this text is too long to read ({} bytes; the limit is {MAX_SOURCE_BYTES})", source.len()),
+                Span::new(0, 0),
+            )
+            .with_help("split it into several recipes or cells"),
+        ));
     }
-    let scanned = scan(source);
     if let Some(diagnostic) = scanned.nesting_error.clone() {
-        return Err(vec![diagnostic]);
+        return Err(fail(diagnostic));
     }
     SET_CALL_LIMIT.call_once(|| pest::set_call_limit(NonZeroUsize::new(CALL_LIMIT)));
     let mut pairs = match BarocGrammar::parse(Rule::program, source) {
         Ok(pairs) => pairs,
-        Err(error) => return Err(vec![syntax_error(error, source, &scanned)]),
+        Err(error) => {
+            let position = match error.location {
+                InputLocation::Pos(position) => position,
+                InputLocation::Span((start, _)) => start,
+            };
+            // A limit of the parser (calls, stack) is not a place in the text.
+            let limit_reached = matches!(&error.variant, ErrorVariant::CustomError { .. });
+            return Err(Failure {
+                diagnostics: vec![syntax_error(error, source, scanned)],
+                syntax_position: (!limit_reached).then_some(position),
+            });
+        }
     };
     let program = pairs.next().expect("the program rule always yields one pair");
     let mut builder = Builder { errors: Vec::new() };
@@ -100,7 +126,7 @@ pub fn parse(source: &str) -> Result<Program, Vec<Diagnostic>> {
     if builder.errors.is_empty() {
         Ok(Program { statements, span: Span::new(0, source.len()) })
     } else {
-        Err(builder.errors)
+        Err(Failure { diagnostics: builder.errors, syntax_position: None })
     }
 }
 
@@ -130,24 +156,13 @@ pub fn is_complete(source: &str) -> Completeness {
     if !scanned.open_brackets.is_empty() {
         return Completeness::Incomplete { indent };
     }
-    SET_CALL_LIMIT.call_once(|| pest::set_call_limit(NonZeroUsize::new(CALL_LIMIT)));
-    match BarocGrammar::parse(Rule::program, source) {
-        Ok(_) => match parse(source) {
-            Ok(_) => Completeness::Complete,
-            Err(_) => Completeness::Invalid,
-        },
-        Err(error) => {
-            let position = match error.location {
-                InputLocation::Pos(position) => position,
-                InputLocation::Span((start, _)) => start,
-            };
-            let limit_reached = matches!(&error.variant, ErrorVariant::CustomError { .. });
-            if !limit_reached && only_blank_after(source, position) {
-                Completeness::Incomplete { indent }
-            } else {
-                Completeness::Invalid
-            }
+    match parse_with_scan(source, &scanned) {
+        Ok(_) => Completeness::Complete,
+        // Stopped at the end of the text: more lines could finish it.
+        Err(Failure { syntax_position: Some(position), .. }) if only_blank_after(source, position) => {
+            Completeness::Incomplete { indent }
         }
+        Err(_) => Completeness::Invalid,
     }
 }
 
@@ -212,6 +227,8 @@ fn scan(source: &str) -> Scan {
     let mut scan = Scan::default();
     // Recursive tokens counted per open bracket; index 0 is the top level.
     let mut frames: Vec<usize> = vec![0];
+    // frames.len() - 1 + the sum of frames, kept up to date as they change.
+    let mut depth = 0usize;
     let mut previous = Previous::Continues;
     let bytes = source.as_bytes();
     let mut index = 0;
@@ -228,6 +245,7 @@ fn scan(source: &str) -> Scan {
             b'\n' | b'\r' => {
                 index += 1;
                 if frames.len() == 1 && previous == Previous::Ends {
+                    depth -= frames[0];
                     frames[0] = 0;
                     previous = Previous::Continues;
                     scan.statement_start = index;
@@ -235,6 +253,7 @@ fn scan(source: &str) -> Scan {
                 continue;
             }
             b';' if frames.len() == 1 => {
+                depth -= frames[0];
                 frames[0] = 0;
                 previous = Previous::Continues;
                 index += 1;
@@ -270,6 +289,7 @@ fn scan(source: &str) -> Scan {
             b'(' | b'{' => {
                 scan.open_brackets.push((byte as char, index));
                 frames.push(0);
+                depth += 1;
                 index += 1;
                 previous = Previous::Continues;
             }
@@ -278,7 +298,9 @@ fn scan(source: &str) -> Scan {
                 match scan.open_brackets.last() {
                     Some(&(open, _)) if open == expected => {
                         scan.open_brackets.pop();
-                        frames.pop();
+                        if let Some(count) = frames.pop() {
+                            depth -= count + 1;
+                        }
                     }
                     _ => {
                         if scan.stray_closer.is_none() {
@@ -322,9 +344,9 @@ fn scan(source: &str) -> Scan {
         if recursive {
             if let Some(last) = frames.last_mut() {
                 *last += 1;
+                depth += 1;
             }
         }
-        let depth = frames.len() - 1 + frames.iter().sum::<usize>();
         if depth > MAX_NESTING && !nesting_reported {
             nesting_reported = true;
             let end = index.max(token_start + 1).min(source.len());
@@ -363,7 +385,6 @@ fn describe_rule(rule: &Rule) -> String {
         string | string_content => "a string in double quotes",
         unit => "a unit such as K, hPa or m/s",
         number | number_literal => "a number",
-        angle => "an angle such as 52.5 north",
         hemisphere => "`north`, `south`, `east` or `west`",
         at_selector => "a level, point or time after `at` (such as 500 hPa)",
         over_selector => "a layer after `over` (such as 1000 hPa to 500 hPa)",
@@ -528,10 +549,18 @@ fn syntax_error(error: pest::error::Error<Rule>, source: &str, scanned: &Scan) -
     } else if found_word == "@" {
         diagnostic = diagnostic.with_help("a level is selected with `at`, such as temperature at 500 hPa");
     }
-    if found_span.start >= source.len() {
-        if let Some(&(bracket, offset)) = scanned.open_brackets.last() {
-            let (line, column) = line_and_column(source, offset);
-            diagnostic = diagnostic.with_note(format!("the `{bracket}` at line {line}, column {column} is not closed"));
+    // Name the bracket still open where reading stopped, if the text never
+    // closes it: the likely cause.
+    if !scanned.open_brackets.is_empty() {
+        let mut cut = position.min(source.len());
+        while !source.is_char_boundary(cut) {
+            cut -= 1;
+        }
+        if let Some(&(bracket, offset)) = scan(&source[..cut]).open_brackets.last() {
+            if scanned.open_brackets.iter().any(|&(_, open)| open == offset) {
+                let (line, column) = line_and_column(source, offset);
+                diagnostic = diagnostic.with_note(format!("the `{bracket}` at line {line}, column {column} is not closed"));
+            }
         }
     }
     diagnostic
@@ -736,6 +765,9 @@ impl Builder {
 
     fn postfix(&mut self, base: Node, operator: Pair<'_, Rule>) -> Built {
         let operator_span = span_of(&operator);
+        if base.depth >= MAX_TREE_DEPTH {
+            return Err(too_deep(operator_span));
+        }
         let span = base.expr.span.to(operator_span);
         match operator.as_rule() {
             Rule::call_arguments => {
@@ -848,20 +880,20 @@ impl Builder {
                 let mut parts = pair.into_inner();
                 let number = parts.next().expect("a number");
                 let value = parse_number(&number)?;
-                let unit = parts.next().map(|unit| unit_text(&unit));
-                node(Expr::new(ExprKind::Number { value, unit }, span), 1)
-            }
-            Rule::angle => {
-                let mut parts = pair.into_inner();
-                let value = parse_number(&parts.next().expect("a number"))?;
-                let word = parts.next().expect("a hemisphere").into_inner().next().expect("a hemisphere word");
-                let hemisphere = match word.as_rule() {
-                    Rule::north_keyword => Hemisphere::North,
-                    Rule::south_keyword => Hemisphere::South,
-                    Rule::east_keyword => Hemisphere::East,
-                    _ => Hemisphere::West,
+                let kind = match parts.next() {
+                    Some(word) if word.as_rule() == Rule::hemisphere => {
+                        let hemisphere = match word.into_inner().next().map(|word| word.as_rule()) {
+                            Some(Rule::north_keyword) => Hemisphere::North,
+                            Some(Rule::south_keyword) => Hemisphere::South,
+                            Some(Rule::east_keyword) => Hemisphere::East,
+                            _ => Hemisphere::West,
+                        };
+                        ExprKind::Angle { value, hemisphere }
+                    }
+                    Some(unit) => ExprKind::Number { value, unit: Some(unit_text(&unit)) },
+                    None => ExprKind::Number { value, unit: None },
                 };
-                node(Expr::new(ExprKind::Angle { value, hemisphere }, span), 1)
+                node(Expr::new(kind, span), 1)
             }
             Rule::string => {
                 let literal = self.string_literal(pair)?;
@@ -915,6 +947,9 @@ fn infix(left: Node, operator: Pair<'_, Rule>, right: Node) -> Built {
     let operator_span = span_of(&operator);
     let span = left.expr.span.to(right.expr.span);
     let depth = left.depth.max(right.depth) + 1;
+    if depth > MAX_TREE_DEPTH {
+        return Err(too_deep(operator_span));
+    }
     let operator = match operator.as_rule() {
         Rule::to_keyword => {
             if !left.grouped && matches!(left.expr.kind, ExprKind::Range { .. }) {

@@ -124,15 +124,28 @@ pub fn save_session(evaluator: &Evaluator, name: &str) -> Result<PathBuf, String
     Ok(path)
 }
 
-/// Runs a recipe from the library like a function: positional arguments
-/// override its parameters in the order declared; the result is its one
-/// output, or a record of all of them.
-pub fn call_recipe(evaluator: &mut Evaluator, path: &Path, name: &str, arguments: Vec<(Value, Span)>, span: Span) -> Result<Value, Diagnostic> {
+/// Runs a recipe from the library like a function, its parameters given
+/// as options (`budget() with layer (850 hPa to 500 hPa)`); the result is
+/// its one output, or a record of all of them.
+pub fn call_recipe(
+    evaluator: &mut Evaluator,
+    path: &Path,
+    name: &str,
+    arguments: Vec<(Value, Span)>,
+    options: Vec<(String, Span, Value, Span)>,
+    span: Span,
+) -> Result<Value, Diagnostic> {
     let source = std::fs::read_to_string(path).map_err(|e| Diagnostic::error(format!("cannot read the recipe {}: {e}", path.display()), span))?;
     let header = read_header(&source).map_err(|d| Diagnostic::error(format!("the recipe `{name}` does not parse: {}", d.first().map(|d| d.message.clone()).unwrap_or_default()), span))?;
-    if arguments.len() > header.parameters.len() {
-        return Err(Diagnostic::error(format!("the recipe `{name}` takes at most {} arguments, got {}", header.parameters.len(), arguments.len()), span)
-            .with_help(format!("{name}({})", header.parameters.iter().map(|p| p.name.as_str()).collect::<Vec<_>>().join(", "))));
+    if let Some((_, s)) = arguments.first() {
+        return Err(Diagnostic::error(format!("the recipe `{name}` takes its parameters as options"), *s)
+            .with_help(format!("write {name}() with {} ...", header.parameters.first().map_or("parameter", |p| p.name.as_str()))));
+    }
+    for (option, s, _, _) in &options {
+        if !header.parameters.iter().any(|p| p.name == *option) {
+            return Err(Diagnostic::error(format!("the recipe `{name}` has no parameter `{option}`"), *s)
+                .with_help(format!("its parameters are {}", header.parameters.iter().map(|p| p.name.as_str()).collect::<Vec<_>>().join(", "))));
+        }
     }
     let mut sub = Evaluator::new();
     sub.constants = evaluator.constants;
@@ -143,8 +156,8 @@ pub fn call_recipe(evaluator: &mut Evaluator, path: &Path, name: &str, arguments
     if let Some(d) = evaluator.current_dataset() {
         sub.attach_dataset("data", d.clone());
     }
-    for (p, (v, _)) in header.parameters.iter().zip(arguments) {
-        sub.overrides.insert(p.name.clone(), v);
+    for (option, _, v, _) in options {
+        sub.overrides.insert(option, v);
     }
     let program = super::parser::parse(&source).map_err(|d| Diagnostic::error(format!("the recipe `{name}` does not parse: {}", d[0].message), span))?;
     sub.run(&program, &source).map_err(|d| {
