@@ -74,7 +74,7 @@ def test_errors_carry_the_caret_and_the_count(kernel):
     assert reply["status"] == "error" and isinstance(reply["execution_count"], int)
     error = [m for m in messages if m["msg_type"] == "error"][0]["content"]
     traceback = "\n".join(error["traceback"])
-    assert "cannot add" in traceback and "^" in traceback and "units do not match" in traceback
+    assert "cannot add" in traceback and "^" in traceback and "units of different dimensions" in traceback
     reply, messages = run(kernel, "temperatur at 500 hPa")
     traceback = "\n".join([m for m in messages if m["msg_type"] == "error"][0]["content"]["traceback"])
     assert "did you mean `temperature`?" in traceback

@@ -161,7 +161,8 @@ def test_bad_input_is_refused_with_what_is_available(baroc, demo_case, tmp_path)
     done = run(baroc, "run", "-e", "temperatur at 500 hPa", demo_case, check=False)
     assert done.returncode != 0 and "did you mean `temperature`?" in done.stderr and "^" in done.stderr
     done = run(baroc, "run", "-e", "temperature at 1050 hPa", demo_case, check=False)
-    assert done.returncode != 0 and "outside the data's levels (200 to 1000 hPa)" in done.stderr
+    assert done.returncode != 0 and "1050 hPa is below the lowest level of temperature (1000 hPa)" in done.stderr
+    assert "the levels of temperature are 1000, 925, 850" in done.stderr
     done = run(baroc, "inspect", tmp_path / "nothing-here.nc", check=False)
     assert done.returncode != 0 and "cannot open" in done.stderr
     # Nothing is written when a run fails.
