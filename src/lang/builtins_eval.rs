@@ -5,7 +5,7 @@
 use std::sync::Arc;
 
 use super::diagnostic::{list_words, Diagnostic};
-use super::eval::{format_latitude, format_longitude, geopotential_kind, thickness_route, Evaluator};
+use super::eval::{engine_error, format_latitude, format_longitude, geopotential_kind, thickness_route, Evaluator};
 use super::syntax::Span;
 use super::value::{AngleAxis, Series, Value};
 use crate::calendar::DateTime;
@@ -68,17 +68,6 @@ pub const PRESENTATION: &[&str] = &["recipes", "save_recipe", "map", "hodograph"
 
 fn error(message: impl Into<String>, span: Span) -> Diagnostic {
     Diagnostic::error(message, span)
-}
-
-fn engine_error(e: DiagnosticError, span: Span) -> Diagnostic {
-    let text = e.to_string();
-    match text.split_once("; available") {
-        Some((what, rest)) => error(what, span).with_help(format!("available{rest}")),
-        None => match text.split_once("; roles found") {
-            Some((what, rest)) => error(what, span).with_help(format!("roles found{rest}")),
-            None => error(text, span),
-        },
-    }
 }
 
 struct Args<'a> {

@@ -123,7 +123,9 @@ fn error(message: impl Into<String>, span: Span) -> Diagnostic {
     Diagnostic::error(message, span)
 }
 
-fn engine_error(e: DiagnosticError, span: Span) -> Diagnostic {
+/// An engine error as a diagnostic at `span`; the list of what is
+/// available goes to the help line so the caret line stays short.
+pub(crate) fn engine_error(e: DiagnosticError, span: Span) -> Diagnostic {
     let text = e.to_string();
     // The data errors already say what is available; split the list into
     // the help line so the caret line stays short.
