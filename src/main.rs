@@ -52,7 +52,7 @@ enum Command {
         files: Vec<PathBuf>,
     },
     /// Evaluate a script, recipe or expression on data files and write every named result to CF NetCDF.
-    #[command(after_help = "Examples (on the demo case):\n  baroc run -e 'thermal_wind(1000 hPa to 500 hPa)' -o shear.nc baroc-demo/marrowind-wave-2026-10-14.nc\n  baroc run recipes/layer-thermal-wind.baroc --set 'layer=850 hPa to 300 hPa' -o out.nc --report out.html baroc-demo/marrowind-wave-2026-10-14.nc")]
+    #[command(after_help = "Examples (on the demo case):\n  baroc run -e 'thermal_wind(1000 hPa to 500 hPa)' -o shear.nc baroc-demo/marrowind-wave-2026-10-14.nc\n  baroc run recipes/thermal-wind-budget.baroc --set 'layer=850 hPa to 300 hPa' -o out.nc --report out.html baroc-demo/marrowind-wave-2026-10-14.nc")]
     Run {
         #[command(flatten)]
         program: ProgramArgs,

@@ -178,3 +178,33 @@ fn a_failed_cell_changes_nothing() {
         other => panic!("{}", other.kind()),
     }
 }
+
+#[test]
+fn each_time_step_run_in_parallel_equals_one_run() {
+    // The runner's step-by-step mode (parallel over time steps) must give
+    // the same numbers as evaluating all times at once.
+    let request = |each_time: bool| baroc::runner::RunRequest {
+        source: "let dz = thickness(1000 hPa to 500 hPa)\nlet vt = thermal_wind(850 hPa to 300 hPa)".into(),
+        origin: "test".into(),
+        data_files: vec![demo_file()],
+        overrides: Vec::new(),
+        each_time,
+        time_steps: None,
+        progress: false,
+        recipe_folders: Vec::new(),
+    };
+    let whole = baroc::runner::run(&request(false)).unwrap();
+    let stepped = baroc::runner::run(&request(true)).unwrap();
+    for (a, b) in whole.results.iter().zip(&stepped.results) {
+        assert_eq!(a.name, b.name);
+        match (&a.value, &b.value) {
+            (Value::Scalar(x), Value::Scalar(y)) => {
+                assert_eq!(x.data, y.data);
+                assert_eq!(x.times, y.times);
+            }
+            (Value::Vector(x), Value::Vector(y)) => assert_eq!(x.eastward.data, y.eastward.data),
+            _ => panic!("unexpected kinds"),
+        }
+    }
+    assert_eq!(whole.results.len(), 2);
+}
