@@ -5,7 +5,6 @@ use ndarray::{ArrayView2, Axis};
 
 use crate::grid::{Field, VectorField};
 use crate::mime::MimeBundle;
-use crate::render::colour::Levels;
 use crate::render::map::{ContourLayer, MapSpec, ShadedLayer, VectorLayer};
 use crate::render::{FigureSize, RenderError};
 
@@ -42,13 +41,13 @@ pub fn field_map_with(f: &Field, vectors: Option<&VectorField>, size: &FigureSiz
     let mut spec = MapSpec::new(format!("{} ({})", f.long_name, f.units), &f.grid.latitudes, &f.grid.longitudes).subtitle(note);
     let shaded = ShadedLayer::new(values, f.name.clone(), f.units.clone());
     spec = spec.shaded(shaded);
-    let mut lines = ContourLayer::new(values, f.name.clone(), f.units.clone());
+    // Lines where the trade draws them (thickness and heights every 60 m);
+    // other fields are read from the shading and its colour bar, since lines
+    // on a noisy signed field (advection, vorticity) clutter the map with
+    // small rings around zero.
     if let Some(interval) = habitual_interval(f) {
-        lines = lines.every(interval);
-    } else {
-        lines = lines.levels(Levels::Auto);
+        spec = spec.contour_lines(ContourLayer::new(values, f.name.clone(), f.units.clone()).every(interval));
     }
-    spec = spec.contour_lines(lines);
     let vector_slices;
     if let Some(w) = vectors {
         vector_slices = (first_slice(&w.eastward).0, first_slice(&w.northward).0);
