@@ -272,3 +272,87 @@ pub fn time_series(series: &crate::lang::value::Series, size: &FigureSize) -> Re
     };
     Ok(render_time_series(&spec, size)?)
 }
+
+/// Several finished figures side by side in one, `columns` to a row: the
+/// PNGs tiled on a white canvas (each at its own resolution, scaled to the
+/// first's), the SVGs nested as positioned `<svg>` elements.
+pub fn panels(figures: &[MimeBundle], columns: usize, title: &str) -> Result<MimeBundle, FigureError> {
+    use base64::Engine;
+    if figures.is_empty() {
+        return Err(FigureError::Data("`panels` needs at least one figure".into()));
+    }
+    let columns = columns.clamp(1, figures.len());
+    let decoded: Vec<(u32, u32, Vec<u8>)> = figures
+        .iter()
+        .map(|b| {
+            let bytes = b.binary("image/png").ok_or_else(|| FigureError::Data("a panel has no PNG picture".into()))?;
+            let mut reader = png::Decoder::new(std::io::Cursor::new(bytes)).read_info().map_err(|e| FigureError::Data(e.to_string()))?;
+            let mut buffer = vec![0; reader.output_buffer_size().unwrap_or(0)];
+            let info = reader.next_frame(&mut buffer).map_err(|e| FigureError::Data(e.to_string()))?;
+            let channels = info.color_type.samples();
+            // To RGB.
+            let rgb: Vec<u8> = buffer[..info.width as usize * info.height as usize * channels]
+                .chunks(channels)
+                .flat_map(|p| if channels >= 3 { [p[0], p[1], p[2]] } else { [p[0], p[0], p[0]] })
+                .collect();
+            Ok((info.width, info.height, rgb))
+        })
+        .collect::<Result<_, FigureError>>()?;
+    let cell_w = decoded.iter().map(|d| d.0).max().unwrap_or(1);
+    let cell_h = decoded.iter().map(|d| d.1).max().unwrap_or(1);
+    let rows = figures.len().div_ceil(columns);
+    let (width, height) = (cell_w * columns as u32, cell_h * rows as u32);
+    if (width as u64) * (height as u64) > 64_000_000 {
+        return Err(FigureError::Data(format!("{} panels of {cell_w} x {cell_h} pixels make too large a picture", figures.len())));
+    }
+    let mut canvas = vec![255u8; width as usize * height as usize * 3];
+    for (k, (w, h, rgb)) in decoded.iter().enumerate() {
+        let (x0, y0) = ((k % columns) as u32 * cell_w, (k / columns) as u32 * cell_h);
+        for y in 0..*h {
+            let src = &rgb[(y * w * 3) as usize..((y + 1) * w * 3) as usize];
+            let start = (((y0 + y) * width + x0) * 3) as usize;
+            canvas[start..start + src.len()].copy_from_slice(src);
+        }
+    }
+    let mut png_bytes = Vec::new();
+    {
+        let mut encoder = png::Encoder::new(&mut png_bytes, width, height);
+        encoder.set_color(png::ColorType::Rgb);
+        encoder.set_depth(png::BitDepth::Eight);
+        let mut writer = encoder.write_header().map_err(|e| FigureError::Data(e.to_string()))?;
+        writer.write_image_data(&canvas).map_err(|e| FigureError::Data(e.to_string()))?;
+    }
+    let mut bundle = MimeBundle::plain(format!("{title}: {} panels", figures.len()));
+    // SVG: each panel's own SVG placed in a grid, sized by its CSS size.
+    let sizes: Vec<(f64, f64)> = figures.iter().map(|b| b.text("image/svg+xml").map(svg_size).unwrap_or((cell_w as f64, cell_h as f64))).collect();
+    let (sw, sh) = (sizes.iter().map(|s| s.0).fold(0.0, f64::max), sizes.iter().map(|s| s.1).fold(0.0, f64::max));
+    let mut svg = format!("<svg xmlns=\"http://www.w3.org/2000/svg\" width=\"{}\" height=\"{}\" viewBox=\"0 0 {} {}\">", sw * columns as f64, sh * rows as f64, sw * columns as f64, sh * rows as f64);
+    for (k, b) in figures.iter().enumerate() {
+        let (x, y) = ((k % columns) as f64 * sw, (k / columns) as f64 * sh);
+        match b.text("image/svg+xml") {
+            Some(child) => {
+                let body = child.trim_start().strip_prefix("<?xml").map(|r| r.split_once("?>").map_or(r, |x| x.1)).unwrap_or(child).trim_start();
+                // A nested <svg> is positioned by x and y (SVG 1.1, 7.9).
+                let positioned = body.replacen("<svg", &format!("<svg x=\"{x}\" y=\"{y}\""), 1);
+                svg.push_str(&positioned);
+            }
+            None => svg.push_str(&format!(
+                "<image x=\"{x}\" y=\"{y}\" width=\"{sw}\" height=\"{sh}\" href=\"data:image/png;base64,{}\"/>",
+                base64::engine::general_purpose::STANDARD.encode(b.binary("image/png").unwrap_or_default())
+            )),
+        }
+    }
+    svg.push_str("</svg>");
+    bundle.insert_text("image/svg+xml", svg);
+    bundle.insert_binary("image/png", png_bytes);
+    Ok(bundle)
+}
+
+/// The CSS width and height an SVG declares (its first width= and height=).
+fn svg_size(svg: &str) -> (f64, f64) {
+    let attribute = |name: &str| -> Option<f64> {
+        let start = svg.find(&format!("{name}=\""))? + name.len() + 2;
+        svg[start..].split('"').next()?.trim_end_matches("px").parse().ok()
+    };
+    (attribute("width").unwrap_or(900.0), attribute("height").unwrap_or(600.0))
+}

@@ -56,6 +56,7 @@ pub const NAMES: &[&str] = &[
     "profile",
     "section",
     "time_series",
+    "panels",
     "write_report",
     "print",
 ];
@@ -64,7 +65,11 @@ pub const NAMES: &[&str] = &[
 /// printing, the recipe library, reports). They are not in the checker's
 /// table of operators (`builtins::BUILTINS`): they accept values of many
 /// kinds and check them when they run.
-pub const PRESENTATION: &[&str] = &["recipes", "save_recipe", "map", "hodograph", "profile", "section", "time_series", "write_report", "print"];
+pub const PRESENTATION: &[&str] = &["recipes", "save_recipe", "map", "hodograph", "profile", "section", "time_series", "panels", "write_report", "print"];
+
+/// Options every picture takes: its size in CSS pixels and the PNG's
+/// resolution.
+const PICTURE_OPTIONS: &[&str] = &["width", "height", "dpi"];
 
 fn error(message: impl Into<String>, span: Span) -> Diagnostic {
     Diagnostic::error(message, span)
@@ -143,6 +148,30 @@ impl Options {
             Value::Word(w) | Value::Text(w) => Some((w.as_str(), *s)),
             _ => None,
         })
+    }
+
+    /// The figure size from `with width N, height N, dpi N` (CSS pixels and
+    /// dots per inch), each falling back to the default given.
+    fn figure_size(&self, default: crate::render::FigureSize) -> Result<crate::render::FigureSize> {
+        let mut size = default;
+        for (name, _, v, span) in &self.values {
+            let number = match v {
+                Value::Number { value, unit } if unit.is_dimensionless() && *value > 0.0 => *value,
+                other => {
+                    if PICTURE_OPTIONS.contains(&name.as_str()) {
+                        return Err(error(format!("`{name}` takes a plain positive number, found {}", other.kind()), *span));
+                    }
+                    continue;
+                }
+            };
+            match name.as_str() {
+                "width" => size.width = number.round() as u32,
+                "height" => size.height = number.round() as u32,
+                "dpi" => size.dpi = number,
+                _ => {}
+            }
+        }
+        Ok(size)
     }
 
     fn equator_band(&self) -> Result<Option<f64>> {
@@ -429,7 +458,8 @@ pub fn call_builtin(
             Ok(Value::Text(super::recipe::library_listing(&evaluator.recipe_folders)))
         }
         "map" => {
-            options.allow(name, &[])?;
+            options.allow(name, PICTURE_OPTIONS)?;
+            let size = options.figure_size(crate::render::FigureSize::default())?;
             if args.values.is_empty() || args.values.len() > 2 {
                 return Err(error("`map` takes a field to shade and, optionally, a vector field to draw on it", span).with_help("map(thickness(1000 hPa to 500 hPa), thermal_wind(1000 hPa to 500 hPa))"));
             }
@@ -439,22 +469,24 @@ pub fn call_builtin(
                         Some((v, s)) => Some(vector(ev, v, *s, sel, name)?),
                         None => None,
                     };
-                    crate::figures::field_map_with(&f, w.as_deref(), &crate::render::FigureSize::default())
+                    crate::figures::field_map_with(&f, w.as_deref(), &size)
                 }
-                Value::Vector(w) => crate::figures::vector_map_with(&w, &crate::render::FigureSize::default()),
+                Value::Vector(w) => crate::figures::vector_map_with(&w, &size),
                 other => return Err(wrong(name, &other, args.get(0).1, "a scalar or vector field")),
             };
             figure.map(Value::Figure).map_err(|e| error(e.to_string(), span))
         }
         "hodograph" => {
-            options.allow(name, &[])?;
+            options.allow(name, PICTURE_OPTIONS)?;
+            let size = options.figure_size(crate::render::FigureSize::new(640, 640))?;
             args.count(1, "point(51.5 north, 31 west)")?;
             let (lat, lon) = point(&args, 0)?;
             let case = case_of(ev, None)?;
-            crate::figures::hodograph(&case, lat, lon, &crate::render::FigureSize::new(640, 640)).map(Value::Figure).map_err(|e| error(e.to_string(), span))
+            crate::figures::hodograph(&case, lat, lon, &size).map(Value::Figure).map_err(|e| error(e.to_string(), span))
         }
         "profile" => {
-            options.allow(name, &[])?;
+            options.allow(name, PICTURE_OPTIONS)?;
+            let size = options.figure_size(crate::render::FigureSize::new(520, 640))?;
             if args.values.len() < 2 {
                 return Err(error("`profile` takes one or more fields with levels, then a point", span).with_help("profile(temperature, point(51.5 north, 31 west))"));
             }
@@ -465,10 +497,11 @@ pub fn call_builtin(
                 fields.push(scalar(ev, v, *s, &Selection { times: Some(vec![selection.times.as_ref().and_then(|t| t.first().copied()).unwrap_or(0)]), ..selection.clone() }, name)?);
             }
             let refs: Vec<&Field> = fields.iter().map(|f| &**f).collect();
-            crate::figures::profile(&refs, lat, lon, &crate::render::FigureSize::new(520, 640)).map(Value::Figure).map_err(|e| error(e.to_string(), span))
+            crate::figures::profile(&refs, lat, lon, &size).map(Value::Figure).map_err(|e| error(e.to_string(), span))
         }
         "section" => {
-            options.allow(name, &[])?;
+            options.allow(name, PICTURE_OPTIONS)?;
+            let size = options.figure_size(crate::render::FigureSize::new(900, 520))?;
             if args.values.len() != 3 && args.values.len() != 4 {
                 return Err(error("`section` takes a field with levels, optionally a wind, and two points", span).with_help("section(temperature, wind, point(40 north, 40 west), point(62 north, 20 west))"));
             }
@@ -477,15 +510,32 @@ pub fn call_builtin(
             let n = args.values.len();
             let w = if n == 4 { Some(vector(ev, &args.get(1).0, args.get(1).1, &first_time, name)?) } else { None };
             let (a, b) = (point(&args, n - 2)?, point(&args, n - 1)?);
-            crate::figures::section(&f, w.as_deref(), a, b, &crate::render::FigureSize::new(900, 520)).map(Value::Figure).map_err(|e| error(e.to_string(), span))
+            crate::figures::section(&f, w.as_deref(), a, b, &size).map(Value::Figure).map_err(|e| error(e.to_string(), span))
         }
         "time_series" => {
-            options.allow(name, &[])?;
+            options.allow(name, PICTURE_OPTIONS)?;
+            let size = options.figure_size(crate::render::FigureSize::new(800, 420))?;
             args.count(1, "thickness(1000 hPa to 500 hPa) at point(51.5 north, 31 west)")?;
             match &args.get(0).0 {
-                Value::Series(s) => crate::figures::time_series(s, &crate::render::FigureSize::new(800, 420)).map(Value::Figure).map_err(|e| error(e.to_string(), span)),
+                Value::Series(s) => crate::figures::time_series(s, &size).map(Value::Figure).map_err(|e| error(e.to_string(), span)),
                 other => Err(wrong(name, other, args.get(0).1, "a table over time, such as a field at a point or an area_mean")),
             }
+        }
+        "panels" => {
+            options.allow(name, &["columns"])?;
+            let columns = match options.values.iter().find(|o| o.0 == "columns") {
+                Some((_, _, Value::Number { value, .. }, _)) if *value >= 1.0 => *value as usize,
+                Some((_, s, other, _)) => return Err(error(format!("`columns` takes a whole number of at least 1, found {}", other.kind()), *s)),
+                None => 2,
+            };
+            let mut figures = Vec::new();
+            for (v, s) in &args.values {
+                match v {
+                    Value::Figure(b) => figures.push(b.clone()),
+                    other => return Err(wrong(name, other, *s, "a figure such as map(...) or hodograph(...)")),
+                }
+            }
+            crate::figures::panels(&figures, columns, "panels").map(Value::Figure).map_err(|e| error(e.to_string(), span))
         }
         "write_report" => {
             options.allow(name, &[])?;

@@ -156,6 +156,11 @@ def test_first_look_notebook(case_dir):
     assert thickness and all(5100 < x < 5700 for x in thickness), code[3]["outputs"]
     speeds = [x for x in _numbers(code[4]) if 0 <= x < 100]
     assert speeds and max(speeds) < 80
+    # Two panels side by side in one picture.
+    assert _has_image(code[5])
+    png = base64.b64decode([o for o in code[5]["outputs"] if "image/png" in o.get("data", {})][0]["data"]["image/png"])
+    width = int.from_bytes(png[16:20], "big")
+    assert width >= 1000, width
 
 
 def test_shear_budget_notebook(case_dir):
