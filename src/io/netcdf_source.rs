@@ -245,12 +245,17 @@ impl DataSource for NetcdfSource {
     }
 
     fn read(&self, name: &str, selection: &Selection) -> Result<Field, DataError> {
-        super::netcdf_thread::call(|| self.read_here(name, selection))
+        // Only the raw read runs on the netCDF thread; unpacking runs here, in
+        // parallel. (Parallel work on the netCDF thread could deadlock: rayon
+        // workers may themselves be waiting for that thread.)
+        let (mut field, packing) = super::netcdf_thread::call(|| self.read_here(name, selection))?;
+        unpack(&mut field.data, packing);
+        Ok(field)
     }
 }
 
 impl NetcdfSource {
-    fn read_here(&self, name: &str, selection: &Selection) -> Result<Field, DataError> {
+    fn read_here(&self, name: &str, selection: &Selection) -> Result<(Field, Packing), DataError> {
         let k = self.index_of(name)?;
         let info = &self.variables[k];
         let layout = &self.layouts[k];
@@ -384,8 +389,6 @@ impl NetcdfSource {
             }
         }
 
-        unpack(&mut data, packing);
-
         let times = info.times.as_ref().map(|t| t.select(&time_indices));
         let levels = info.levels.as_ref().map(|l| level_indices.iter().map(|&i| l[i]).collect());
         let out_grid = if selection.region.is_some() {
@@ -396,7 +399,7 @@ impl NetcdfSource {
         let mut field = Field::new(name, info.units.clone(), data, times, levels, out_grid).map_err(DataError::Invalid)?;
         field.long_name = info.long_name.clone().unwrap_or_else(|| name.to_string());
         field.standard_name = info.standard_name.clone();
-        Ok(field)
+        Ok((field, packing))
     }
 }
 
