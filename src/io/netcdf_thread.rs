@@ -6,6 +6,10 @@
 //! initialised it, so calls from other threads print spurious "HDF5-DIAG"
 //! traces for attributes that are merely absent. Running every call on one
 //! thread avoids both problems; the physics stays parallel.
+//!
+//! Invariant: work sent here does no parallel (rayon) work of its own, since
+//! rayon's workers may be the very threads waiting on this one (a deadlock
+//! seen once, when unpacking ran here under the step-by-step runner).
 
 use std::sync::mpsc::{channel, Sender};
 use std::sync::{Mutex, OnceLock};
