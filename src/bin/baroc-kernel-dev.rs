@@ -39,7 +39,7 @@ use baroc::mime::MimeBundle;
 use clap::{Args, Parser, Subcommand};
 
 #[derive(Parser)]
-#[command(about = "Development kernel with a toy language (temporary)")]
+#[command(about = "Test double of the Baroc kernel: the real protocol with a toy language, for protocol tests")]
 struct Cli {
     #[command(subcommand)]
     command: Command,
