@@ -85,8 +85,7 @@ impl Session {
         self.evaluator.set_interrupt(interrupt);
         let outcome = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| self.evaluator.run(&program, code)));
         self.evaluator.set_interrupt(None);
-        let mut notes = warnings;
-        notes.extend(lang::eval::take_notes());
+        let notes = warnings;
         let printed = lang::eval::take_printed();
         let shown = match outcome {
             Ok(Ok(shown)) => shown,

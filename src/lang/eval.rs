@@ -432,7 +432,7 @@ impl Evaluator {
             return Ok(Value::Builtin(b));
         }
         if self.recipe_path(name).is_some() {
-            return Ok(Value::Text(format!("recipe:{name}")));
+            return Ok(Value::Text(format!("the recipe `{name}` from the library: call it as {name}(), with its parameters as options")));
         }
         let names = self.visible_names();
         let mut d = error(format!("unknown name `{name}`"), span).with_label("not defined here");
@@ -1174,10 +1174,6 @@ enum TimeWanted {
 }
 
 thread_local! {
-    static NOTES: std::cell::RefCell<Vec<Diagnostic>> = const { std::cell::RefCell::new(Vec::new()) };
-}
-
-thread_local! {
     static PRINTED: std::cell::RefCell<String> = const { std::cell::RefCell::new(String::new()) };
 }
 
@@ -1195,10 +1191,6 @@ pub fn take_printed() -> String {
     PRINTED.with(|p| std::mem::take(&mut *p.borrow_mut()))
 }
 
-/// Takes the notes recorded since the last call.
-pub fn take_notes() -> Vec<Diagnostic> {
-    NOTES.with(|n| std::mem::take(&mut *n.borrow_mut()))
-}
 
 pub(crate) fn format_latitude(lat: f64) -> String {
     format!("{:.2}°{}", lat.abs(), if lat >= 0.0 { "N" } else { "S" })
