@@ -10,7 +10,7 @@ use std::path::PathBuf;
 use std::sync::atomic::AtomicBool;
 use std::sync::Arc;
 
-use crate::lang::eval::Evaluator;
+use crate::lang::eval::{Evaluator, StatementEvent};
 use crate::lang::value::Value;
 use crate::lang::{self, Completeness, Diagnostic, RenderOptions};
 use crate::mime::MimeBundle;
@@ -26,6 +26,37 @@ pub struct CellOutput {
     pub notes: String,
     /// What `print` wrote.
     pub printed: String,
+}
+
+/// What a cell tells its front end while it runs
+/// ([`Session::run_streaming`]).
+#[derive(Debug, Clone)]
+pub enum CellEvent {
+    /// The checker's warnings and notes, rendered (a notebook shows them on
+    /// standard error).
+    Notes(String),
+    /// Text the cell printed.
+    Printed(String),
+    /// The cell asked to clear what it has shown so far.
+    ClearOutput { wait: bool },
+    /// A statement's value, drawn; `last` when it is the cell's last
+    /// statement (its value is the cell's result).
+    Shown { bundle: MimeBundle, last: bool },
+    /// Statement `done + 1` of `total` is starting; `running` is its first
+    /// line.
+    Progress { done: usize, total: usize, running: String },
+}
+
+/// The first line of a statement, shortened for a progress line.
+fn first_line(text: &str) -> String {
+    let line = text.lines().next().unwrap_or("").trim();
+    if line.chars().count() > 60 {
+        format!("{}…", line.chars().take(59).collect::<String>())
+    } else if text.trim().lines().count() > 1 {
+        format!("{line} …")
+    } else {
+        line.to_string()
+    }
 }
 
 /// A cell that failed: the rendered diagnostic (caret included) and its
@@ -77,18 +108,70 @@ impl Session {
         }
     }
 
-    /// Runs one cell. On failure the session is as it was before the cell.
+    /// Runs one cell and collects what it showed. On failure the session is
+    /// as it was before the cell.
     pub fn run(&mut self, code: &str, interrupt: Option<Arc<AtomicBool>>) -> Result<CellOutput, CellError> {
+        let mut bundles = Vec::new();
+        let mut printed = String::new();
+        let mut notes = String::new();
+        self.run_streaming(code, interrupt, &mut |event| match event {
+            CellEvent::Notes(text) => notes = text,
+            CellEvent::Printed(text) => printed.push_str(&text),
+            CellEvent::Shown { bundle, .. } => bundles.push(bundle),
+            CellEvent::ClearOutput { .. } | CellEvent::Progress { .. } => {}
+        })?;
+        let result = bundles.pop();
+        Ok(CellOutput { displays: bundles, result, notes, printed })
+    }
+
+    /// Runs one cell, telling `on_event` of each result as its statement
+    /// completes (a notebook front end shows it at once), of printed text and
+    /// clear requests in the order they happened, and of progress from
+    /// statement to statement. On failure the session is as it was before
+    /// the cell; what was already sent stands, as in any notebook.
+    pub fn run_streaming(&mut self, code: &str, interrupt: Option<Arc<AtomicBool>>, on_event: &mut dyn FnMut(CellEvent)) -> Result<(), CellError> {
         let program = lang::parse(code).map_err(|d| self.fail(&d, code))?;
         let (warnings, scope) = crate::lang::check_program(&program, code, &self.evaluator).map_err(|d| self.fail(&d, code))?;
+        if !warnings.is_empty() {
+            on_event(CellEvent::Notes(lang::render_all(&warnings, code, &self.render_options)));
+        }
         let saved = self.evaluator.snapshot();
         self.evaluator.set_interrupt(interrupt);
-        let outcome = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| self.evaluator.run(&program, code)));
+        // Left over from a cell that failed half-way (not ours to show).
+        lang::eval::take_side_outputs();
+        let mut values = Vec::new();
+        let outcome = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
+            self.evaluator.run_each(&program, code, &mut |event| {
+                for side in lang::eval::take_side_outputs() {
+                    on_event(match side {
+                        lang::eval::SideOutput::Printed(text) => CellEvent::Printed(text),
+                        lang::eval::SideOutput::ClearOutput { wait } => CellEvent::ClearOutput { wait },
+                    });
+                }
+                match event {
+                    StatementEvent::Started { index, total, span } => {
+                        let text = code.get(span.start..span.end).unwrap_or("");
+                        on_event(CellEvent::Progress { done: index, total, running: first_line(text) });
+                    }
+                    // `print(...)` and `clear_output()` evaluate to empty
+                    // text: what they did was sent above, not as a value.
+                    StatementEvent::Finished { value: Some(Value::Text(t)), .. } if t.is_empty() => {}
+                    StatementEvent::Finished { index, total, value: Some(value), .. } => {
+                        on_event(CellEvent::Shown { bundle: crate::display::bundle(&value), last: index + 1 == total });
+                        values.push(value);
+                    }
+                    StatementEvent::Finished { .. } => {}
+                }
+            })
+        }));
         self.evaluator.set_interrupt(None);
-        let notes = warnings;
-        let printed = lang::eval::take_printed();
-        let shown = match outcome {
-            Ok(Ok(shown)) => shown,
+        for side in lang::eval::take_side_outputs() {
+            if let lang::eval::SideOutput::Printed(text) = side {
+                on_event(CellEvent::Printed(text));
+            }
+        }
+        match outcome {
+            Ok(Ok(())) => {}
             Ok(Err(d)) => {
                 self.evaluator.restore(saved);
                 return Err(self.fail(&[d], code));
@@ -100,14 +183,10 @@ impl Session {
                     .with_help("this is a bug in Baroc; the session is unchanged and still usable");
                 return Err(self.fail(&[d], code));
             }
-        };
+        }
         self.evaluator.check_scope = scope;
-        // `print(...)` shows its text on stdout, not as a value.
-        let shown: Vec<_> = shown.into_iter().filter(|(_, v)| !matches!(v, Value::Text(t) if t.is_empty())).collect();
-        let mut bundles: Vec<MimeBundle> = shown.iter().map(|(_, v)| crate::display::bundle(v)).collect();
-        self.last_values = shown.into_iter().map(|(_, v)| v).collect();
-        let result = bundles.pop();
-        Ok(CellOutput { displays: bundles, result, notes: if notes.is_empty() { String::new() } else { lang::render_all(&notes, code, &self.render_options) }, printed })
+        self.last_values = values;
+        Ok(())
     }
 
     /// Whether the text is a finished cell.

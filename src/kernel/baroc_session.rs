@@ -6,7 +6,7 @@ use std::sync::Arc;
 use super::session::{Completion, ExecuteOutcome, HelpLink, IsComplete, KernelError, KernelSession, LanguageInfo, Output, StreamName};
 use crate::lang::Completeness;
 use crate::mime::MimeBundle;
-use crate::session::Session;
+use crate::session::{CellEvent, Session};
 
 /// Baroc's notebook session behind the kernel protocol.
 pub struct BarocKernelSession {
@@ -27,17 +27,28 @@ impl Default for BarocKernelSession {
 
 impl KernelSession for BarocKernelSession {
     fn execute(&mut self, code: &str, interrupt: &Arc<AtomicBool>) -> ExecuteOutcome {
-        match self.session.run(code, Some(interrupt.clone())) {
-            Ok(out) => {
-                let mut outputs: Vec<Output> = out.displays.into_iter().map(Output::Display).collect();
-                if !out.printed.is_empty() {
-                    outputs.insert(0, Output::Stream { name: StreamName::Stdout, text: out.printed });
-                }
-                if !out.notes.is_empty() {
-                    outputs.insert(0, Output::Stream { name: StreamName::Stderr, text: out.notes });
-                }
-                ExecuteOutcome { outputs, result: out.result, error: None }
-            }
+        let mut outputs = Vec::new();
+        let mut outcome = self.execute_streaming(code, interrupt, &mut |output| outputs.push(output));
+        outputs.append(&mut outcome.outputs);
+        outcome.outputs = outputs;
+        outcome
+    }
+
+    /// Each statement's value is emitted as it completes; only the value of
+    /// a cell's last statement is held back as the cell's result (shown with
+    /// `Out[n]`). Warnings go to standard error before anything runs.
+    fn execute_streaming(&mut self, code: &str, interrupt: &Arc<AtomicBool>, emit: &mut dyn FnMut(Output)) -> ExecuteOutcome {
+        let mut result = None;
+        let outcome = self.session.run_streaming(code, Some(interrupt.clone()), &mut |event| match event {
+            CellEvent::Notes(text) => emit(Output::Stream { name: StreamName::Stderr, text }),
+            CellEvent::Printed(text) => emit(Output::Stream { name: StreamName::Stdout, text }),
+            CellEvent::ClearOutput { wait } => emit(Output::Clear { wait }),
+            CellEvent::Progress { done, total, running } => emit(Output::Progress { done, total, running }),
+            CellEvent::Shown { bundle, last: true } => result = Some(bundle),
+            CellEvent::Shown { bundle, last: false } => emit(Output::Display(bundle)),
+        });
+        match outcome {
+            Ok(()) => ExecuteOutcome { outputs: Vec::new(), result, error: None },
             Err(e) => {
                 let ename = if e.message == "interrupted" { "KeyboardInterrupt" } else { "BarocError" };
                 ExecuteOutcome::failure(KernelError::new(ename, e.message.clone(), e.rendered.lines().map(str::to_string).collect()))

@@ -91,6 +91,20 @@ pub fn mime_bundle_to_json(bundle: &MimeBundle) -> Value {
     Value::Object(data)
 }
 
+/// The `metadata` of a display_data or execute_result: a picture's size
+/// for each image entry, so front ends lay it out before it loads and show a
+/// high-dpi PNG at its intended size (messaging protocol, display_data:
+/// "metadata ... width and height").
+pub fn display_metadata(bundle: &MimeBundle) -> Value {
+    let mut metadata = Map::new();
+    if let Some((width, height)) = bundle.image_size() {
+        for mime in bundle.entries.keys().filter(|mime| mime.starts_with("image/")) {
+            metadata.insert(mime.clone(), serde_json::json!({"width": width, "height": height}));
+        }
+    }
+    Value::Object(metadata)
+}
+
 fn is_json_type(mime: &str) -> bool {
     mime == "application/json" || mime.ends_with("+json")
 }

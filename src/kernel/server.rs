@@ -31,7 +31,7 @@ use super::session::{
 use super::transport::{bind_publisher, bind_router, Publisher, RouterReceiver, RouterSender};
 use super::wire::{Authenticator, Header, Message, PROTOCOL_VERSION};
 use super::worker::{CallFailure, Worker};
-use super::{log, mime_bundle_to_json, KernelFailure};
+use super::{display_metadata, log, mime_bundle_to_json, KernelFailure};
 
 /// Name of the implementation in kernel_info_reply.
 const IMPLEMENTATION: &str = "baroc";
@@ -766,28 +766,14 @@ async fn execute(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSender, 
             .await;
     }
 
-    let outcome = run_cell(kernel, code.clone()).await;
+    let outcome = run_cell_streaming(kernel, request, code.clone(), silent).await;
 
     if !silent {
-        for output in &outcome.outputs {
-            match output {
-                Output::Stream { name, text } => {
-                    kernel
-                        .publish(
-                            Some(request),
-                            "stream",
-                            json!({"name": name.as_str(), "text": text}),
-                        )
-                        .await
-                }
-                Output::Display(bundle) => {
-                    let data = json!({"data": mime_bundle_to_json(bundle), "metadata": {}, "transient": {}});
-                    kernel.publish(Some(request), "display_data", data).await
-                }
-            }
+        for output in outcome.outputs.iter().cloned() {
+            publish_output(kernel, request, output, None).await;
         }
         if let Some(result) = &outcome.result {
-            let data = json!({"execution_count": count, "data": mime_bundle_to_json(result), "metadata": {}});
+            let data = json!({"execution_count": count, "data": mime_bundle_to_json(result), "metadata": display_metadata(result)});
             kernel.publish(Some(request), "execute_result", data).await;
         }
         if let Some(error) = &outcome.error {
@@ -833,6 +819,171 @@ async fn execute(kernel: &Kernel, shell: &mut Shell, sender: &mut RouterSender, 
     };
     kernel.reply(sender, request, "execute_reply", reply).await;
     skip_cells(kernel, shell, sender, skipped).await;
+}
+
+/// Runs a cell on the worker and publishes each output on iopub the moment
+/// the session emits it, while the cell goes on. A cell still running after
+/// [`progress_delay`] gets a progress display that updates in place
+/// (display_data with a `display_id`, then update_display_data) and turns
+/// into a one-line summary when the cell ends. A silent request publishes
+/// nothing. Returns what the session did not emit (result, error, left-overs).
+async fn run_cell_streaming(kernel: &Kernel, request: &Message, code: String, silent: bool) -> ExecuteOutcome {
+    kernel.interrupt.store(false, Ordering::SeqCst);
+    let flag = kernel.interrupt.clone();
+    let (sender, mut outputs) = mpsc::unbounded_channel::<Output>();
+    let cell = kernel.worker.run(move |session| {
+        session.execute_streaming(&code, &flag, &mut |output| {
+            // The receiver lives until the cell's answer arrives.
+            let _ = sender.send(output);
+        })
+    });
+    tokio::pin!(cell);
+    let mut progress = ProgressDisplay::new(progress_delay());
+    let timer = tokio::time::sleep(progress.delay);
+    tokio::pin!(timer);
+    let mut timer_fired = false;
+    let answer = loop {
+        tokio::select! {
+            biased;
+            Some(output) = outputs.recv() => {
+                if !silent {
+                    publish_output(kernel, request, output, Some(&mut progress)).await;
+                }
+            }
+            answer = &mut cell => break answer,
+            _ = &mut timer, if !timer_fired => {
+                timer_fired = true;
+                if !silent {
+                    progress.show(kernel, request).await;
+                }
+            }
+        }
+    };
+    while let Ok(output) = outputs.try_recv() {
+        if !silent {
+            publish_output(kernel, request, output, Some(&mut progress)).await;
+        }
+    }
+    let outcome = answer.unwrap_or_else(|failure| ExecuteOutcome::failure(failure_error(failure)));
+    if !silent {
+        progress.finish(kernel, request, outcome.error.is_some()).await;
+    }
+    outcome
+}
+
+/// How long a cell runs before it gets a progress display:
+/// `BAROC_PROGRESS_AFTER_MS` milliseconds (default 700), so quick cells
+/// show none.
+fn progress_delay() -> Duration {
+    let millis = std::env::var("BAROC_PROGRESS_AFTER_MS").ok().and_then(|v| v.trim().parse::<u64>().ok()).unwrap_or(700);
+    Duration::from_millis(millis)
+}
+
+/// Publishes one output of a running cell. Progress goes to `progress`
+/// (ignored without one).
+async fn publish_output(kernel: &Kernel, request: &Message, output: Output, progress: Option<&mut ProgressDisplay>) {
+    match output {
+        Output::Stream { name, text } => {
+            kernel.publish(Some(request), "stream", json!({"name": name.as_str(), "text": text})).await
+        }
+        Output::Display(bundle) => {
+            let data = json!({"data": mime_bundle_to_json(&bundle), "metadata": display_metadata(&bundle), "transient": {}});
+            kernel.publish(Some(request), "display_data", data).await
+        }
+        Output::Clear { wait } => {
+            kernel.publish(Some(request), "clear_output", json!({"wait": wait})).await;
+            if let Some(progress) = progress {
+                // The progress display went with the rest of the output.
+                progress.shown = false;
+            }
+        }
+        Output::Progress { done, total, running } => {
+            if let Some(progress) = progress {
+                progress.note(kernel, request, done, total, running).await;
+            }
+        }
+    }
+}
+
+/// The one progress display of a running cell.
+struct ProgressDisplay {
+    id: String,
+    started: std::time::Instant,
+    delay: Duration,
+    /// The statement now running: (index, total, its first line).
+    latest: Option<(usize, usize, String)>,
+    shown: bool,
+    last_sent: std::time::Instant,
+}
+
+impl ProgressDisplay {
+    /// At most this often an in-place update, so a cell of many quick
+    /// statements does not flood the front end.
+    const UPDATE_EVERY: Duration = Duration::from_millis(200);
+
+    fn new(delay: Duration) -> Self {
+        let now = std::time::Instant::now();
+        Self { id: format!("baroc-progress-{}", uuid::Uuid::new_v4()), started: now, delay, latest: None, shown: false, last_sent: now }
+    }
+
+    fn bundle(&self) -> Option<crate::mime::MimeBundle> {
+        let (done, total, running) = self.latest.as_ref()?;
+        let seconds = self.started.elapsed().as_secs_f64();
+        let mut bundle = crate::mime::MimeBundle::plain(format!("running statement {} of {total} ({seconds:.1} s): {running}", done + 1));
+        bundle.insert_text(
+            "text/html",
+            format!(
+                "<div><progress value=\"{done}\" max=\"{total}\"></progress> running statement {} of {total} ({seconds:.1} s): <code>{}</code></div>",
+                done + 1,
+                crate::render::html::escape(running)
+            ),
+        );
+        Some(bundle)
+    }
+
+    async fn send(&mut self, kernel: &Kernel, request: &Message, msg_type: &str, bundle: crate::mime::MimeBundle) {
+        let data = json!({"data": mime_bundle_to_json(&bundle), "metadata": {}, "transient": {"display_id": self.id}});
+        kernel.publish(Some(request), msg_type, data).await;
+        self.last_sent = std::time::Instant::now();
+    }
+
+    /// The timer ran out: show the display if a statement is running.
+    async fn show(&mut self, kernel: &Kernel, request: &Message) {
+        if let Some(bundle) = self.bundle() {
+            self.send(kernel, request, "display_data", bundle).await;
+            self.shown = true;
+        }
+    }
+
+    async fn note(&mut self, kernel: &Kernel, request: &Message, done: usize, total: usize, running: String) {
+        self.latest = Some((done, total, running));
+        let due = self.started.elapsed() >= self.delay;
+        if !self.shown && due {
+            self.show(kernel, request).await;
+        } else if self.shown && self.last_sent.elapsed() >= Self::UPDATE_EVERY {
+            if let Some(bundle) = self.bundle() {
+                self.send(kernel, request, "update_display_data", bundle).await;
+            }
+        }
+    }
+
+    /// The cell ended: the display, if shown, becomes a summary.
+    async fn finish(&mut self, kernel: &Kernel, request: &Message, failed: bool) {
+        if !self.shown {
+            return;
+        }
+        let Some((done, total, _)) = self.latest.clone() else { return };
+        let seconds = self.started.elapsed().as_secs_f64();
+        let plural = if total == 1 { "" } else { "s" };
+        let text = if failed {
+            format!("stopped at statement {} of {total} after {seconds:.1} s", done + 1)
+        } else {
+            format!("ran {total} statement{plural} in {seconds:.1} s")
+        };
+        let mut bundle = crate::mime::MimeBundle::plain(text.clone());
+        bundle.insert_text("text/html", format!("<div>{}</div>", crate::render::html::escape(&text)));
+        self.send(kernel, request, "update_display_data", bundle).await;
+    }
 }
 
 async fn run_cell(kernel: &Kernel, code: String) -> ExecuteOutcome {

@@ -28,6 +28,16 @@ pub trait KernelSession: Send {
     /// the same session serves the next cell.
     fn execute(&mut self, code: &str, interrupt: &std::sync::Arc<AtomicBool>) -> ExecuteOutcome;
 
+    /// Run one cell, handing each output to `emit` as soon as it exists (the
+    /// kernel publishes it at once), and return what is left: the result,
+    /// the error, and any outputs not emitted. A session that cannot stream
+    /// keeps this default, which emits nothing and returns everything at the
+    /// end.
+    fn execute_streaming(&mut self, code: &str, interrupt: &std::sync::Arc<AtomicBool>, emit: &mut dyn FnMut(Output)) -> ExecuteOutcome {
+        let _ = emit;
+        self.execute(code, interrupt)
+    }
+
     /// Completions for the word at `cursor_pos` (code points into `code`).
     fn complete(&self, code: &str, cursor_pos: usize) -> Completion;
 
@@ -87,6 +97,12 @@ pub enum Output {
     Stream { name: StreamName, text: String },
     /// A rich value displayed mid-cell (a plot, a table).
     Display(MimeBundle),
+    /// Statement `done + 1` of `total` is starting (`running` says which).
+    /// The kernel turns these into one progress display that updates in place
+    /// once a cell has run for a while, and into a summary at its end.
+    Progress { done: usize, total: usize, running: String },
+    /// Clear the cell's output so far (`wait`: when the next output arrives).
+    Clear { wait: bool },
 }
 
 /// Which text stream a [`Output::Stream`] belongs to.

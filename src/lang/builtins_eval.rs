@@ -59,13 +59,14 @@ pub const NAMES: &[&str] = &[
     "panels",
     "write_report",
     "print",
+    "clear_output",
 ];
 
 /// The operators that present rather than compute (pictures, tables,
 /// printing, the recipe library, reports). They are not in the checker's
 /// table of operators (`builtins::BUILTINS`): they accept values of many
 /// kinds and check them when they run.
-pub const PRESENTATION: &[&str] = &["recipes", "save_recipe", "map", "hodograph", "profile", "section", "time_series", "panels", "write_report", "print"];
+pub const PRESENTATION: &[&str] = &["recipes", "save_recipe", "map", "hodograph", "profile", "section", "time_series", "panels", "write_report", "print", "clear_output"];
 
 /// Options every picture takes: its size in CSS pixels and the PNG's
 /// resolution.
@@ -554,6 +555,20 @@ pub fn call_builtin(
                 parts.push(crate::display::plain(v));
             }
             super::eval::print_line(&parts.join(" "));
+            Ok(Value::Text(String::new()))
+        }
+        "clear_output" => {
+            // `with wait true` keeps the old output until new output arrives
+            // (the messaging protocol's clear_output), so a cell that redraws
+            // does not flicker.
+            options.allow(name, &["wait"])?;
+            args.count(0, "")?;
+            let wait = match options.values.iter().find(|o| o.0 == "wait") {
+                None => false,
+                Some((_, _, Value::Bool(b), _)) => *b,
+                Some((_, _, other, span)) => return Err(wrong(name, other, *span, "true or false")),
+            };
+            super::eval::request_clear_output(wait);
             Ok(Value::Text(String::new()))
         }
         "save_recipe" => {

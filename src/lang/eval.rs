@@ -239,16 +239,31 @@ impl Evaluator {
     /// Runs a whole program; returns the value of each expression statement
     /// (what a notebook cell shows).
     pub fn run(&mut self, program: &Program, source: &str) -> Result<Vec<(Span, Value)>> {
-        self.source = source.to_string();
         let mut shown = Vec::new();
-        for statement in &program.statements {
-            let context = Context { selection: self.base_selection.clone() };
-            if let Some(value) = self.statement(statement, &context)? {
-                shown.push((statement.span, value));
+        self.run_each(program, source, &mut |event| {
+            if let StatementEvent::Finished { span, value: Some(value), .. } = event {
+                shown.push((span, value));
             }
-            self.remember_definition(statement);
-        }
+        })?;
         Ok(shown)
+    }
+
+    /// Runs a whole program statement by statement, telling `on_event` when
+    /// each statement starts and when it has finished (with its value, for
+    /// an expression statement), so a front end can show each result as it
+    /// completes instead of all at the end. Stops at the first error, which
+    /// is returned; events already sent stand.
+    pub fn run_each(&mut self, program: &Program, source: &str, on_event: &mut dyn FnMut(StatementEvent)) -> Result<()> {
+        self.source = source.to_string();
+        let total = program.statements.len();
+        for (index, statement) in program.statements.iter().enumerate() {
+            on_event(StatementEvent::Started { index, total, span: statement.span });
+            let context = Context { selection: self.base_selection.clone() };
+            let value = self.statement(statement, &context)?;
+            self.remember_definition(statement);
+            on_event(StatementEvent::Finished { index, total, span: statement.span, value });
+        }
+        Ok(())
     }
 
     fn remember_definition(&mut self, statement: &Statement) {
@@ -1173,22 +1188,65 @@ enum TimeWanted {
     Between(DateTime, DateTime),
 }
 
+/// What a running program asked of whatever shows its output, besides
+/// values: printed text (`print`) and a request to clear what the cell has
+/// shown so far (`clear_output`). Kept in order, per thread.
+#[derive(Debug, Clone, PartialEq)]
+pub enum SideOutput {
+    Printed(String),
+    /// Clear the cell's output; `wait` keeps the old output until new output
+    /// arrives (the messaging protocol's clear_output), which avoids flicker.
+    ClearOutput { wait: bool },
+}
+
 thread_local! {
-    static PRINTED: std::cell::RefCell<String> = const { std::cell::RefCell::new(String::new()) };
+    static SIDE_OUTPUT: std::cell::RefCell<Vec<SideOutput>> = const { std::cell::RefCell::new(Vec::new()) };
 }
 
 /// Appends a line to what the current cell printed (`print`).
 pub fn print_line(text: &str) {
-    PRINTED.with(|p| {
-        let mut p = p.borrow_mut();
-        p.push_str(text);
-        p.push('\n');
+    SIDE_OUTPUT.with(|queue| {
+        let mut queue = queue.borrow_mut();
+        match queue.last_mut() {
+            Some(SideOutput::Printed(p)) => {
+                p.push_str(text);
+                p.push('\n');
+            }
+            _ => queue.push(SideOutput::Printed(format!("{text}\n"))),
+        }
     });
 }
 
-/// Takes what the cell printed since the last call.
+/// Asks the front end to clear the cell's output (`clear_output`).
+pub fn request_clear_output(wait: bool) {
+    SIDE_OUTPUT.with(|queue| queue.borrow_mut().push(SideOutput::ClearOutput { wait }));
+}
+
+/// Takes what the cell asked for since the last call, in order.
+pub fn take_side_outputs() -> Vec<SideOutput> {
+    SIDE_OUTPUT.with(|queue| std::mem::take(&mut *queue.borrow_mut()))
+}
+
+/// Takes what the cell printed since the last call (clear requests are
+/// dropped: for front ends that only collect text).
 pub fn take_printed() -> String {
-    PRINTED.with(|p| std::mem::take(&mut *p.borrow_mut()))
+    take_side_outputs()
+        .into_iter()
+        .filter_map(|side| match side {
+            SideOutput::Printed(text) => Some(text),
+            SideOutput::ClearOutput { .. } => None,
+        })
+        .collect()
+}
+
+/// Progress of [`Evaluator::run_each`].
+#[derive(Clone)]
+pub enum StatementEvent {
+    /// Statement `index` (of `total`) is about to run.
+    Started { index: usize, total: usize, span: Span },
+    /// Statement `index` finished; `value` is what an expression statement
+    /// evaluated to.
+    Finished { index: usize, total: usize, span: Span, value: Option<Value> },
 }
 
 

@@ -25,6 +25,13 @@ class BarocKernelConformance(jupyter_kernel_test.KernelTests):
 
     code_hello_world = 'print("hello, world")'
 
+    # A layer written from its top down draws the checker's warning, which a
+    # notebook shows on standard error.
+    code_stderr = "let upside_down = 500 hPa to 1000 hPa"
+
+    # The messaging protocol's clear_output, asked for from the language.
+    code_clear_output = "clear_output()"
+
     completion_samples = [
         {"text": "thick", "matches": {"thickness"}},
         {"text": "geostrophic_w", "matches": {"geostrophic_wind"}},
