@@ -115,7 +115,7 @@ impl Case {
     /// The levels (Pa) of a variable, by name or role.
     pub fn levels_of(&self, name: &str) -> Result<Vec<f64>> {
         let info = self.dataset.resolve(name)?;
-        info.levels.clone().ok_or_else(|| DiagnosticError::Data(DataError::NoLevels { variable: info.name.clone() }))
+        info.levels.clone().ok_or_else(|| DiagnosticError::Data(crate::io::grib2_source::no_pressure_levels(info)))
     }
 
     /// Reads only the data levels that `weights` need, returning the field

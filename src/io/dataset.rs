@@ -119,11 +119,28 @@ fn same_grid(a: &VariableInfo, b: &VariableInfo) -> bool {
 }
 
 impl Dataset {
-    /// Opens NetCDF files read-only and combines them.
+    /// Opens files read-only and combines them. Each file's kind is told by
+    /// its content, not its name: GRIB edition 2 files (all of them
+    /// together form one source, so messages split across files combine by
+    /// variable, time and level), GRIB edition 1 refused by name, anything
+    /// else read as NetCDF.
     pub fn open<P: AsRef<Path>>(paths: &[P]) -> Result<Self, DataError> {
         let mut sources: Vec<Box<dyn DataSource>> = Vec::new();
+        let mut grib_paths = Vec::new();
         for p in paths {
-            sources.push(Box::new(NetcdfSource::open(p)?));
+            match super::grib2::file_kind(p.as_ref()) {
+                super::grib2::FileKind::Grib2 => grib_paths.push(p.as_ref().to_path_buf()),
+                super::grib2::FileKind::Grib1 => {
+                    return Err(DataError::Open {
+                        path: p.as_ref().display().to_string(),
+                        message: "it is GRIB edition 1, which Baroc does not read (it reads GRIB edition 2 and CF NetCDF)".into(),
+                    })
+                }
+                super::grib2::FileKind::Other => sources.push(Box::new(NetcdfSource::open(p)?)),
+            }
+        }
+        if !grib_paths.is_empty() {
+            sources.push(Box::new(super::grib2_source::GribSource::open(&grib_paths)?));
         }
         Self::from_sources(sources)
     }

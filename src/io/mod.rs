@@ -12,6 +12,9 @@
 
 pub mod cf;
 pub mod dataset;
+pub mod grib2;
+pub mod grib2_source;
+pub mod grib2_writer;
 pub mod netcdf_source;
 pub mod netcdf_thread;
 pub mod writer;

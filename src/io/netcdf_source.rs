@@ -206,7 +206,7 @@ fn runs(indices: &[usize]) -> Vec<(usize, usize)> {
 
 /// Longitude indices of a region, ordered west to east, with the output
 /// longitudes made monotonic across the seam.
-fn longitude_selection(longitudes: &[f64], region: &crate::physics::sampling::Region) -> (Vec<usize>, Vec<f64>) {
+pub(crate) fn longitude_selection(longitudes: &[f64], region: &crate::physics::sampling::Region) -> (Vec<usize>, Vec<f64>) {
     let inside: Vec<usize> = (0..longitudes.len()).filter(|&i| region.contains(0.5 * (region.south + region.north), longitudes[i])).collect();
     if inside.is_empty() {
         return (inside, Vec::new());

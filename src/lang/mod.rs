@@ -76,7 +76,11 @@ pub fn dataset_info(dataset: &crate::io::Dataset, name: &str) -> DatasetInfo {
             if v.times.is_some() {
                 dimensions.push(Axis::Time);
             }
-            if v.levels.is_some() {
+            // A variable on GRIB2 hybrid model levels has a level dimension
+            // whose pressures are unknown before reading: the checker lets
+            // it through and the reader says why no pressure can be chosen.
+            let on_model_levels = v.attributes.iter().any(|(key, _)| key == "GRIB2_hybrid_level_numbers");
+            if v.levels.is_some() || on_model_levels {
                 dimensions.push(Axis::Level);
             }
             dimensions.push(Axis::Latitude);

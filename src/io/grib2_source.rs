@@ -1,0 +1,566 @@
+//! A `DataSource` over one or more GRIB2 files.
+//!
+//! Opening indexes every message once (`grib2::index_file`: metadata
+//! sections read, data sections only located) and groups the messages into
+//! variables by parameter (code table 4.2) and kind of level (code table
+//! 4.5), each variable a full table of valid times by levels. Reading
+//! decodes only the messages of the times and levels asked for, in parallel
+//! across messages, straight into the field's storage; values the bitmap
+//! marks missing come out as NaN.
+//!
+//! Grids: template 3.0 (latitude-longitude, any scan direction) maps onto
+//! `grid::Grid`, rows in the file's latitude order and columns always west
+//! to east. Rotated and projected grids (3.1, 3.20, 3.30) are parsed but
+//! refused with a message naming the file, never read as if they were
+//! latitude-longitude. Hybrid levels (type 105) are indexed with their
+//! level numbers and vertical coordinate values, which the variable's
+//! attributes and `GribSource::hybrid_levels` carry; reading them as
+//! pressure levels is refused.
+
+use std::fs::File;
+use std::os::unix::fs::FileExt;
+use std::path::{Path, PathBuf};
+use std::sync::Arc;
+
+use ndarray::{Array4, Axis};
+use rayon::prelude::*;
+
+use super::grib2::{self, FieldIndex, GridDefinition, LatLonGrid, Span};
+use super::{DataError, DataSource, Selection, VariableInfo};
+use crate::grid::{Field, Grid, TimeAxis};
+
+/// A message and the file it lives in.
+#[derive(Debug, Clone)]
+struct Located {
+    file: usize,
+    field: FieldIndex,
+}
+
+/// The model levels of a variable on hybrid levels (fixed surface 105):
+/// level numbers as in the file, and the vertical coordinate values of
+/// section 4 (the a coefficients of the half levels, then the b ones).
+#[derive(Debug, Clone, PartialEq)]
+pub struct HybridLevels {
+    pub levels: Vec<f64>,
+    pub pv: Vec<f64>,
+}
+
+/// How a variable's messages fill its table.
+#[derive(Debug, Clone)]
+struct Table {
+    /// Valid times, seconds since 1970, ascending.
+    times: Vec<i64>,
+    /// Level values (Pa for isobaric levels, level numbers for hybrid
+    /// levels); one `None` for a single-level variable.
+    levels: Vec<Option<f64>>,
+    /// Row-major: `messages[t * levels.len() + l]`.
+    messages: Vec<Located>,
+    hybrid: Option<HybridLevels>,
+}
+
+/// Where the decoded points go: scan order to the grid's order.
+#[derive(Debug, Clone, Copy)]
+struct Layout {
+    ni: usize,
+    nj: usize,
+    /// The file scans west (flag table 3.4 bit 1): columns are reversed.
+    reverse_columns: bool,
+    /// Adjacent points run along a meridian (flag table 3.4 bit 3).
+    column_major: bool,
+}
+
+pub struct GribSource {
+    paths: Vec<PathBuf>,
+    files: Vec<File>,
+    variables: Vec<VariableInfo>,
+    tables: Vec<Table>,
+    layout: Layout,
+    grid: Arc<Grid>,
+}
+
+impl std::fmt::Debug for GribSource {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("GribSource").field("paths", &self.paths).field("variables", &self.variables.len()).finish()
+    }
+}
+
+/// The variable a message belongs to: its name, and the level value that
+/// orders it within the variable.
+struct Placement {
+    name: String,
+    parameter: Option<grib2::Parameter>,
+    surface_kind: u8,
+    level: Option<f64>,
+    /// Order of variables: isobaric first, so that roles find them first.
+    rank: u8,
+}
+
+fn place(field: &FieldIndex) -> Placement {
+    let product = &field.product;
+    let parameter = grib2::parameter(field.discipline, product.category, product.number);
+    let base = parameter.map_or_else(
+        || format!("parameter_{}_{}_{}", field.discipline, product.category, product.number),
+        |p| p.name.to_string(),
+    );
+    let surface = product.first_surface;
+    let number = |v: Option<f64>| v.map_or("missing".to_string(), |v| format!("{v}"));
+    let (name, level, rank) = match surface.kind {
+        grib2::SURFACE_ISOBARIC => (base, surface.value, 0),
+        grib2::SURFACE_HYBRID => (format!("{base}_hybrid"), surface.value, 1),
+        grib2::SURFACE_GROUND if base == "pres" => ("sp".to_string(), None, 2),
+        grib2::SURFACE_GROUND => (format!("{base}_surface"), None, 2),
+        grib2::SURFACE_MEAN_SEA_LEVEL if base == "prmsl" => (base, None, 2),
+        grib2::SURFACE_MEAN_SEA_LEVEL => (format!("{base}_mean_sea_level"), None, 2),
+        grib2::SURFACE_HEIGHT_ABOVE_GROUND => (format!("{base}_{}m", number(surface.value)), None, 3),
+        kind => (format!("{base}_surface{kind}_{}", number(surface.value)), None, 4),
+    };
+    Placement { name, parameter, surface_kind: surface.kind, level, rank }
+}
+
+/// Names a message for errors: "file message N".
+fn where_is(paths: &[PathBuf], located: &Located) -> String {
+    format!("{} {}", paths[located.file].display(), located.field.label())
+}
+
+/// The latitude-longitude grid of template 3.0 in Baroc's order, and the
+/// layout that maps scan order onto it. Fails on scans Baroc does not
+/// read (alternate row direction).
+fn latlon_grid(g: &LatLonGrid) -> Result<(Grid, Layout), String> {
+    let mode = g.scanning_mode;
+    if mode & 0x10 != 0 {
+        return Err(format!("its scanning mode {mode:#04x} reverses every other row (flag table 3.4 bit 4), which Baroc does not read"));
+    }
+    if g.ni == 0 || g.nj == 0 {
+        return Err(format!("its grid has {} x {} points", g.ni, g.nj));
+    }
+    let reverse_columns = mode & 0x80 != 0;
+    let column_major = mode & 0x20 != 0;
+    let spread = |first: f64, last: f64, n: usize| -> Vec<f64> {
+        if n == 1 {
+            vec![first]
+        } else {
+            (0..n).map(|k| first + (last - first) * k as f64 / (n - 1) as f64).collect()
+        }
+    };
+    let latitudes = spread(g.first_latitude, g.last_latitude, g.nj);
+    // Columns west to east whatever the scan direction; the eastern end is
+    // unwrapped past the western one (a global grid from 0 to 359.75).
+    let (mut west, mut east) =
+        if reverse_columns { (g.last_longitude, g.first_longitude) } else { (g.first_longitude, g.last_longitude) };
+    if g.ni > 1 && east <= west {
+        east += 360.0;
+    }
+    if g.ni == 1 {
+        east = west;
+    }
+    while west >= 360.0 {
+        west -= 360.0;
+        east -= 360.0;
+    }
+    let longitudes = spread(west, east, g.ni);
+    Ok((Grid::new(latitudes, longitudes), Layout { ni: g.ni, nj: g.nj, reverse_columns, column_major }))
+}
+
+impl GribSource {
+    /// Indexes GRIB2 files and combines their messages into one set of
+    /// variables. Fails, naming the file and message, on: a message that
+    /// cannot be read, a grid Baroc cannot use yet, an unsupported packing,
+    /// two messages for the same variable, time and level, a variable
+    /// whose messages do not fill its table of times and levels, or grids
+    /// that differ between messages.
+    pub fn open<P: AsRef<Path>>(paths: &[P]) -> Result<Self, DataError> {
+        let paths: Vec<PathBuf> = paths.iter().map(|p| p.as_ref().to_path_buf()).collect();
+        let mut files = Vec::new();
+        let mut all: Vec<Located> = Vec::new();
+        for (k, path) in paths.iter().enumerate() {
+            files.push(File::open(path).map_err(|e| DataError::Open { path: path.display().to_string(), message: e.to_string() })?);
+            all.extend(grib2::index_file(path)?.into_iter().map(|field| Located { file: k, field }));
+        }
+        let first = all.first().ok_or_else(|| DataError::Invalid("no GRIB2 messages found".into()))?.clone();
+        let (grid, layout) = match &first.field.grid {
+            GridDefinition::LatLon(g) => {
+                latlon_grid(g).map_err(|e| DataError::Invalid(format!("{}: {e}", where_is(&paths, &first))))?
+            }
+            other => {
+                return Err(DataError::Invalid(format!(
+                    "{}: projected grid (template 3.{}, {}) is not supported yet; Baroc reads latitude-longitude grids (template 3.0). Grid parameters: {}",
+                    where_is(&paths, &first),
+                    other.template(),
+                    other.name(),
+                    other.parameters()
+                )))
+            }
+        };
+        let grid = Arc::new(grid);
+
+        // Check every message before grouping: the same grid, a packing
+        // the decoder knows, a readable valid time.
+        for located in &all {
+            if located.field.grid != first.field.grid {
+                return Err(DataError::GridMismatch {
+                    first: where_is(&paths, &first),
+                    first_grid: first.field.grid.parameters(),
+                    second: where_is(&paths, located),
+                    second_grid: located.field.grid.parameters(),
+                });
+            }
+            if grib2::packing_name(located.field.packing).is_none() {
+                return Err(DataError::Invalid(format!(
+                    "{}: its data representation template 5.{} is not supported (Baroc unpacks 5.0 simple, 5.2 complex, 5.3 complex with spatial differencing, 5.40 JPEG 2000, 5.41 PNG, 5.42 CCSDS and 5.200 run-length packing)",
+                    where_is(&paths, located),
+                    located.field.packing
+                )));
+            }
+            located.field.valid_time().map_err(|e| DataError::Invalid(format!("{}: {e}", where_is(&paths, located))))?;
+        }
+
+        // Group by variable name, keeping the first appearance order.
+        struct Group {
+            placement: Placement,
+            members: Vec<(i64, Option<f64>, Located)>,
+        }
+        let mut groups: Vec<Group> = Vec::new();
+        for located in all {
+            let placement = place(&located.field);
+            let time = located.field.valid_time().expect("checked above");
+            match groups.iter_mut().find(|g| g.placement.name == placement.name) {
+                Some(group) => group.members.push((time, placement.level, located)),
+                None => groups.push(Group { members: vec![(time, placement.level, located)], placement }),
+            }
+        }
+        groups.sort_by_key(|g| g.placement.rank);
+        let earliest = groups.iter().flat_map(|g| g.members.iter().map(|m| m.0)).min().expect("at least one message");
+        let time_units = format!("hours since {}", grib2::format_time(earliest));
+
+        let mut variables = Vec::new();
+        let mut tables = Vec::new();
+        for group in groups {
+            let Placement { name, parameter, surface_kind, .. } = group.placement;
+            let times: Vec<i64> = group.members.iter().map(|m| m.0).collect::<std::collections::BTreeSet<_>>().into_iter().collect();
+            let mut levels: Vec<Option<f64>> = Vec::new();
+            for m in &group.members {
+                if !levels.iter().any(|l| same_level(*l, m.1)) {
+                    levels.push(m.1);
+                }
+            }
+            // Isobaric levels from the ground up (highest pressure first);
+            // model levels in their numbering order.
+            if surface_kind == grib2::SURFACE_ISOBARIC {
+                levels.sort_by(|a, b| b.unwrap_or(0.0).total_cmp(&a.unwrap_or(0.0)));
+            } else {
+                levels.sort_by(|a, b| a.unwrap_or(0.0).total_cmp(&b.unwrap_or(0.0)));
+            }
+            if levels.iter().any(Option::is_none) && levels.len() > 1 {
+                return Err(DataError::Invalid(format!(
+                    "`{name}` in {}: some of its messages have no level value",
+                    paths.iter().map(|p| p.display().to_string()).collect::<Vec<_>>().join(", ")
+                )));
+            }
+            let mut slots: Vec<Option<Located>> = vec![None; times.len() * levels.len()];
+            for (time, level, located) in group.members {
+                let t = times.binary_search(&time).expect("time collected");
+                let l = levels.iter().position(|x| same_level(*x, level)).expect("level collected");
+                let slot = &mut slots[t * levels.len() + l];
+                if let Some(earlier) = slot {
+                    return Err(DataError::Invalid(format!(
+                        "`{name}` is given twice for {}{}: by {} and by {}; Baroc needs one message per variable, time and level",
+                        grib2::format_time(time),
+                        level_text(surface_kind, level),
+                        where_is(&paths, earlier),
+                        where_is(&paths, &located)
+                    )));
+                }
+                *slot = Some(located);
+            }
+            let mut messages = Vec::with_capacity(slots.len());
+            for (k, slot) in slots.into_iter().enumerate() {
+                let Some(located) = slot else {
+                    let (t, l) = (k / levels.len(), k % levels.len());
+                    return Err(DataError::Invalid(format!(
+                        "`{name}` has no message for {}{} in {}, though it has messages for other times and levels; Baroc needs every level at every time",
+                        grib2::format_time(times[t]),
+                        level_text(surface_kind, levels[l]),
+                        paths.iter().map(|p| p.display().to_string()).collect::<Vec<_>>().join(", ")
+                    )));
+                };
+                messages.push(located);
+            }
+            let hybrid = if surface_kind == grib2::SURFACE_HYBRID {
+                let pv = messages[0].field.product.pv.clone();
+                if let Some(other) = messages.iter().find(|m| m.field.product.pv != pv) {
+                    return Err(DataError::Invalid(format!(
+                        "`{name}`: the hybrid level coefficients differ between {} and {}",
+                        where_is(&paths, &messages[0]),
+                        where_is(&paths, other)
+                    )));
+                }
+                Some(HybridLevels { levels: levels.iter().map(|l| l.unwrap_or(f64::NAN)).collect(), pv })
+            } else {
+                None
+            };
+            let mut packings: Vec<&str> = Vec::new();
+            for m in &messages {
+                let p = grib2::packing_name(m.field.packing).expect("checked above");
+                if !packings.contains(&p) {
+                    packings.push(p);
+                }
+            }
+            let head = &messages[0].field;
+            let mut attributes = vec![
+                ("GRIB2_discipline".to_string(), head.discipline.to_string()),
+                ("GRIB2_parameter_category".to_string(), head.product.category.to_string()),
+                ("GRIB2_parameter_number".to_string(), head.product.number.to_string()),
+                ("GRIB2_fixed_surface_type".to_string(), surface_kind.to_string()),
+                ("GRIB2_packing".to_string(), packings.join(", ")),
+            ];
+            if let Some(h) = &hybrid {
+                attributes.push(("GRIB2_hybrid_level_numbers".into(), join_numbers(&h.levels)));
+                attributes.push(("GRIB2_hybrid_coefficients".into(), join_numbers(&h.pv)));
+            }
+            // Only isobaric and hybrid fields and the named surface fields
+            // carry a standard name, so roles never pick a 2 m temperature.
+            let standard_name = match surface_kind {
+                grib2::SURFACE_ISOBARIC | grib2::SURFACE_HYBRID => parameter.and_then(|p| p.standard_name),
+                grib2::SURFACE_GROUND if name == "sp" => Some("surface_air_pressure"),
+                grib2::SURFACE_MEAN_SEA_LEVEL if name == "prmsl" => Some("air_pressure_at_mean_sea_level"),
+                _ => None,
+            };
+            let pressure_levels =
+                (surface_kind == grib2::SURFACE_ISOBARIC).then(|| levels.iter().map(|l| l.unwrap_or(f64::NAN)).collect::<Vec<_>>());
+            variables.push(VariableInfo {
+                name: name.clone(),
+                long_name: Some(match (parameter, surface_kind) {
+                    (Some(p), grib2::SURFACE_HYBRID) => format!("{} on hybrid model levels", p.long_name),
+                    (Some(p), _) => p.long_name.to_string(),
+                    (None, _) => format!(
+                        "GRIB2 parameter discipline {}, category {}, number {}",
+                        head.discipline, head.product.category, head.product.number
+                    ),
+                }),
+                units: parameter.map_or(String::new(), |p| p.units.to_string()),
+                standard_name: standard_name.map(str::to_string),
+                levels: pressure_levels,
+                times: Some(TimeAxis {
+                    values: times.iter().map(|&t| (t - earliest) as f64 / 3600.0).collect(),
+                    units: time_units.clone(),
+                    calendar: "proleptic_gregorian".into(),
+                }),
+                grid: grid.clone(),
+                attributes,
+                packed: true,
+            });
+            tables.push(Table { times, levels, messages, hybrid });
+        }
+        Ok(Self { paths, files, variables, tables, layout, grid })
+    }
+
+    /// The hybrid model levels of a variable on them (level numbers and
+    /// vertical coordinate values), if it is on hybrid levels.
+    pub fn hybrid_levels(&self, variable: &str) -> Option<&HybridLevels> {
+        let k = self.variables.iter().position(|v| v.name == variable)?;
+        self.tables[k].hybrid.as_ref()
+    }
+
+    /// The message locations of a variable, in (time, level) order, as
+    /// "file message N": for messages and tests.
+    pub fn message_labels(&self, variable: &str) -> Vec<String> {
+        let Some(k) = self.variables.iter().position(|v| v.name == variable) else { return Vec::new() };
+        self.tables[k].messages.iter().map(|m| where_is(&self.paths, m)).collect()
+    }
+
+    fn read_span(&self, file: usize, span: Span) -> Result<Vec<u8>, DataError> {
+        let mut buffer = vec![0u8; span.length as usize];
+        self.files[file].read_exact_at(&mut buffer, span.offset).map_err(|e| DataError::Open {
+            path: self.paths[file].display().to_string(),
+            message: format!("reading bytes {}..{}: {e}", span.offset, span.offset + span.length),
+        })?;
+        Ok(buffer)
+    }
+
+    /// Decodes one message into `out` (one horizontal slice, in the grid's
+    /// order).
+    fn decode_into(&self, located: &Located, out: &mut [f32]) -> Result<(), DataError> {
+        let field = &located.field;
+        let fail = |e: String| {
+            DataError::Invalid(format!(
+                "{}: cannot unpack its values ({}, template 5.{}): {e}",
+                where_is(&self.paths, located),
+                grib2::packing_name(field.packing).unwrap_or("unknown packing"),
+                field.packing
+            ))
+        };
+        let Layout { ni, nj, reverse_columns, column_major } = self.layout;
+        let points = ni * nj;
+        let mut section5 = self.read_span(located.file, field.section5)?;
+        let section7 = self.read_span(located.file, field.section7)?;
+        if field.packing == 41 {
+            png_sample_bits(&mut section5, &section7);
+        }
+        let decoder = grib::Grib2SubmessageDecoder::new(points, section5, self.read_span(located.file, field.section6)?, section7)
+            .map_err(|e| fail(e.to_string()))?;
+        let values = decoder.dispatch().map_err(|e| fail(e.to_string()))?;
+        let mut count = 0usize;
+        if !reverse_columns && !column_major {
+            for (slot, v) in out.iter_mut().zip(values) {
+                *slot = v;
+                count += 1;
+            }
+        } else {
+            for (p, v) in values.take(points).enumerate() {
+                let (j, i) = if column_major { (p % nj, p / nj) } else { (p / ni, p % ni) };
+                let column = if reverse_columns { ni - 1 - i } else { i };
+                out[j * ni + column] = v;
+                count += 1;
+            }
+        }
+        if count != points {
+            return Err(fail(format!("it holds {count} values for a grid of {points} points")));
+        }
+        Ok(())
+    }
+}
+
+/// PNG packing (template 5.41) stores each value as one pixel, and a PNG
+/// pixel is 1, 2, 4, 8 or 16 bits per channel: an encoder asked for another
+/// width (12 bits, say) writes the next wider image, while section 5 keeps
+/// the width asked for. The decoder reads pixels at section 5's width, so
+/// the width is set here from the image's own header (PNG specification,
+/// ISO/IEC 15948, IHDR: bit depth times channels of the colour type).
+fn png_sample_bits(section5: &mut [u8], section7: &[u8]) {
+    // Section 7: 5 octets of header, then the PNG stream: an 8-byte
+    // signature, the IHDR chunk's length and type (8), width and height (8),
+    // then bit depth and colour type.
+    let (Some(&depth), Some(&colour)) = (section7.get(5 + 24), section7.get(5 + 25)) else { return };
+    if section7.get(5 + 12..5 + 16) != Some(b"IHDR".as_slice()) {
+        return;
+    }
+    let channels = match colour {
+        0 => 1,
+        4 => 2,
+        2 => 3,
+        6 => 4,
+        _ => return,
+    };
+    // Octet 20 of template 5.41: bits per value.
+    if let Some(bits) = section5.get_mut(19) {
+        let pixel = depth as u32 * channels;
+        if *bits != 0 && pixel <= 32 && *bits as u32 != pixel {
+            *bits = pixel as u8;
+        }
+    }
+}
+
+/// The error for a variable read where pressure levels are needed but it
+/// has none: for a variable on GRIB2 hybrid model levels, says so (and
+/// where its levels and coefficients are kept); otherwise `NoLevels`.
+pub fn no_pressure_levels(info: &VariableInfo) -> DataError {
+    let attribute = |key: &str| info.attributes.iter().find(|(k, _)| k == key).map(|(_, v)| v.split_whitespace().count());
+    match (attribute("GRIB2_hybrid_level_numbers"), attribute("GRIB2_hybrid_coefficients")) {
+        (Some(levels), Some(coefficients)) => DataError::Invalid(format!(
+            "`{}` is on {levels} hybrid model levels (GRIB2 fixed surface type 105), not pressure levels; Baroc's operators need pressure levels and do not yet interpolate model levels to pressure (its level numbers and {coefficients} hybrid coefficients are kept in the attributes GRIB2_hybrid_level_numbers and GRIB2_hybrid_coefficients)",
+            info.name
+        )),
+        _ => DataError::NoLevels { variable: info.name.clone() },
+    }
+}
+
+fn same_level(a: Option<f64>, b: Option<f64>) -> bool {
+    match (a, b) {
+        (Some(x), Some(y)) => (x - y).abs() <= 1e-6 * x.abs().max(1.0),
+        (None, None) => true,
+        _ => false,
+    }
+}
+
+fn level_text(kind: u8, level: Option<f64>) -> String {
+    match (kind, level) {
+        (grib2::SURFACE_ISOBARIC, Some(p)) => format!(" at {} hPa", p / 100.0),
+        (grib2::SURFACE_HYBRID, Some(n)) => format!(" on model level {n}"),
+        _ => String::new(),
+    }
+}
+
+fn join_numbers(values: &[f64]) -> String {
+    values.iter().map(|v| format!("{v}")).collect::<Vec<_>>().join(" ")
+}
+
+impl DataSource for GribSource {
+    fn label(&self) -> String {
+        self.paths.iter().map(|p| p.display().to_string()).collect::<Vec<_>>().join(", ")
+    }
+
+    fn variables(&self) -> &[VariableInfo] {
+        &self.variables
+    }
+
+    fn global_attributes(&self) -> Vec<(String, String)> {
+        vec![("source_format".into(), "GRIB edition 2".into())]
+    }
+
+    fn read(&self, name: &str, selection: &Selection) -> Result<Field, DataError> {
+        let k = self.variables.iter().position(|v| v.name == name).ok_or_else(|| DataError::MissingVariable {
+            path: self.label(),
+            name: name.to_string(),
+            available: self.variables.iter().map(|v| v.name.clone()).collect(),
+            suggestion: String::new(),
+        })?;
+        let info = &self.variables[k];
+        let table = &self.tables[k];
+        if table.hybrid.is_some() {
+            return Err(no_pressure_levels(info));
+        }
+        let time_count = table.times.len();
+        let time_indices: Vec<usize> = match &selection.times {
+            Some(wanted) => {
+                for &i in wanted {
+                    if i >= time_count {
+                        return Err(DataError::TimeOutOfRange { variable: name.into(), index: i, last: time_count - 1 });
+                    }
+                }
+                wanted.clone()
+            }
+            None => (0..time_count).collect(),
+        };
+        let level_indices: Vec<usize> = match (&selection.levels, &info.levels) {
+            (Some(wanted), Some(levels)) => wanted
+                .iter()
+                .map(|&p| {
+                    levels.iter().position(|&l| (l - p).abs() <= 1e-6 * p.abs().max(1.0)).ok_or_else(|| DataError::LevelNotInData {
+                        variable: name.into(),
+                        requested: p / 100.0,
+                        available: levels.iter().map(|l| l / 100.0).collect(),
+                    })
+                })
+                .collect::<Result<_, _>>()?,
+            (Some(_), None) => return Err(DataError::NoLevels { variable: name.into() }),
+            (None, _) => (0..table.levels.len()).collect(),
+        };
+
+        let (nj, ni) = (self.layout.nj, self.layout.ni);
+        let wanted: Vec<&Located> =
+            time_indices.iter().flat_map(|&t| level_indices.iter().map(move |&l| &table.messages[t * table.levels.len() + l])).collect();
+        let mut data = Array4::<f32>::from_elem((time_indices.len(), level_indices.len(), nj, ni), f32::NAN);
+        let slices = data.as_slice_mut().expect("a new array is contiguous");
+        slices.par_chunks_mut(nj * ni).zip(wanted.par_iter()).try_for_each(|(out, located)| self.decode_into(located, out))?;
+
+        let mut grid = self.grid.clone();
+        if let Some(region) = &selection.region {
+            let lat: Vec<usize> = (0..grid.latitudes.len())
+                .filter(|&j| grid.latitudes[j] >= region.south - 1e-9 && grid.latitudes[j] <= region.north + 1e-9)
+                .collect();
+            let (lon, lons) = super::netcdf_source::longitude_selection(&grid.longitudes, region);
+            if lat.is_empty() || lon.is_empty() {
+                let (south, north, west, east) = (region.south, region.north, region.west, region.east);
+                return Err(DataError::EmptyRegion { variable: name.into(), south, north, west, east, grid: grid.describe() });
+            }
+            data = data.select(Axis(2), &lat).select(Axis(3), &lon);
+            grid = Arc::new(Grid::new(lat.iter().map(|&j| grid.latitudes[j]).collect(), lons));
+        }
+        let times = info.times.as_ref().map(|t| t.select(&time_indices));
+        let levels = info.levels.as_ref().map(|l| level_indices.iter().map(|&i| l[i]).collect());
+        let mut field = Field::new(name, info.units.clone(), data, times, levels, grid).map_err(DataError::Invalid)?;
+        field.long_name = info.long_name.clone().unwrap_or_else(|| name.to_string());
+        field.standard_name = info.standard_name.clone();
+        Ok(field)
+    }
+}

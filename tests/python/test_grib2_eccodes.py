@@ -1,0 +1,590 @@
+"""GRIB2 input checked against the ecCodes Python bindings (the reference
+decoder): files written by ecCodes from its own samples, in several
+packings, read by Baroc (`baroc run` writing NetCDF, read back with
+netCDF4) and compared value by value and message by message; files written
+by Baroc's own writer read by ecCodes; bad input refused with a clear
+message; and an outside file run through a recipe unchanged."""
+
+import datetime as dt
+import re
+import subprocess
+from pathlib import Path
+
+import eccodes as ec
+import netCDF4
+import numpy as np
+import pytest
+
+from conftest import ROOT, run
+
+RD = 8.31432 / 0.0289644  # R*/M0, U.S. Standard Atmosphere 1976 constants
+G0 = 9.80665  # standard gravity (CGPM 1901)
+OMEGA = 7.292115e-5  # WGS 84 / IERS
+A = 6_371_000.0  # IUGG mean radius, as Baroc's constants
+
+MISSING = 9999.0
+
+
+def latlon_message(sample, lats, lons, values, *, packing="grid_simple", bits=16, scan_south_first=False, scan_west=False, **keys):
+    """An ecCodes message on a regular lat-lon grid. `values` is [lat, lon]
+    in the order of `lats` and `lons` (north first, west to east); the
+    message scans as asked. NaN values become bitmap-missing."""
+    h = ec.codes_grib_new_from_samples(sample)
+    lat_order = lats[::-1] if scan_south_first else lats
+    lon_order = lons[::-1] if scan_west else lons
+    grid = {
+        "Ni": len(lons),
+        "Nj": len(lats),
+        "iScansNegatively": int(scan_west),
+        "jScansPositively": int(scan_south_first),
+        "latitudeOfFirstGridPointInDegrees": float(lat_order[0]),
+        "latitudeOfLastGridPointInDegrees": float(lat_order[-1]),
+        "longitudeOfFirstGridPointInDegrees": float(lon_order[0] % 360),
+        "longitudeOfLastGridPointInDegrees": float(lon_order[-1] % 360),
+        "iDirectionIncrementInDegrees": abs(float(lons[1] - lons[0])),
+        "jDirectionIncrementInDegrees": abs(float(lats[1] - lats[0])),
+    }
+    for key, value in grid.items():
+        ec.codes_set(h, key, value)
+    for key, value in keys.items():
+        if isinstance(value, (list, np.ndarray)):
+            ec.codes_set_array(h, key, list(value))
+        else:
+            ec.codes_set(h, key, value)
+    ec.codes_set(h, "bitsPerValue", bits)
+    data = values
+    if scan_south_first:
+        data = data[::-1, :]
+    if scan_west:
+        data = data[:, ::-1]
+    data = np.asarray(data, dtype="f8")
+    if np.isnan(data).any():
+        ec.codes_set(h, "bitmapPresent", 1)
+        ec.codes_set(h, "missingValue", MISSING)
+        data = np.where(np.isnan(data), MISSING, data)
+    ec.codes_set_values(h, data.ravel())
+    # Repacked after the values are in (ecCodes' PNG packing fails when
+    # set on an empty message).
+    if packing != "grid_simple":
+        ec.codes_set(h, "packingType", packing)
+    return h
+
+
+def write_messages(path, handles):
+    with open(path, "wb") as f:
+        for h in handles:
+            ec.codes_write(h, f)
+            ec.codes_release(h)
+
+
+def eccodes_fields(path):
+    """Every message of a file as decoded by ecCodes: its keys, and its
+    values keyed by (latitude, longitude in 0..360), missing as NaN."""
+    out = []
+    with open(path, "rb") as f:
+        while (h := ec.codes_grib_new_from_file(f)) is not None:
+            values = ec.codes_get_values(h).astype("f8")
+            if ec.codes_get(h, "bitmapPresent"):
+                values[values == ec.codes_get(h, "missingValue")] = np.nan
+            lats = ec.codes_get_array(h, "latitudes")
+            lons = ec.codes_get_array(h, "longitudes") % 360
+            keys = {
+                k: ec.codes_get(h, k, ktype=(str if k in ("shortName", "packingType") else int))
+                for k in [
+                    "shortName",
+                    "discipline",
+                    "parameterCategory",
+                    "parameterNumber",
+                    "typeOfFirstFixedSurface",
+                    "level",
+                    "validityDate",
+                    "validityTime",
+                    "packingType",
+                    "binaryScaleFactor",
+                    "decimalScaleFactor",
+                ]
+            }
+            keys["values"] = {(round(float(a), 6), round(float(o), 6)): v for a, o, v in zip(lats, lons, values)}
+            out.append(keys)
+            ec.codes_release(h)
+    return out
+
+
+def baroc_fields(baroc, tmp_path, data_files, bindings):
+    """Runs a script of `let name = expression` lines and returns the
+    NetCDF result: {name: (values[time, lat, lon], lats, lons, times)}."""
+    script = tmp_path / "read.baroc"
+    script.write_text("".join(f"let {name} = {expression}\n" for name, expression in bindings.items()))
+    out = tmp_path / "read.nc"
+    run(baroc, "run", script, "-o", out, *data_files)
+    result = {}
+    with netCDF4.Dataset(out) as ds:
+        lats = ds["latitude"][:].astype("f8")
+        lons = ds["longitude"][:].astype("f8") % 360
+        times = netCDF4.num2date(ds["time"][:], ds["time"].units, only_use_cftime_datetimes=False, only_use_python_datetimes=True)
+        for name in bindings:
+            values = ds[name][:]
+            values = np.ma.filled(values.astype("f8"), np.nan)
+            result[name] = (values, lats, lons, list(times))
+    return result
+
+
+def compare(baroc_values, lats, lons, reference, atol):
+    """Baroc's [lat, lon] slice against a dict keyed by (lat, lon)."""
+    checked = 0
+    for j, lat in enumerate(lats):
+        for i, lon in enumerate(lons):
+            want = reference[(round(float(lat), 6), round(float(lon), 6))]
+            got = baroc_values[j, i]
+            if np.isnan(want):
+                assert np.isnan(got), f"{lat},{lon}: missing in ecCodes, {got} in Baroc"
+            else:
+                # Baroc keeps f32: a few units in the last place on top.
+                assert abs(got - want) <= atol + 5e-7 * abs(want), f"{lat},{lon}: Baroc {got}, ecCodes {want}"
+            checked += 1
+    assert checked == len(reference)
+
+
+def validity(keys):
+    d, t = keys["validityDate"], keys["validityTime"]
+    return dt.datetime(d // 10000, d // 100 % 100, d % 100, t // 100, t % 100)
+
+
+LATS = np.arange(60.0, 19.9, -2.5)
+LONS = np.arange(-30.0, 30.1, 2.5)
+
+
+def smooth_field(lats, lons, base, amplitude, seed):
+    """A smooth field with a little noise, known before packing."""
+    rng = np.random.default_rng(seed)
+    la, lo = np.meshgrid(np.radians(lats), np.radians(lons), indexing="ij")
+    return base + amplitude * (np.cos(2 * la) * np.sin(3 * lo) + 0.1 * rng.standard_normal(la.shape))
+
+
+PACKINGS = {
+    # packing type in ecCodes -> isobaric level (hPa) it goes on in the test
+    "grid_simple": 1000,
+    "grid_complex": 925,
+    "grid_complex_spatial_differencing": 850,
+    "grid_ccsds": 700,
+    "grid_jpeg": 600,
+    "grid_png": 500,
+}
+
+
+def test_every_packing_decodes_as_ecCodes_does_with_missing_values_as_nan(baroc, tmp_path):
+    path = tmp_path / "packings.grib2"
+    handles, known = [], {}
+    for k, (packing, level) in enumerate(PACKINGS.items()):
+        values = smooth_field(LATS, LONS, 260.0, 25.0, k)
+        values[3, 4] = np.nan  # missing points, through the bitmap
+        values[-1, -1] = np.nan
+        known[level] = values
+        # ecCodes' PNG writer fails on these fields at 16 and 24 bits
+        # ("libpng error: Failed to write PNG data"); 12 bits it writes.
+        bits = 12 if packing == "grid_png" else 16
+        handles.append(latlon_message("regular_ll_pl_grib2", LATS, LONS, values, packing=packing, bits=bits, level=level))
+    write_messages(path, handles)
+    reference = eccodes_fields(path)
+    assert [r["packingType"] for r in reference] == list(PACKINGS), "ecCodes wrote each packing asked for"
+    got = baroc_fields(baroc, tmp_path, [path], {f"p{level}": f"t at {level} hPa" for level in PACKINGS.values()})
+    for r in reference:
+        values, lats, lons, _ = got[f"p{r['level']}"]
+        # Both decoders unpack the same integers; Baroc keeps f32.
+        compare(values[0], lats, lons, r["values"], atol=2e-3)
+        # And the known field comes back within the packing's precision:
+        # one step 2^E 10^-D (WMO-No. 306, template 5.0 notes).
+        step = 2.0 ** r["binaryScaleFactor"] * 10.0 ** -r["decimalScaleFactor"]
+        want = known[r["level"]]
+        mask = ~np.isnan(want)
+        np.testing.assert_array_equal(np.isnan(values[0]), ~mask)
+        assert np.nanmax(np.abs(values[0][mask] - want[mask])) <= step + 1e-3, r["packingType"]
+
+
+@pytest.mark.parametrize("bits", [4, 6, 12, 16])
+def test_png_packing_at_widths_a_png_image_cannot_hold(baroc, tmp_path, bits):
+    # ecCodes writes 6 or 12 bits per value as a wider PNG image than section
+    # 5 says; the image's own header decides (PNG specification, IHDR).
+    values = 250.0 + 50.0 * np.linspace(0.0, 1.0, LATS.size * LONS.size).reshape(LATS.size, LONS.size)
+    values[2, 2] = np.nan
+    path = tmp_path / "png.grib2"
+    write_messages(path, [latlon_message("regular_ll_pl_grib2", LATS, LONS, values, packing="grid_png", bits=bits, level=500)])
+    (reference,) = eccodes_fields(path)
+    assert reference["packingType"] == "grid_png"
+    got, lats, lons, _ = baroc_fields(baroc, tmp_path, [path], {"x": "t at 500 hPa"})["x"]
+    compare(got[0], lats, lons, reference["values"], atol=1e-3)
+
+
+@pytest.mark.parametrize("south_first,west", [(True, False), (False, True), (True, True)])
+def test_scan_directions_map_onto_the_grid(baroc, tmp_path, south_first, west):
+    path = tmp_path / "scan.grib2"
+    values = smooth_field(LATS, LONS, 5500.0, 200.0, 7)
+    write_messages(path, [latlon_message("regular_ll_pl_grib2", LATS, LONS, values, packing="grid_simple", bits=24, scan_south_first=south_first, scan_west=west, shortName="gh", level=500)])
+    (reference,) = eccodes_fields(path)
+    values_b, lats, lons, _ = baroc_fields(baroc, tmp_path, [path], {"h": "geopotential_height at 500 hPa"})["h"]
+    compare(values_b[0], lats, lons, reference["values"], atol=0.01)
+    # Columns always run west to east; rows keep the file's order.
+    assert np.all(np.diff(np.unwrap(np.radians(lons))) > 0)
+    assert (lats[0] < lats[-1]) == south_first
+
+
+# WMO code table 4.2 (discipline 0) triples and the names and roles Baroc
+# gives them; ecCodes' shortName for the same triple is checked too.
+PARAMETERS = [
+    # (category, number, Baroc variable, Baroc role in `inspect`)
+    (0, 0, "t", "temperature"),
+    (3, 5, "gh", "geopotential_height"),
+    (3, 4, "z", "geopotential"),
+    (2, 2, "u", "eastward_wind"),
+    (2, 3, "v", "northward_wind"),
+    (1, 0, "q", "specific_humidity"),
+    (1, 1, "r", None),
+]
+
+
+def test_code_tables_levels_and_times_message_by_message(baroc, tmp_path):
+    path = tmp_path / "tables.grib2"
+    handles = []
+    # Forecast times in three units of code table 4.4: hours, minutes, days
+    # (0 h, 360 min = 6 h, 1 day = 24 h) from 2031-04-12 06:00.
+    steps = [(1, 0), (0, 360), (2, 1)]
+    seed = 0
+    for unit, forecast in steps:
+        for category, number, _, _ in PARAMETERS:
+            for level in (850, 500):
+                seed += 1
+                values = smooth_field(LATS, LONS, 100.0 * (category + 1) + level / 100, 10.0, seed)
+                handles.append(
+                    latlon_message(
+                        "regular_ll_pl_grib2",
+                        LATS,
+                        LONS,
+                        values,
+                        packing="grid_complex_spatial_differencing",
+                        bits=20,
+                        discipline=0,
+                        parameterCategory=category,
+                        parameterNumber=number,
+                        typeOfFirstFixedSurface=100,
+                        level=level,
+                        dataDate=20310412,
+                        dataTime=600,
+                        indicatorOfUnitOfTimeRange=unit,
+                        forecastTime=forecast,
+                    )
+                )
+        seed += 1
+        handles.append(
+            latlon_message(
+                "regular_ll_sfc_grib2",
+                LATS,
+                LONS,
+                smooth_field(LATS, LONS, 100000.0, 1500.0, seed),
+                packing="grid_ccsds",
+                bits=24,
+                discipline=0,
+                parameterCategory=3,
+                parameterNumber=0,
+                typeOfFirstFixedSurface=1,
+                dataDate=20310412,
+                dataTime=600,
+                indicatorOfUnitOfTimeRange=unit,
+                forecastTime=forecast,
+            )
+        )
+    write_messages(path, handles)
+    reference = eccodes_fields(path)
+
+    described = run(baroc, "inspect", path).stdout
+    for _, _, name, role in PARAMETERS:
+        assert re.search(rf"^  {name}{re.escape(f' [{role}]') if role else ''}:", described, re.M), (name, described)
+    assert re.search(r"^  sp \[surface_pressure\]:", described, re.M), described
+    assert "levels (hPa): 850, 500" in described
+    assert "times: 3 steps, 2031-04-12T06:00:00 to 2031-04-13T06:00:00" in described
+
+    bindings = {f"{name}{level}": f"{name} at {level} hPa" for _, _, name, _ in PARAMETERS for level in (850, 500)}
+    bindings["surface"] = "sp * 1"  # a bare name is a data reference, not a result
+    got = baroc_fields(baroc, tmp_path, [path], bindings)
+    names = {(c, n): name for c, n, name, _ in PARAMETERS}
+    for r in reference:
+        if r["typeOfFirstFixedSurface"] == 1:
+            assert r["shortName"] == "sp"
+            key = "surface"
+        else:
+            assert r["typeOfFirstFixedSurface"] == 100
+            name = names[(r["parameterCategory"], r["parameterNumber"])]
+            # ecCodes names the same code-table entry the same way.
+            assert r["shortName"] == name
+            key = f"{name}{r['level']}"
+        values, lats, lons, times = got[key]
+        t = times.index(validity(r))
+        step = 2.0 ** r["binaryScaleFactor"] * 10.0 ** -r["decimalScaleFactor"]
+        compare(values[t], lats, lons, r["values"], atol=max(1e-3, step))
+
+
+def test_hybrid_levels_are_indexed_and_refused_as_pressure_levels(baroc, tmp_path):
+    path = tmp_path / "hybrid.grib2"
+    pv = [0.0, 2000.0, 5000.0, 1.0, 0.8, 0.5]  # a of 3 half levels, then b
+    handles = [
+        latlon_message(
+            "regular_ll_pl_grib2",
+            LATS,
+            LONS,
+            smooth_field(LATS, LONS, 280.0 - 5 * level, 5.0, level),
+            shortName="t",
+            typeOfFirstFixedSurface=105,
+            level=level,
+            PVPresent=1,
+            pv=pv,
+        )
+        for level in (1, 2)
+    ]
+    write_messages(path, handles)
+    assert [r["typeOfFirstFixedSurface"] for r in eccodes_fields(path)] == [105, 105]
+    described = run(baroc, "inspect", path).stdout
+    assert re.search(r"^  t_hybrid \[temperature\]: temperature on hybrid model levels", described, re.M), described
+    done = run(baroc, "run", "-e", "let x = temperature at 500 hPa", "-o", tmp_path / "x.nc", path, check=False)
+    assert done.returncode == 1 and "panicked" not in done.stderr
+    assert "`t_hybrid` is on 2 hybrid model levels" in done.stderr, done.stderr
+
+
+def test_own_writer_files_read_by_eccodes_with_the_same_values(baroc, tmp_path):
+    sample = Path(baroc).parent / "baroc-grib2-sample"
+    subprocess.run([str(sample), str(tmp_path)], check=True)
+    # The lat-lon file: the formula of src/bin/baroc-grib2-sample.rs.
+    fields = eccodes_fields(tmp_path / "latlon-isobaric.grib2")
+    assert len(fields) == 4
+    for r in fields:
+        assert (r["discipline"], r["parameterCategory"], r["parameterNumber"], r["shortName"]) == (0, 0, 0, "t")
+        assert r["typeOfFirstFixedSurface"] == 100 and r["level"] in (850, 500)
+        hour = (validity(r) - dt.datetime(2031, 4, 12, 6)).total_seconds() / 3600
+        assert hour in (0, 6)
+        step = 2.0 ** r["binaryScaleFactor"]
+        for (lat, lon), value in r["values"].items():
+            if (lat, lon) == (60.0, 340.0):
+                assert np.isnan(value), "the first point is missing"
+                continue
+            lon = lon - 360 if lon > 180 else lon
+            want = 250 + 0.5 * (60 - lat) + 0.25 * lon + r["level"] * 100 / 10000 + hour / 4
+            assert abs(value - want) <= step, (lat, lon, value, want)
+    # Baroc reads its own file back the same way.
+    got = baroc_fields(baroc, tmp_path, [tmp_path / "latlon-isobaric.grib2"], {"t850": "t at 850 hPa"})["t850"]
+    for r in fields:
+        if r["level"] == 850:
+            t = got[3].index(validity(r))
+            compare(got[0][t], got[1], got[2], r["values"], atol=2e-3)
+
+    # The Lambert conformal file with hybrid levels: template and vertical
+    # coordinate keys as ecCodes reads them.
+    with open(tmp_path / "lambert-hybrid.grib2", "rb") as f:
+        messages = []
+        while (h := ec.codes_grib_new_from_file(f)) is not None:
+            messages.append(h)
+    try:
+        keys = {
+            "gridDefinitionTemplateNumber": 30,
+            "Nx": 6,
+            "Ny": 5,
+            "latitudeOfFirstGridPointInDegrees": 35.0,
+            "longitudeOfFirstGridPointInDegrees": 350.0,
+            "LaDInDegrees": 45.0,
+            "LoVInDegrees": 2.0,
+            "DxInMetres": 12000.0,
+            "DyInMetres": 12000.0,
+            "Latin1InDegrees": 40.0,
+            "Latin2InDegrees": 50.0,
+            "jScansPositively": 1,
+        }
+        for h in messages:
+            for key, want in keys.items():
+                assert ec.codes_get(h, key) == pytest.approx(want), key
+        for k, h in enumerate(messages[:3]):
+            assert ec.codes_get(h, "typeOfFirstFixedSurface", int) == 105 and ec.codes_get(h, "level") == k + 1
+            np.testing.assert_allclose(ec.codes_get_array(h, "pv"), [0.0, 5000.0, 10000.0, 0.0, 1.0, 0.7, 0.3, 0.0], rtol=1e-6)
+            want = 290.0 - 10.0 * (k + 1) + 0.5 * np.arange(30)
+            np.testing.assert_allclose(ec.codes_get_values(h), want, atol=2.0 ** ec.codes_get(h, "binaryScaleFactor"))
+        sp = messages[3]
+        assert ec.codes_get(sp, "shortName") == "sp" and ec.codes_get(sp, "typeOfFirstFixedSurface", int) == 1
+        np.testing.assert_allclose(ec.codes_get_values(sp), 100000.0 + 10.0 * np.arange(30), atol=2.0 ** ec.codes_get(sp, "binaryScaleFactor"))
+    finally:
+        for h in messages:
+            ec.codes_release(h)
+
+
+def grid_parameters(stderr):
+    return {k: v for k, v in re.findall(r"(\w+)=(\S+)", stderr)}
+
+
+def refused(baroc, tmp_path, path, *fragments):
+    done = run(baroc, "inspect", path, check=False)
+    assert done.returncode == 1, done.stdout
+    assert "panicked" not in done.stderr
+    for fragment in (str(path), *fragments):
+        assert fragment in done.stderr, (fragment, done.stderr)
+    return done.stderr
+
+
+def test_projected_grids_are_refused_with_their_parameters_as_ecCodes_reads_them(baroc, tmp_path):
+    # Lambert conformal (template 3.30): a lat-lon sample turned into 3.30.
+    h = ec.codes_grib_new_from_samples("regular_ll_pl_grib2")
+    ec.codes_set(h, "gridDefinitionTemplateNumber", 30)
+    lambert = {
+        "Nx": 20,
+        "Ny": 15,
+        "latitudeOfFirstGridPointInDegrees": 33.5,
+        "longitudeOfFirstGridPointInDegrees": 348.25,
+        "LaDInDegrees": 46.0,
+        "LoVInDegrees": 3.5,
+        "DxInMetres": 9000.0,
+        "DyInMetres": 9000.0,
+        "Latin1InDegrees": 41.0,
+        "Latin2InDegrees": 51.0,
+        "latitudeOfSouthernPoleInDegrees": -90.0,
+        "longitudeOfSouthernPoleInDegrees": 0.0,
+    }
+    for key, value in lambert.items():
+        ec.codes_set(h, key, value)
+    ec.codes_set_values(h, np.linspace(270, 290, 300))
+    path = tmp_path / "lambert.grib2"
+    write_messages(path, [h])
+    text = refused(baroc, tmp_path, path, "projected grid (template 3.30, Lambert conformal) is not supported yet", "message 1")
+    ours = grid_parameters(text)
+    names = {
+        "Nx": "nx",
+        "Ny": "ny",
+        "latitudeOfFirstGridPointInDegrees": "first_latitude",
+        "longitudeOfFirstGridPointInDegrees": "first_longitude",
+        "LaDInDegrees": "true_scale_latitude",
+        "LoVInDegrees": "orientation_longitude",
+        "DxInMetres": "dx_metres",
+        "DyInMetres": "dy_metres",
+        "Latin1InDegrees": "first_standard_parallel",
+        "Latin2InDegrees": "second_standard_parallel",
+        "latitudeOfSouthernPoleInDegrees": "south_pole_latitude",
+        "longitudeOfSouthernPoleInDegrees": "south_pole_longitude",
+    }
+    for f in [eccodes_reader(path)]:
+        for key, ours_key in names.items():
+            assert float(ours[ours_key]) == pytest.approx(ec.codes_get(f, key)), key
+        ec.codes_release(f)
+
+    # Polar stereographic (template 3.20) and rotated lat-lon (3.1) from
+    # ecCodes' own samples.
+    for sample, template, name, keys in [
+        ("polar_stereographic_pl_grib2", 20, "polar stereographic", {"Nx": "nx", "Ny": "ny", "LaDInDegrees": "true_scale_latitude", "orientationOfTheGridInDegrees": "orientation_longitude", "DxInMetres": "dx_metres", "projectionCentreFlag": "projection_centre_flag"}),
+        ("rotated_ll_pl_grib2", 1, "rotated latitude-longitude", {"Ni": "ni", "Nj": "nj", "latitudeOfSouthernPoleInDegrees": "south_pole_latitude", "longitudeOfSouthernPoleInDegrees": "south_pole_longitude", "angleOfRotationInDegrees": "rotation_angle"}),
+    ]:
+        path = tmp_path / f"{sample}.grib2"
+        write_messages(path, [ec.codes_grib_new_from_samples(sample)])
+        ours = grid_parameters(refused(baroc, tmp_path, path, f"projected grid (template 3.{template}, {name}) is not supported yet"))
+        f = eccodes_reader(path)
+        for key, ours_key in keys.items():
+            assert float(ours[ours_key]) == pytest.approx(ec.codes_get(f, key)), key
+        ec.codes_release(f)
+
+
+def eccodes_reader(path):
+    with open(path, "rb") as f:
+        return ec.codes_grib_new_from_file(f)
+
+
+def test_bad_input_is_refused_clearly_without_a_panic(baroc, tmp_path):
+    # GRIB edition 1, from ecCodes' own sample.
+    grib1 = tmp_path / "old.grib"
+    write_messages(grib1, [ec.codes_grib_new_from_samples("GRIB1")])
+    refused(baroc, tmp_path, grib1, "GRIB edition 1")
+    # A Gaussian grid (template 3.40).
+    gaussian = tmp_path / "gaussian.grib2"
+    write_messages(gaussian, [ec.codes_grib_new_from_samples("regular_gg_pl_grib2")])
+    refused(baroc, tmp_path, gaussian, "template 3.40 is not supported", "message 1")
+    # An unsupported packing: IEEE floats (template 5.4), in message 2.
+    ieee = tmp_path / "ieee.grib2"
+    values = smooth_field(LATS, LONS, 280.0, 5.0, 1)
+    write_messages(
+        ieee,
+        [
+            latlon_message("regular_ll_pl_grib2", LATS, LONS, values, level=850),
+            latlon_message("regular_ll_pl_grib2", LATS, LONS, values, packing="grid_ieee", bits=32, level=500),
+        ],
+    )
+    refused(baroc, tmp_path, ieee, "message 2", "template 5.4 is not supported")
+    # A truncated file: the last message cut short.
+    whole = ieee.read_bytes()
+    truncated = tmp_path / "truncated.grib2"
+    truncated.write_bytes(whole[: len(whole) - 100])
+    refused(baroc, tmp_path, truncated, "message 2", "truncated")
+    # The same variable, time and level twice: both messages named.
+    twice = tmp_path / "twice.grib2"
+    write_messages(twice, [latlon_message("regular_ll_pl_grib2", LATS, LONS, values, level=850) for _ in range(2)])
+    refused(baroc, tmp_path, twice, "given twice", "message 1", "message 2")
+    # The same message split over two files is a duplicate as well.
+    one, two = tmp_path / "one.grib2", tmp_path / "two.grib2"
+    write_messages(one, [latlon_message("regular_ll_pl_grib2", LATS, LONS, values, level=850)])
+    write_messages(two, [latlon_message("regular_ll_pl_grib2", LATS, LONS, values, level=850)])
+    done = run(baroc, "inspect", one, two, check=False)
+    assert done.returncode == 1 and str(one) in done.stderr and str(two) in done.stderr, done.stderr
+
+
+def test_messages_split_across_files_combine_by_level_and_time(baroc, tmp_path):
+    files = []
+    for k, level in enumerate((850, 700, 500)):
+        path = tmp_path / f"level{level}.grib2"
+        write_messages(path, [latlon_message("regular_ll_pl_grib2", LATS, LONS, smooth_field(LATS, LONS, 270 - k * 10, 5, k), level=level)])
+        files.append(path)
+    described = run(baroc, "inspect", *files).stdout
+    assert "levels (hPa): 850, 700, 500" in described, described
+
+
+def test_an_outside_file_runs_through_the_thermal_wind_budget_recipe(baroc, tmp_path):
+    """A balanced atmosphere written by ecCodes: temperature linear in ln p,
+    heights from the exact hypsometric integral of it, winds geostrophic
+    (numpy.gradient on the sphere, as the field guide's differences), in
+    complex packing with spatial differencing and CCSDS."""
+    lats = np.arange(76.0, 23.9, -1.0)
+    lons = np.arange(-70.0, 20.1, 1.0)
+    levels = np.array([1000, 925, 850, 700, 600, 500, 400, 300], dtype="f8")
+    la, lo = np.meshgrid(np.radians(lats), np.radians(lons), indexing="ij")
+    t_base = 288.0 - 30.0 * np.sin(la) ** 2 + 4.0 * np.cos(3 * lo) * np.cos(la)
+    z_base = 120.0 + 60.0 * np.sin(2 * lo) * np.cos(la)
+    c = 45.0  # K per unit ln p: T = t_base - c ln(1000 hPa / p)
+    f = 2 * OMEGA * np.sin(la)
+    handles = []
+    heights = {}
+    for p in levels:
+        depth = np.log(1000.0 / p)
+        t = t_base - c * depth
+        # Exact hypsometric height of p above 1000 hPa for T linear in ln p
+        # (hypsometric equation, Wallace and Hobbs 2006, eq. 3.29).
+        z = z_base + RD / G0 * (t_base * depth - 0.5 * c * depth**2)
+        heights[p] = z
+        dzdy = np.gradient(z, np.radians(lats), axis=0, edge_order=2) / A
+        dzdx = np.gradient(z, np.radians(lons), axis=1, edge_order=2) / (A * np.cos(la))
+        u = -G0 / f * dzdy  # geostrophic wind (Holton 2004, eq. 3.11)
+        v = G0 / f * dzdx
+        common = dict(dataDate=20310412, dataTime=1200, typeOfFirstFixedSurface=100, level=int(p))
+        handles.append(latlon_message("regular_ll_pl_grib2", lats, lons, t, packing="grid_complex_spatial_differencing", bits=24, shortName="t", **common))
+        handles.append(latlon_message("regular_ll_pl_grib2", lats, lons, z, packing="grid_complex_spatial_differencing", bits=24, shortName="gh", **common))
+        handles.append(latlon_message("regular_ll_pl_grib2", lats, lons, u, packing="grid_ccsds", bits=24, shortName="u", **common))
+        handles.append(latlon_message("regular_ll_pl_grib2", lats, lons, v, packing="grid_ccsds", bits=24, shortName="v", **common))
+    path = tmp_path / "outside.grib2"
+    write_messages(path, handles)
+    out = tmp_path / "budget.nc"
+    run(baroc, "run", ROOT / "recipes" / "thermal-wind-budget.baroc", "-o", out, path)
+    with netCDF4.Dataset(out) as ds:
+        for name in ["layer_thickness", "thermal_eastward", "thermal_from_heights_eastward", "ageostrophic_eastward", "warming", "veering"]:
+            assert name in ds.variables, (name, list(ds.variables))
+        out_lats = ds["latitude"][:].astype("f8")
+        out_lons = ds["longitude"][:].astype("f8")
+        out_lons = np.where(out_lons > 180, out_lons - 360, out_lons)
+        rows = [int(np.argmin(abs(lats - x))) for x in out_lats]
+        cols = [int(np.argmin(abs(lons - x))) for x in out_lons]
+        # Thickness 1000-500 hPa: the exact integral (no humidity in the
+        # file, so virtual temperature is temperature).
+        want = (heights[500.0] - heights[1000.0])[np.ix_(rows, cols)]
+        got = np.ma.filled(ds["layer_thickness"][0].astype("f8"), np.nan)
+        assert np.nanmax(np.abs(got - want)) < 2.0, np.nanmax(np.abs(got - want))
+        # Balance: the analysed shear is the thermal wind, so the
+        # ageostrophic shear is small against it.
+        thermal = np.hypot(ds["thermal_from_heights_eastward"][0], ds["thermal_from_heights_northward"][0])
+        ageo = np.hypot(ds["ageostrophic_eastward"][0], ds["ageostrophic_northward"][0])
+        assert np.nanmax(ageo) < 0.05 * np.nanmax(thermal), (np.nanmax(ageo), np.nanmax(thermal))
