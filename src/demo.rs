@@ -30,6 +30,7 @@ use crate::constants::{Constants, DRY_AIR_GAS_CONSTANT as RD, EPSILON, STANDARD_
 use crate::grid::Grid;
 use crate::physics::geostrophic::{geostrophic_wind, GeopotentialKind, DEFAULT_EQUATOR_BAND};
 use crate::physics::standard_atmosphere;
+use crate::physics::wind::direction_from;
 
 /// Name of the case file `baroc demo` writes.
 pub const FILE_NAME: &str = "marrowind-wave-2026-10-14.nc";
@@ -322,15 +323,6 @@ fn write_file(path: &Path, d: &DemoFields) -> Result<(), Box<dyn std::error::Err
     }
     file.close()?;
     Ok(())
-}
-
-/// Meteorological wind direction (degrees the wind blows FROM, 0 = north,
-/// 90 = east), the WMO convention; NaN for calm or missing.
-pub fn direction_from(u: f64, v: f64) -> f64 {
-    if !(u.is_finite() && v.is_finite()) || (u == 0.0 && v == 0.0) {
-        return f64::NAN;
-    }
-    ((-u).atan2(-v).to_degrees() + 360.0) % 360.0
 }
 
 /// One row of the demo's summary table.

@@ -91,7 +91,7 @@ use crate::physics::thermal_wind::turning_angle;
 use crate::render::hodograph::{render_hodograph, HodographPoint, HodographSpec};
 
 fn place(latitude: f64, longitude: f64) -> String {
-    format!("{} {}", crate::lang::eval::format_latitude(latitude), crate::lang::eval::format_longitude(longitude))
+    format!("{} {}", crate::text::format_latitude(latitude), crate::text::format_longitude(longitude))
 }
 
 fn time_label(f: &Field) -> String {

@@ -298,7 +298,7 @@ pub fn tabulate(outcome: &RunOutcome, points: &[(f64, f64)], regions: &[crate::p
                 for (label, v) in labels(f).into_iter().zip(values) {
                     rows.push(TableRow {
                         result: name.clone(),
-                        place: format!("{} {}", crate::lang::eval::format_latitude(lat), crate::lang::eval::format_longitude(lon)),
+                        place: format!("{} {}", crate::text::format_latitude(lat), crate::text::format_longitude(lon)),
                         label,
                         columns: vec![format!("value ({})", f.units)],
                         values: vec![v as f64],

@@ -5,7 +5,7 @@
 use std::sync::Arc;
 
 use super::diagnostic::{list_words, Diagnostic};
-use super::eval::{engine_error, format_latitude, format_longitude, geopotential_kind, thickness_route, Evaluator};
+use super::eval::{engine_error, geopotential_kind, thickness_route, Evaluator};
 use super::syntax::Span;
 use super::value::{AngleAxis, Series, Value};
 use crate::calendar::DateTime;
@@ -14,6 +14,7 @@ use crate::grid::{Field, VectorField};
 use crate::io::Selection;
 use crate::physics::sampling::Region;
 use crate::units::{Dimension, Unit};
+use crate::text::{format_latitude, format_longitude};
 
 type Result<T> = std::result::Result<T, Diagnostic>;
 
@@ -366,7 +367,7 @@ pub fn call_builtin(
                 Ok(Value::scalar(w.speed()))
             } else {
                 let mut data = w.eastward.data.clone();
-                ndarray::Zip::from(&mut data).and(&w.northward.data).par_for_each(|u, &v| *u = crate::demo::direction_from(*u as f64, v as f64) as f32);
+                ndarray::Zip::from(&mut data).and(&w.northward.data).par_for_each(|u, &v| *u = crate::physics::wind::direction_from(*u as f64, v as f64) as f32);
                 let mut f = w.eastward.derived("direction", "degree", data).map_err(|e| error(e, span))?;
                 f.long_name = format!("direction (from) of {}", w.eastward.long_name.replace("eastward ", ""));
                 Ok(Value::scalar(f))

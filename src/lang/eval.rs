@@ -28,6 +28,7 @@ use crate::io::{Dataset, Role, Selection};
 use crate::physics::geostrophic::{GeopotentialKind, DEFAULT_EQUATOR_BAND};
 use crate::physics::sampling::Region;
 use crate::units::{Dimension, Unit};
+use crate::text::{format_latitude, format_longitude};
 
 /// How deep user functions may call each other.
 pub const MAX_CALL_DEPTH: usize = 64;
@@ -1062,7 +1063,7 @@ impl Evaluator {
                     labels: row_labels(&w.eastward),
                     rows: u.iter().zip(&v).map(|(&a, &b)| {
                         let (a, b) = (a as f64, b as f64);
-                        vec![a, b, a.hypot(b), crate::demo::direction_from(a, b)]
+                        vec![a, b, a.hypot(b), crate::physics::wind::direction_from(a, b)]
                     }).collect(),
                 }))
             }
@@ -1192,15 +1193,6 @@ pub fn take_printed() -> String {
 }
 
 
-pub(crate) fn format_latitude(lat: f64) -> String {
-    format!("{:.2}°{}", lat.abs(), if lat >= 0.0 { "N" } else { "S" })
-}
-
-pub(crate) fn format_longitude(lon: f64) -> String {
-    let lon = ((lon + 180.0).rem_euclid(360.0)) - 180.0;
-    format!("{:.2}°{}", lon.abs(), if lon >= 0.0 { "E" } else { "W" })
-}
-
 pub(crate) fn describe_value(v: &Value) -> String {
     match v {
         Value::Number { value, unit } => format!("{} {unit}", trim(*value)),
@@ -1255,7 +1247,7 @@ fn as_scalar_like(v: &Value, other: &Value, span: Span) -> Result<Field> {
 
 fn direction_field(w: &VectorField) -> Result<Field> {
     let mut data = w.eastward.data.clone();
-    Zip::from(&mut data).and(&w.northward.data).par_for_each(|u, &v| *u = crate::demo::direction_from(*u as f64, v as f64) as f32);
+    Zip::from(&mut data).and(&w.northward.data).par_for_each(|u, &v| *u = crate::physics::wind::direction_from(*u as f64, v as f64) as f32);
     let mut out = w.eastward.derived("direction", "degree", data).map_err(|e| error(e, Span::default()))?;
     out.long_name = format!("direction (from) of {}", w.eastward.long_name.replace("eastward ", ""));
     out.standard_name = None;
