@@ -86,7 +86,8 @@ pub fn series_text(series: &Series) -> String {
 pub fn bundle(value: &Value) -> MimeBundle {
     match value {
         Value::Series(s) => series_table(s).to_bundle().unwrap_or_else(|_| MimeBundle::plain(series_text(s))),
-        Value::Figure(b) => b.clone(),
+        Value::Figure(request) => crate::figures::draw(request).unwrap_or_else(|d| MimeBundle::plain(format!("the {} could not be drawn: {}", request.operator, d.message))),
+        Value::Report(request) => MimeBundle::plain(format!("a report to write to {} (written when a session or run carries it out)", request.path.display())),
         Value::Scalar(f) => {
             let mut b = crate::figures::field_map(f, None).unwrap_or_default();
             b.insert_text("text/plain", describe_field(f));
@@ -105,6 +106,15 @@ pub fn bundle(value: &Value) -> MimeBundle {
             MimeBundle::plain(text)
         }
         other => MimeBundle::plain(plain(other)),
+    }
+}
+
+/// The bundle of a value a front end shows: figures drawn, with an error
+/// (pointing at the call or the option) if one cannot be.
+pub fn present(value: &Value) -> Result<MimeBundle, crate::lang::Diagnostic> {
+    match value {
+        Value::Figure(request) => crate::figures::draw(request),
+        other => Ok(bundle(other)),
     }
 }
 
@@ -135,6 +145,6 @@ pub fn plain(value: &Value) -> String {
         Value::Scalar(f) => describe_field(f),
         Value::Vector(w) => describe_vector(w),
         Value::Series(s) => series_text(s),
-        Value::Record(_) | Value::Figure(_) => bundle(value).plain_text().to_string(),
+        Value::Record(_) | Value::Figure(_) | Value::Report(_) => bundle(value).plain_text().to_string(),
     }
 }

@@ -4,9 +4,84 @@
 use ndarray::{ArrayView2, Axis};
 
 use crate::grid::{Field, VectorField};
+use crate::lang::value::{FigureContent, FigureOption, FigureRequest, Value};
+use crate::lang::Diagnostic;
 use crate::mime::MimeBundle;
 use crate::render::map::{ContourLayer, MapSpec, ShadedLayer, VectorLayer};
 use crate::render::{FigureSize, RenderError};
+
+/// Options every picture takes: its size in CSS pixels and the PNG's
+/// resolution.
+const PICTURE_OPTIONS: &[&str] = &["width", "height", "dpi"];
+
+/// Checks that every option given is one the operator knows.
+fn allow(operator: &str, options: &[FigureOption], allowed: &[&str]) -> Result<(), Diagnostic> {
+    for option in options {
+        if !allowed.contains(&option.name.as_str()) {
+            let help = if allowed.is_empty() { format!("`{operator}` takes no options") } else { format!("its options are {}", crate::lang::diagnostic::list_words(allowed, "and")) };
+            return Err(Diagnostic::error(format!("`{operator}` has no option `{}`", option.name), option.name_span).with_help(help));
+        }
+    }
+    Ok(())
+}
+
+/// The figure size from `with width N, height N, dpi N` (CSS pixels and
+/// dots per inch), each falling back to the default given.
+fn figure_size(options: &[FigureOption], default: FigureSize) -> Result<FigureSize, Diagnostic> {
+    let mut size = default;
+    for option in options {
+        let number = match &option.value {
+            Value::Number { value, unit } if unit.is_dimensionless() && *value > 0.0 => *value,
+            other => {
+                if PICTURE_OPTIONS.contains(&option.name.as_str()) {
+                    return Err(Diagnostic::error(format!("`{}` takes a plain positive number, found {}", option.name, other.kind()), option.value_span));
+                }
+                continue;
+            }
+        };
+        match option.name.as_str() {
+            "width" => size.width = number.round() as u32,
+            "height" => size.height = number.round() as u32,
+            "dpi" => size.dpi = number,
+            _ => {}
+        }
+    }
+    Ok(size)
+}
+
+/// Draws what a presentation operator asked for: interprets its options
+/// (size, resolution, panel columns) and calls the renderers. Errors point
+/// at the option or the call.
+pub fn draw(request: &FigureRequest) -> Result<MimeBundle, Diagnostic> {
+    let operator = request.operator.as_str();
+    let options = &request.options;
+    let failed = |e: FigureError| Diagnostic::error(e.to_string(), request.span);
+    let rendered = |e: RenderError| Diagnostic::error(e.to_string(), request.span);
+    if !matches!(request.content, FigureContent::Panels { .. }) {
+        allow(operator, options, PICTURE_OPTIONS)?;
+    }
+    match &request.content {
+        FigureContent::FieldMap { field, vectors } => field_map_with(field, vectors.as_deref(), &figure_size(options, FigureSize::default())?).map_err(rendered),
+        FigureContent::VectorMap { vectors } => vector_map_with(vectors, &figure_size(options, FigureSize::default())?).map_err(rendered),
+        FigureContent::Hodograph { case, latitude, longitude } => hodograph(case, *latitude, *longitude, &figure_size(options, FigureSize::new(640, 640))?).map_err(failed),
+        FigureContent::Profile { fields, latitude, longitude } => {
+            let refs: Vec<&Field> = fields.iter().map(|f| &**f).collect();
+            profile(&refs, *latitude, *longitude, &figure_size(options, FigureSize::new(520, 640))?).map_err(failed)
+        }
+        FigureContent::Section { field, wind, from, to } => section(field, wind.as_deref(), *from, *to, &figure_size(options, FigureSize::new(900, 520))?).map_err(failed),
+        FigureContent::TimeSeries { series } => time_series(series, &figure_size(options, FigureSize::new(800, 420))?).map_err(failed),
+        FigureContent::Panels { figures } => {
+            allow(operator, options, &["columns"])?;
+            let columns = match options.iter().find(|o| o.name == "columns") {
+                Some(FigureOption { value: Value::Number { value, .. }, .. }) if *value >= 1.0 => *value as usize,
+                Some(other) => return Err(Diagnostic::error(format!("`columns` takes a whole number of at least 1, found {}", other.value.kind()), other.name_span)),
+                None => 2,
+            };
+            let drawn = figures.iter().map(draw).collect::<Result<Vec<_>, _>>()?;
+            panels(&drawn, columns, "panels").map_err(failed)
+        }
+    }
+}
 
 /// The first horizontal slice of a field, and a note of which it is.
 fn first_slice(f: &Field) -> (ArrayView2<'_, f32>, String) {
@@ -91,7 +166,7 @@ use crate::physics::thermal_wind::turning_angle;
 use crate::render::hodograph::{render_hodograph, HodographPoint, HodographSpec};
 
 fn place(latitude: f64, longitude: f64) -> String {
-    format!("{} {}", crate::text::format_latitude(latitude), crate::text::format_longitude(longitude))
+    crate::text::format_place(latitude, longitude)
 }
 
 fn time_label(f: &Field) -> String {

@@ -56,6 +56,7 @@ impl Session {
     /// folder.
     pub fn new() -> Self {
         let mut evaluator = Evaluator::new();
+        evaluator.describe = crate::display::plain;
         let cwd = std::env::current_dir().unwrap_or_else(|_| PathBuf::from("."));
         evaluator.recipe_folders = lang::recipe::default_folders(Some(&cwd.join("recipes")));
         evaluator.base_directory = cwd;
@@ -104,8 +105,19 @@ impl Session {
         self.evaluator.check_scope = scope;
         // `print(...)` shows its text on stdout, not as a value.
         let shown: Vec<_> = shown.into_iter().filter(|(_, v)| !matches!(v, Value::Text(t) if t.is_empty())).collect();
-        let mut bundles: Vec<MimeBundle> = shown.iter().map(|(_, v)| crate::display::bundle(v)).collect();
-        self.last_values = shown.into_iter().map(|(_, v)| v).collect();
+        // The language returns requests; carrying them out (writing reports,
+        // drawing figures) is the front end's part. A figure that cannot be
+        // drawn fails the cell like any other error.
+        let mut values: Vec<Value> = shown.into_iter().map(|(_, v)| v).collect();
+        let presented = crate::report::carry_out(&self.evaluator, values.iter_mut()).and_then(|()| values.iter().map(crate::display::present).collect::<Result<Vec<MimeBundle>, Diagnostic>>());
+        let mut bundles = match presented {
+            Ok(bundles) => bundles,
+            Err(d) => {
+                self.evaluator.restore(saved);
+                return Err(self.fail(&[d], code));
+            }
+        };
+        self.last_values = values;
         let result = bundles.pop();
         Ok(CellOutput { displays: bundles, result, notes: if notes.is_empty() { String::new() } else { lang::render_all(&notes, code, &self.render_options) }, printed })
     }

@@ -1215,7 +1215,7 @@ impl<'e> Checker<'e> {
         // The operators for pictures, tables, printing and recipes take
         // values of any kind; their arguments were checked as expressions
         // above and the evaluator checks what each needs.
-        if super::builtins_eval::PRESENTATION.contains(&target.as_str()) {
+        if super::builtins::PRESENTATION.contains(&target.as_str()) {
             return CallTarget::Nothing;
         }
         // Calling a dataset variable or role.

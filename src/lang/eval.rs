@@ -112,6 +112,10 @@ pub struct Evaluator {
     /// Source text of the top-level definitions made so far (bindings,
     /// functions, parameters, outputs), for saving them as a recipe.
     pub definitions: Vec<(String, String)>,
+    /// How `print` writes a value. The language's own short description by
+    /// default; front ends install their plain-text form (tables, field
+    /// summaries), so the language need not know how values are displayed.
+    pub describe: fn(&Value) -> String,
 }
 
 impl Default for Evaluator {
@@ -173,6 +177,7 @@ impl Evaluator {
             source: String::new(),
             check_scope: super::check::Scope::default(),
             definitions: Vec::new(),
+            describe: describe_value,
         }
     }
 
