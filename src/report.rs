@@ -92,7 +92,7 @@ pub fn build(outcome: &RunOutcome, request: &RunRequest, extra_figures: Vec<(cra
         match &r.value {
             Value::Series(s) => report = report.table(crate::display::series_table(s)),
             Value::Scalar(_) | Value::Vector(_) | Value::Figure(_) => {
-                let bundle = crate::display::bundle(&r.value);
+                let bundle = crate::display::bundle_from(&r.value, outcome.dataset.as_deref());
                 if bundle.binary("image/png").is_some() || bundle.text("image/svg+xml").is_some() {
                     report = report.figure(bundle, caption);
                 } else {

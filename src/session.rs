@@ -109,7 +109,7 @@ impl Session {
         // drawing figures) is the front end's part. A figure that cannot be
         // drawn fails the cell like any other error.
         let mut values: Vec<Value> = shown.into_iter().map(|(_, v)| v).collect();
-        let presented = crate::report::carry_out(&self.evaluator, values.iter_mut()).and_then(|()| values.iter().map(crate::display::present).collect::<Result<Vec<MimeBundle>, Diagnostic>>());
+        let presented = crate::report::carry_out(&self.evaluator, values.iter_mut()).and_then(|()| values.iter().map(|v| crate::display::present(v, self.evaluator.current_dataset().map(|d| &**d))).collect::<Result<Vec<MimeBundle>, Diagnostic>>());
         let mut bundles = match presented {
             Ok(bundles) => bundles,
             Err(d) => {

@@ -429,7 +429,7 @@ pub fn call_builtin(
         "map" | "hodograph" | "profile" | "section" | "time_series" | "panels" => {
             let content = figure_content(evaluator, name, &args, &selection, span)?;
             let options = options.values.into_iter().map(|(name, name_span, value, value_span)| FigureOption { name, name_span, value, value_span }).collect();
-            Ok(Value::Figure(FigureRequest { operator: name.to_string(), content, options, span }))
+            Ok(Value::Figure(FigureRequest { operator: name.to_string(), content, options, span, dataset: evaluator.current_dataset().cloned() }))
         }
         "write_report" => {
             options.allow(name, &[])?;

@@ -97,6 +97,9 @@ pub struct FigureRequest {
     pub options: Vec<FigureOption>,
     /// The call, for errors found while drawing.
     pub span: Span,
+    /// The open dataset the figure's data came from, if any, for what the
+    /// drawing side takes from it beyond the fields.
+    pub dataset: Option<Arc<Dataset>>,
 }
 
 /// A report of the session's outputs to be written to `path`
