@@ -16,27 +16,33 @@
 //! - surface pressure from the 1000 hPa height by the hypsometric equation
 //!   (the basin is open ocean: the surface is at sea level).
 //!
-//! It is written the way real data sources write files: levels in hPa from
-//! 1000 down, latitude north to south, geopotential packed into shorts with
-//! scale_factor/add_offset and a _FillValue, a gap of missing temperatures,
-//! humidity not reported at 200 hPa (missing_value), CF time in hours since
-//! 1900-01-01. No real place or event is depicted.
+//! The file is plain CF 1.8 in Baroc's own choice of names: full-word
+//! variable names, every coordinate labelled with standard_name and axis,
+//! udunits unit strings (`m s-1`, `m2 s-2`), time in hours since the case's
+//! first analysis. Levels run from 1000 hPa down and latitude from north to
+//! south; a gap of missing temperatures and humidity not reported at 200 hPa
+//! (both as _FillValue) exercise missing data. A land-sea mask (CF
+//! `land_binary_mask`) draws an invented coastline: a mainland to the east,
+//! a southern shore, and the islands of the scenario's sites, all flat
+//! lowland, so the surface stays at sea level. No real place or event is
+//! depicted; files in other layouts are read alike (see the reader's tests).
 
 use std::path::{Path, PathBuf};
 
-use ndarray::{s, Array3, Array4, Axis};
+use ndarray::{s, Array2, Array3, Array4, Axis};
 
 use crate::constants::{Constants, DRY_AIR_GAS_CONSTANT as RD, EPSILON, STANDARD_GRAVITY as G0};
 use crate::grid::Grid;
 use crate::physics::geostrophic::{geostrophic_wind, GeopotentialKind, DEFAULT_EQUATOR_BAND};
 use crate::physics::standard_atmosphere;
+use crate::physics::wind::direction_from;
 
 /// Name of the case file `baroc demo` writes.
 pub const FILE_NAME: &str = "marrowind-wave-2026-10-14.nc";
 /// Pressure levels (hPa), in the order the file stores them.
 pub const LEVELS_HPA: [f64; 10] = [1000.0, 925.0, 850.0, 700.0, 600.0, 500.0, 400.0, 300.0, 250.0, 200.0];
 /// Time units of the file (CF).
-pub const TIME_UNITS: &str = "hours since 1900-01-01 00:00:0.0";
+pub const TIME_UNITS: &str = "hours since 2026-10-14 00:00:00";
 /// First analysis time and step.
 pub const START: &str = "2026-10-14 00:00";
 pub const STEP_HOURS: f64 = 6.0;
@@ -61,6 +67,26 @@ pub struct DemoFields {
     pub northward_wind: Array4<f32>,
     pub specific_humidity: Array4<f32>,
     pub surface_pressure: Array3<f32>,
+    /// Land (1) or sea (0), [latitude, longitude].
+    pub land: Array2<f32>,
+}
+
+/// The scenario's invented coastline as a land-sea mask (1 land, 0 sea):
+/// a mainland east of a wavy coast near the prime meridian that recedes
+/// eastward in the south, a shore along the southern edge in the west that
+/// turns south out of the grid, and three islands carrying the sites Port
+/// Tallowmere, Skerrin Light and Wrenfold Isle (ellipses, semi-axes in
+/// degrees of latitude and longitude).
+pub fn land_mask(grid: &Grid) -> Array2<f32> {
+    const ISLANDS: [(f64, f64, f64, f64); 3] = [(52.0, -30.2, 1.6, 2.6), (58.3, -19.5, 1.1, 1.8), (62.2, -6.6, 1.3, 2.4)];
+    Array2::from_shape_fn((grid.latitudes.len(), grid.longitudes.len()), |(j, i)| {
+        let (lat, lon) = (grid.latitudes[j], grid.longitudes[i]);
+        let coast = -1.5 + 2.0 * ((lat - 40.0) / 3.0).sin() + 1.2 * (38.0 - lat).max(0.0);
+        let mainland = lon > coast;
+        let southern_shore = lat < 30.5 + 1.5 * ((lon + 50.0) / 4.0).sin() - 0.35 * (lon + 42.0).max(0.0);
+        let island = ISLANDS.iter().any(|&(y, x, a, b)| ((lat - y) / a).powi(2) + ((lon - x) / b).powi(2) <= 1.0);
+        if mainland || southern_shore || island { 1.0 } else { 0.0 }
+    })
 }
 
 /// Saturation specific humidity (kg/kg): e_s = 611.2 exp(17.67 Tc / (Tc + 243.5))
@@ -198,7 +224,8 @@ pub fn generate() -> DemoFields {
         }
     }
 
-    DemoFields { grid, levels_pa, hours, temperature, height, eastward_wind, northward_wind, specific_humidity, surface_pressure }
+    let land = land_mask(&grid);
+    DemoFields { grid, levels_pa, hours, temperature, height, eastward_wind, northward_wind, specific_humidity, surface_pressure, land }
 }
 
 fn start_hours() -> f64 {
@@ -239,21 +266,24 @@ fn write_file(path: &Path, d: &DemoFields) -> Result<(), Box<dyn std::error::Err
     )?;
     let (nt, nl, ny, nx) = d.temperature.dim();
     file.add_unlimited_dimension("time")?;
-    file.add_dimension("level", nl)?;
+    file.add_dimension("pressure", nl)?;
     file.add_dimension("latitude", ny)?;
     file.add_dimension("longitude", nx)?;
     {
         let mut v = file.add_variable::<f64>("time", &["time"])?;
         v.put_attribute("units", TIME_UNITS)?;
-        v.put_attribute("calendar", "gregorian")?;
+        v.put_attribute("calendar", "standard")?;
         v.put_attribute("standard_name", "time")?;
-        v.put_attribute("long_name", "time")?;
+        v.put_attribute("axis", "T")?;
+        v.put_attribute("long_name", "time of analysis")?;
         v.put_values(&d.hours, 0..nt)?;
     }
     {
-        let mut v = file.add_variable::<f32>("level", &["level"])?;
-        v.put_attribute("units", "millibar")?;
-        v.put_attribute("long_name", "pressure level")?;
+        let mut v = file.add_variable::<f32>("pressure", &["pressure"])?;
+        v.put_attribute("units", "hPa")?;
+        v.put_attribute("standard_name", "air_pressure")?;
+        v.put_attribute("axis", "Z")?;
+        v.put_attribute("long_name", "pressure of the level")?;
         v.put_attribute("positive", "down")?;
         let hpa: Vec<f32> = d.levels_pa.iter().map(|p| (p / 100.0) as f32).collect();
         v.put_values(&hpa, ..)?;
@@ -261,16 +291,20 @@ fn write_file(path: &Path, d: &DemoFields) -> Result<(), Box<dyn std::error::Err
     {
         let mut v = file.add_variable::<f32>("latitude", &["latitude"])?;
         v.put_attribute("units", "degrees_north")?;
+        v.put_attribute("standard_name", "latitude")?;
+        v.put_attribute("axis", "Y")?;
         v.put_attribute("long_name", "latitude")?;
         v.put_values(&d.grid.latitudes.iter().map(|&x| x as f32).collect::<Vec<_>>(), ..)?;
     }
     {
         let mut v = file.add_variable::<f32>("longitude", &["longitude"])?;
         v.put_attribute("units", "degrees_east")?;
+        v.put_attribute("standard_name", "longitude")?;
+        v.put_attribute("axis", "X")?;
         v.put_attribute("long_name", "longitude")?;
         v.put_values(&d.grid.longitudes.iter().map(|&x| x as f32).collect::<Vec<_>>(), ..)?;
     }
-    let dims4 = ["time", "level", "latitude", "longitude"];
+    let dims4 = ["time", "pressure", "latitude", "longitude"];
     let float_var = |file: &mut netcdf::FileMut, name: &str, standard: &str, long: &str, units: &str, data: &Array4<f32>, fill: Option<(&str, f32)>| -> Result<(), Box<dyn std::error::Error>> {
         let mut v = file.add_variable::<f32>(name, &dims4)?;
         if let Some((attribute, value)) = fill {
@@ -290,47 +324,30 @@ fn write_file(path: &Path, d: &DemoFields) -> Result<(), Box<dyn std::error::Err
     let mut temperature = d.temperature.clone();
     let (gt, gk, gy, gx) = GAP;
     temperature.slice_mut(s![gt, gk, gy, gx]).fill(f32::NAN);
-    float_var(&mut file, "t", "air_temperature", "temperature", "K", &temperature, Some(("_FillValue", -9999.0)))?;
-    float_var(&mut file, "u", "eastward_wind", "eastward wind", "m s**-1", &d.eastward_wind, None)?;
-    float_var(&mut file, "v", "northward_wind", "northward wind", "m s**-1", &d.northward_wind, None)?;
+    float_var(&mut file, "temperature", "air_temperature", "air temperature", "K", &temperature, Some(("_FillValue", -9999.0)))?;
+    float_var(&mut file, "eastward_wind", "eastward_wind", "eastward wind", "m s-1", &d.eastward_wind, None)?;
+    float_var(&mut file, "northward_wind", "northward_wind", "northward wind", "m s-1", &d.northward_wind, None)?;
     let mut q = d.specific_humidity.clone();
     q.index_axis_mut(Axis(1), nl - 1).fill(f32::NAN); // not reported at 200 hPa
-    float_var(&mut file, "q", "specific_humidity", "specific humidity", "kg kg**-1", &q, Some(("missing_value", 1.0e20)))?;
-
-    // Geopotential packed into shorts (CF 8.1): value = stored * scale + offset.
-    let phi = d.height.mapv(|z| z as f64 * G0);
-    let (lo, hi) = phi.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &x| (a.min(x), b.max(x)));
-    let scale = (hi - lo) / 64000.0;
-    let offset = 0.5 * (hi + lo);
+    float_var(&mut file, "specific_humidity", "specific_humidity", "specific humidity", "kg kg-1", &q, Some(("_FillValue", -9999.0)))?;
+    let geopotential = d.height.mapv(|z| (z as f64 * G0) as f32);
+    float_var(&mut file, "geopotential", "geopotential", "geopotential", "m2 s-2", &geopotential, None)?;
     {
-        let mut v = file.add_variable::<i16>("z", &dims4)?;
-        v.set_fill_value(-32767i16)?;
-        v.put_attribute("scale_factor", scale)?;
-        v.put_attribute("add_offset", offset)?;
-        v.put_attribute("standard_name", "geopotential")?;
-        v.put_attribute("long_name", "geopotential")?;
-        v.put_attribute("units", "m**2 s**-2")?;
-        let packed = phi.mapv(|x| ((x - offset) / scale).round() as i16);
-        v.put(packed.view(), ..)?;
-    }
-    {
-        let mut v = file.add_variable::<f32>("sp", &["time", "latitude", "longitude"])?;
+        let mut v = file.add_variable::<f32>("surface_pressure", &["time", "latitude", "longitude"])?;
         v.put_attribute("standard_name", "surface_air_pressure")?;
         v.put_attribute("long_name", "surface pressure")?;
         v.put_attribute("units", "Pa")?;
         v.put(d.surface_pressure.view(), ..)?;
     }
+    {
+        let mut v = file.add_variable::<f32>("land_sea_mask", &["latitude", "longitude"])?;
+        v.put_attribute("standard_name", "land_binary_mask")?;
+        v.put_attribute("long_name", "land (1) or sea (0)")?;
+        v.put_attribute("units", "1")?;
+        v.put(d.land.view(), ..)?;
+    }
     file.close()?;
     Ok(())
-}
-
-/// Meteorological wind direction (degrees the wind blows FROM, 0 = north,
-/// 90 = east), the WMO convention; NaN for calm or missing.
-pub fn direction_from(u: f64, v: f64) -> f64 {
-    if !(u.is_finite() && v.is_finite()) || (u == 0.0 && v == 0.0) {
-        return f64::NAN;
-    }
-    ((-u).atan2(-v).to_degrees() + 360.0) % 360.0
 }
 
 /// One row of the demo's summary table.

@@ -84,27 +84,43 @@ pub fn series_text(series: &Series) -> String {
 /// The bundle of a value. Fields get a picture when the renderers can draw
 /// one; everything has text/plain.
 pub fn bundle(value: &Value) -> MimeBundle {
+    bundle_from(value, None)
+}
+
+/// The bundle of a value from a dataset: maps of fields get coastlines from
+/// its land-sea mask when it has one.
+pub fn bundle_from(value: &Value, dataset: Option<&crate::io::Dataset>) -> MimeBundle {
     match value {
         Value::Series(s) => series_table(s).to_bundle().unwrap_or_else(|_| MimeBundle::plain(series_text(s))),
-        Value::Figure(b) => b.clone(),
+        Value::Figure(request) => crate::figures::draw(request).unwrap_or_else(|d| MimeBundle::plain(format!("the {} could not be drawn: {}", request.operator, d.message))),
+        Value::Report(request) => MimeBundle::plain(format!("a report to write to {} (written when a session or run carries it out)", request.path.display())),
         Value::Scalar(f) => {
-            let mut b = crate::figures::field_map(f, None).unwrap_or_default();
+            let mut b = crate::figures::field_map_on(f, None, &crate::render::FigureSize::default(), dataset).unwrap_or_default();
             b.insert_text("text/plain", describe_field(f));
             b
         }
         Value::Vector(w) => {
-            let mut b = crate::figures::vector_map(w).unwrap_or_default();
+            let mut b = crate::figures::vector_map_on(w, &crate::render::FigureSize::default(), dataset).unwrap_or_default();
             b.insert_text("text/plain", describe_vector(w));
             b
         }
         Value::Record(r) => {
             let mut text = format!("{}\n", r.title);
             for (name, v) in &r.entries {
-                text.push_str(&format!("{name}: {}\n", bundle(v).plain_text()));
+                text.push_str(&format!("{name}: {}\n", bundle_from(v, dataset).plain_text()));
             }
             MimeBundle::plain(text)
         }
         other => MimeBundle::plain(plain(other)),
+    }
+}
+
+/// The bundle of a value a front end shows: figures drawn, with an error
+/// (pointing at the call or the option) if one cannot be.
+pub fn present(value: &Value, dataset: Option<&crate::io::Dataset>) -> Result<MimeBundle, crate::lang::Diagnostic> {
+    match value {
+        Value::Figure(request) => crate::figures::draw(request),
+        other => Ok(bundle_from(other, dataset)),
     }
 }
 
@@ -118,11 +134,11 @@ pub fn plain(value: &Value) -> String {
         Value::Bool(b) => b.to_string(),
         Value::Text(t) => t.clone(),
         Value::Angle { degrees, axis } => match axis {
-            crate::lang::value::AngleAxis::Latitude => crate::lang::eval::format_latitude(*degrees),
-            crate::lang::value::AngleAxis::Longitude => crate::lang::eval::format_longitude(*degrees),
+            crate::lang::value::AngleAxis::Latitude => crate::text::format_latitude(*degrees),
+            crate::lang::value::AngleAxis::Longitude => crate::text::format_longitude(*degrees),
         },
         Value::Layer(l) => format!("the {} layer", l.label()),
-        Value::Point { latitude, longitude } => format!("point {} {}", crate::lang::eval::format_latitude(*latitude), crate::lang::eval::format_longitude(*longitude)),
+        Value::Point { latitude, longitude } => format!("point {} {}", crate::text::format_latitude(*latitude), crate::text::format_longitude(*longitude)),
         Value::Region(_) | Value::Range(..) => crate::lang::eval::describe_value(value),
         Value::Time(t) => t.to_string(),
         Value::TimeIndex(i) => format!("time step {i}"),
@@ -135,6 +151,6 @@ pub fn plain(value: &Value) -> String {
         Value::Scalar(f) => describe_field(f),
         Value::Vector(w) => describe_vector(w),
         Value::Series(s) => series_text(s),
-        Value::Record(_) | Value::Figure(_) => bundle(value).plain_text().to_string(),
+        Value::Record(_) | Value::Figure(_) | Value::Report(_) => bundle(value).plain_text().to_string(),
     }
 }

@@ -4,9 +4,84 @@
 use ndarray::{ArrayView2, Axis};
 
 use crate::grid::{Field, VectorField};
+use crate::lang::value::{FigureContent, FigureOption, FigureRequest, Value};
+use crate::lang::Diagnostic;
 use crate::mime::MimeBundle;
 use crate::render::map::{ContourLayer, MapSpec, ShadedLayer, VectorLayer};
 use crate::render::{FigureSize, RenderError};
+
+/// Options every picture takes: its size in CSS pixels and the PNG's
+/// resolution.
+const PICTURE_OPTIONS: &[&str] = &["width", "height", "dpi"];
+
+/// Checks that every option given is one the operator knows.
+fn allow(operator: &str, options: &[FigureOption], allowed: &[&str]) -> Result<(), Diagnostic> {
+    for option in options {
+        if !allowed.contains(&option.name.as_str()) {
+            let help = if allowed.is_empty() { format!("`{operator}` takes no options") } else { format!("its options are {}", crate::lang::diagnostic::list_words(allowed, "and")) };
+            return Err(Diagnostic::error(format!("`{operator}` has no option `{}`", option.name), option.name_span).with_help(help));
+        }
+    }
+    Ok(())
+}
+
+/// The figure size from `with width N, height N, dpi N` (CSS pixels and
+/// dots per inch), each falling back to the default given.
+fn figure_size(options: &[FigureOption], default: FigureSize) -> Result<FigureSize, Diagnostic> {
+    let mut size = default;
+    for option in options {
+        let number = match &option.value {
+            Value::Number { value, unit } if unit.is_dimensionless() && *value > 0.0 => *value,
+            other => {
+                if PICTURE_OPTIONS.contains(&option.name.as_str()) {
+                    return Err(Diagnostic::error(format!("`{}` takes a plain positive number, found {}", option.name, other.kind()), option.value_span));
+                }
+                continue;
+            }
+        };
+        match option.name.as_str() {
+            "width" => size.width = number.round() as u32,
+            "height" => size.height = number.round() as u32,
+            "dpi" => size.dpi = number,
+            _ => {}
+        }
+    }
+    Ok(size)
+}
+
+/// Draws what a presentation operator asked for: interprets its options
+/// (size, resolution, panel columns) and calls the renderers. Errors point
+/// at the option or the call.
+pub fn draw(request: &FigureRequest) -> Result<MimeBundle, Diagnostic> {
+    let operator = request.operator.as_str();
+    let options = &request.options;
+    let failed = |e: FigureError| Diagnostic::error(e.to_string(), request.span);
+    let rendered = |e: RenderError| Diagnostic::error(e.to_string(), request.span);
+    if !matches!(request.content, FigureContent::Panels { .. }) {
+        allow(operator, options, PICTURE_OPTIONS)?;
+    }
+    match &request.content {
+        FigureContent::FieldMap { field, vectors } => field_map_on(field, vectors.as_deref(), &figure_size(options, FigureSize::default())?, request.dataset.as_deref()).map_err(rendered),
+        FigureContent::VectorMap { vectors } => vector_map_on(vectors, &figure_size(options, FigureSize::default())?, request.dataset.as_deref()).map_err(rendered),
+        FigureContent::Hodograph { case, latitude, longitude } => hodograph(case, *latitude, *longitude, &figure_size(options, FigureSize::new(640, 640))?).map_err(failed),
+        FigureContent::Profile { fields, latitude, longitude } => {
+            let refs: Vec<&Field> = fields.iter().map(|f| &**f).collect();
+            profile(&refs, *latitude, *longitude, &figure_size(options, FigureSize::new(520, 640))?).map_err(failed)
+        }
+        FigureContent::Section { field, wind, from, to } => section(field, wind.as_deref(), *from, *to, &figure_size(options, FigureSize::new(900, 520))?).map_err(failed),
+        FigureContent::TimeSeries { series } => time_series(series, &figure_size(options, FigureSize::new(800, 420))?).map_err(failed),
+        FigureContent::Panels { figures } => {
+            allow(operator, options, &["columns"])?;
+            let columns = match options.iter().find(|o| o.name == "columns") {
+                Some(FigureOption { value: Value::Number { value, .. }, .. }) if *value >= 1.0 => *value as usize,
+                Some(other) => return Err(Diagnostic::error(format!("`columns` takes a whole number of at least 1, found {}", other.value.kind()), other.name_span)),
+                None => 2,
+            };
+            let drawn = figures.iter().map(draw).collect::<Result<Vec<_>, _>>()?;
+            panels(&drawn, columns, "panels").map_err(failed)
+        }
+    }
+}
 
 /// The first horizontal slice of a field, and a note of which it is.
 fn first_slice(f: &Field) -> (ArrayView2<'_, f32>, String) {
@@ -34,9 +109,40 @@ fn habitual_interval(f: &Field) -> Option<f64> {
     (length && (f.name.starts_with("thickness") || f.standard_name.as_deref() == Some("geopotential_height"))).then_some(60.0)
 }
 
+/// The land-sea mask of a dataset (the variable with the CF standard name
+/// `land_binary_mask`) on a map's grid, by nearest grid point; NaN where
+/// the mask's grid does not reach. None when the dataset has no mask, it
+/// cannot be read, or the map's area holds no coast.
+pub fn land_mask_on(dataset: &crate::io::Dataset, latitudes: &[f64], longitudes: &[f64]) -> Option<ndarray::Array2<f32>> {
+    let info = dataset.variables().find(|v| v.standard_name.as_deref() == Some("land_binary_mask"))?;
+    let mask = dataset.read(&info.name.clone(), &crate::io::Selection::default()).ok()?;
+    let (mask_lats, mask_lons) = (&mask.grid.latitudes, &mask.grid.longitudes);
+    let values = mask.data.index_axis(Axis(0), 0).index_axis_move(Axis(0), 0);
+    let step = |c: &[f64]| if c.len() > 1 { (c[1] - c[0]).abs() } else { 1.0 };
+    let nearest = |coordinates: &[f64], x: f64, wrap: bool| -> Option<usize> {
+        let distance = |c: f64| if wrap { ((c - x + 540.0).rem_euclid(360.0) - 180.0).abs() } else { (c - x).abs() };
+        let (index, d) = coordinates.iter().enumerate().map(|(i, &c)| (i, distance(c))).min_by(|a, b| a.1.total_cmp(&b.1))?;
+        (d <= 0.51 * step(coordinates)).then_some(index)
+    };
+    let rows: Vec<Option<usize>> = latitudes.iter().map(|&y| nearest(mask_lats, y, false)).collect();
+    let columns: Vec<Option<usize>> = longitudes.iter().map(|&x| nearest(mask_lons, x, true)).collect();
+    let out = ndarray::Array2::from_shape_fn((latitudes.len(), longitudes.len()), |(j, i)| match (rows[j], columns[i]) {
+        (Some(r), Some(c)) => values[[r, c]],
+        _ => f32::NAN,
+    });
+    let (land, sea) = out.iter().fold((false, false), |(l, s), &v| (l || v >= 0.5, s || (v.is_finite() && v < 0.5)));
+    (land && sea).then_some(out)
+}
+
 /// A map of a scalar field: shaded, with labelled contour lines, and
 /// optional vectors on top.
 pub fn field_map_with(f: &Field, vectors: Option<&VectorField>, size: &FigureSize) -> Result<MimeBundle, RenderError> {
+    field_map_on(f, vectors, size, None)
+}
+
+/// A map of a scalar field, with coastlines from the dataset's land-sea
+/// mask when it has one.
+pub fn field_map_on(f: &Field, vectors: Option<&VectorField>, size: &FigureSize, dataset: Option<&crate::io::Dataset>) -> Result<MimeBundle, RenderError> {
     let (values, note) = first_slice(f);
     let mut spec = MapSpec::new(format!("{} ({})", f.long_name, f.units), &f.grid.latitudes, &f.grid.longitudes).subtitle(note);
     let shaded = ShadedLayer::new(values, f.name.clone(), f.units.clone());
@@ -53,6 +159,10 @@ pub fn field_map_with(f: &Field, vectors: Option<&VectorField>, size: &FigureSiz
         vector_slices = (first_slice(&w.eastward).0, first_slice(&w.northward).0);
         spec = spec.vectors(VectorLayer::arrows(vector_slices.0, vector_slices.1, w.eastward.long_name.replace("eastward ", "")));
     }
+    let land = dataset.and_then(|d| land_mask_on(d, &f.grid.latitudes, &f.grid.longitudes));
+    if let Some(mask) = &land {
+        spec = spec.contour_lines(crate::render::map::coastline_layer(mask.view()));
+    }
     spec = spec.caption("Baroc: an analysis tool, not a warning service.");
     crate::render::map::render_map(&spec, size)
 }
@@ -66,6 +176,12 @@ pub fn field_map(f: &Field, vectors: Option<&VectorField>) -> Option<MimeBundle>
 /// A map of a vector field: speed shaded, barbs for winds, arrows for other
 /// vectors (gradients, shears).
 pub fn vector_map_with(w: &VectorField, size: &FigureSize) -> Result<MimeBundle, RenderError> {
+    vector_map_on(w, size, None)
+}
+
+/// A map of a vector field, with coastlines from the dataset's land-sea
+/// mask when it has one.
+pub fn vector_map_on(w: &VectorField, size: &FigureSize, dataset: Option<&crate::io::Dataset>) -> Result<MimeBundle, RenderError> {
     let speed = w.speed();
     let (values, note) = first_slice(&speed);
     let (u, _) = first_slice(&w.eastward);
@@ -73,11 +189,15 @@ pub fn vector_map_with(w: &VectorField, size: &FigureSize) -> Result<MimeBundle,
     let name = w.eastward.long_name.replace("eastward ", "");
     let is_speed = crate::units::Unit::parse(&w.eastward.units).map(|u| u.dimension() == crate::units::Dimension::VELOCITY).unwrap_or(false);
     let layer = if is_speed { VectorLayer::barbs(u, v, name.clone()) } else { VectorLayer::arrows(u, v, name.clone()) };
-    let spec = MapSpec::new(format!("{name} ({})", w.eastward.units), &w.eastward.grid.latitudes, &w.eastward.grid.longitudes)
+    let mut spec = MapSpec::new(format!("{name} ({})", w.eastward.units), &w.eastward.grid.latitudes, &w.eastward.grid.longitudes)
         .subtitle(note)
         .shaded(ShadedLayer::new(values, format!("speed of {name}"), w.eastward.units.clone()))
         .vectors(layer)
         .caption("Baroc: an analysis tool, not a warning service.");
+    let land = dataset.and_then(|d| land_mask_on(d, &w.eastward.grid.latitudes, &w.eastward.grid.longitudes));
+    if let Some(mask) = &land {
+        spec = spec.contour_lines(crate::render::map::coastline_layer(mask.view()));
+    }
     crate::render::map::render_map(&spec, size)
 }
 
@@ -91,7 +211,7 @@ use crate::physics::thermal_wind::turning_angle;
 use crate::render::hodograph::{render_hodograph, HodographPoint, HodographSpec};
 
 fn place(latitude: f64, longitude: f64) -> String {
-    format!("{} {}", crate::lang::eval::format_latitude(latitude), crate::lang::eval::format_longitude(longitude))
+    crate::text::format_place(latitude, longitude)
 }
 
 fn time_label(f: &Field) -> String {

@@ -24,3 +24,4 @@ pub mod units;
 pub mod render;
 pub mod report;
 pub mod runner;
+pub mod text;

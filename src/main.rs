@@ -298,7 +298,7 @@ fn demo(output: &Path, time_step: Option<usize>) -> Result<(), String> {
         return Err(format!("error: time step {step} is out of range: the case has steps 0 to {}", steps - 1));
     }
     let case = Case::new(dataset.clone()).with_selection(Selection { times: Some(vec![step]), ..Selection::default() });
-    let label = dataset.variable("t").and_then(|v| v.times.as_ref()).map(|t| t.labels()[step].clone()).unwrap_or_default();
+    let label = dataset.variable("temperature").and_then(|v| v.times.as_ref()).map(|t| t.labels()[step].clone()).unwrap_or_default();
     for (bottom, top) in [(100000.0, 50000.0), (85000.0, 30000.0)] {
         let layer = Layer::new(bottom, top).0;
         let rows = baroc::demo::summarise(&case, layer).map_err(|e| format!("error: {e}"))?;

@@ -92,7 +92,7 @@ pub fn build(outcome: &RunOutcome, request: &RunRequest, extra_figures: Vec<(cra
         match &r.value {
             Value::Series(s) => report = report.table(crate::display::series_table(s)),
             Value::Scalar(_) | Value::Vector(_) | Value::Figure(_) => {
-                let bundle = crate::display::bundle(&r.value);
+                let bundle = crate::display::bundle_from(&r.value, outcome.dataset.as_deref());
                 if bundle.binary("image/png").is_some() || bundle.text("image/svg+xml").is_some() {
                     report = report.figure(bundle, caption);
                 } else {
@@ -106,4 +106,44 @@ pub fn build(outcome: &RunOutcome, request: &RunRequest, extra_figures: Vec<(cra
         report = report.figure(bundle, caption);
     }
     report.heading("Recipe").recipe(request.source.clone()).heading("Provenance").provenance(provenance(outcome, request))
+}
+
+/// Writes a report of a session's recipe outputs (title, parameters,
+/// outputs, the definitions as recipe text, provenance of the open data).
+pub fn write_session_report(evaluator: &crate::lang::eval::Evaluator, path: &Path) -> Result<std::path::PathBuf, String> {
+    if evaluator.outputs.is_empty() {
+        return Err("no outputs to report: declare some with `output name = ...`".into());
+    }
+    let source: String = evaluator.definitions.iter().map(|(_, s)| format!("{}\n", s.trim())).collect();
+    let dataset = evaluator.current_dataset().cloned();
+    let request = RunRequest {
+        source,
+        origin: "a notebook session".into(),
+        data_files: dataset.as_ref().map(|d| d.labels().into_iter().map(std::path::PathBuf::from).collect()).unwrap_or_default(),
+        overrides: Vec::new(),
+        each_time: false,
+        time_steps: None,
+        progress: false,
+        recipe_folders: evaluator.recipe_folders.clone(),
+    };
+    let outcome = RunOutcome {
+        results: evaluator.outputs.iter().map(|(n, v)| crate::runner::NamedResult { name: n.clone(), value: v.clone() }).collect(),
+        header: evaluator.recipe.clone(),
+        dataset,
+    };
+    build(&outcome, &request, Vec::new()).write(path).map_err(|e| e.to_string())?;
+    Ok(path.to_path_buf())
+}
+
+/// Carries out the requests among a program's shown values: each
+/// `write_report` is written now and becomes the line saying where. Front
+/// ends (session, runner) call this after a program runs.
+pub fn carry_out<'a>(evaluator: &crate::lang::eval::Evaluator, values: impl IntoIterator<Item = &'a mut Value>) -> Result<(), crate::lang::Diagnostic> {
+    for value in values {
+        if let Value::Report(request) = value {
+            let path = write_session_report(evaluator, &request.path).map_err(|e| crate::lang::Diagnostic::error(e, request.span))?;
+            *value = Value::Text(format!("wrote the report to {}", path.display()));
+        }
+    }
+    Ok(())
 }

@@ -70,6 +70,7 @@ fn parse_override(evaluator: &mut Evaluator, name: &str, text: &str) -> Result<V
 
 fn evaluator_for(request: &RunRequest, dataset: Option<&Arc<Dataset>>) -> Result<Evaluator, RunError> {
     let mut evaluator = Evaluator::new();
+    evaluator.describe = crate::display::plain;
     evaluator.recipe_folders = request.recipe_folders.clone();
     evaluator.base_directory = std::env::current_dir().unwrap_or_else(|_| PathBuf::from("."));
     if let Some(d) = dataset {
@@ -120,7 +121,8 @@ pub fn run(request: &RunRequest) -> Result<RunOutcome, RunError> {
     if !request.each_time || steps <= 1 {
         let mut evaluator = evaluator_for(request, dataset.as_ref())?;
         lang::check_program(&program, &request.source, &evaluator).map_err(|d| rendered(&d, &request.source))?;
-        let shown = evaluator.run(&program, &request.source).map_err(|d| rendered(&[d], &request.source))?;
+        let mut shown = evaluator.run(&program, &request.source).map_err(|d| rendered(&[d], &request.source))?;
+        crate::report::carry_out(&evaluator, shown.iter_mut().map(|(_, v)| v)).map_err(|d| rendered(&[d], &request.source))?;
         let results = collect(&evaluator, shown);
         return Ok(RunOutcome { results, header: evaluator.recipe.clone(), dataset });
     }
@@ -298,7 +300,7 @@ pub fn tabulate(outcome: &RunOutcome, points: &[(f64, f64)], regions: &[crate::p
                 for (label, v) in labels(f).into_iter().zip(values) {
                     rows.push(TableRow {
                         result: name.clone(),
-                        place: format!("{} {}", crate::lang::eval::format_latitude(lat), crate::lang::eval::format_longitude(lon)),
+                        place: format!("{} {}", crate::text::format_latitude(lat), crate::text::format_longitude(lon)),
                         label,
                         columns: vec![format!("value ({})", f.units)],
                         values: vec![v as f64],

@@ -87,6 +87,7 @@ impl Session {
     /// folder.
     pub fn new() -> Self {
         let mut evaluator = Evaluator::new();
+        evaluator.describe = crate::display::plain;
         let cwd = std::env::current_dir().unwrap_or_else(|_| PathBuf::from("."));
         evaluator.recipe_folders = lang::recipe::default_folders(Some(&cwd.join("recipes")));
         evaluator.base_directory = cwd;
@@ -141,7 +142,7 @@ impl Session {
         lang::eval::take_side_outputs();
         let mut values = Vec::new();
         let outcome = std::panic::catch_unwind(std::panic::AssertUnwindSafe(|| {
-            self.evaluator.run_each(&program, code, &mut |event| {
+            self.evaluator.run_each(&program, code, &mut |evaluator, event| {
                 for side in lang::eval::take_side_outputs() {
                     on_event(match side {
                         lang::eval::SideOutput::Printed(text) => CellEvent::Printed(text),
@@ -156,12 +157,19 @@ impl Session {
                     // `print(...)` and `clear_output()` evaluate to empty
                     // text: what they did was sent above, not as a value.
                     StatementEvent::Finished { value: Some(Value::Text(t)), .. } if t.is_empty() => {}
-                    StatementEvent::Finished { index, total, value: Some(value), .. } => {
-                        on_event(CellEvent::Shown { bundle: crate::display::bundle(&value), last: index + 1 == total });
+                    // The language returns requests; carrying them out
+                    // (writing reports, drawing figures) is the front end's
+                    // part. A figure that cannot be drawn fails the cell like
+                    // any other error.
+                    StatementEvent::Finished { index, total, value: Some(mut value), .. } => {
+                        crate::report::carry_out(evaluator, std::iter::once(&mut value))?;
+                        let bundle = crate::display::present(&value, evaluator.current_dataset().map(|d| &**d))?;
+                        on_event(CellEvent::Shown { bundle, last: index + 1 == total });
                         values.push(value);
                     }
                     StatementEvent::Finished { .. } => {}
                 }
+                Ok(())
             })
         }));
         self.evaluator.set_interrupt(None);

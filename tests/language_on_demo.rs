@@ -208,3 +208,39 @@ fn each_time_step_run_in_parallel_equals_one_run() {
     }
     assert_eq!(whole.results.len(), 2);
 }
+
+#[test]
+fn pictures_and_reports_are_requests_the_session_carries_out() {
+    // The language returns what to draw; the session draws it (with the
+    // demo's coastline from its land-sea mask) and writes reports.
+    let mut s = session();
+    match value(&mut s, "map(temperature at 500 hPa) with width 500") {
+        Value::Figure(request) => {
+            assert_eq!(request.operator, "map");
+            assert_eq!(request.options.len(), 1);
+            assert_eq!(request.options[0].name, "width");
+        }
+        other => panic!("expected a figure request, found {}", other.kind()),
+    }
+    let out = s.run("map(temperature at 500 hPa) with width 500", None).unwrap();
+    let picture = out.result.expect("a picture");
+    assert!(picture.binary("image/png").is_some());
+    assert!(picture.plain_text().contains("coastline from the land-sea mask"), "{}", picture.plain_text());
+    // Options are read on the drawing side, and a wrong one still fails
+    // the cell with a caret under the option.
+    let err = s.run("map(temperature at 500 hPa) with colour 3", None).unwrap_err();
+    assert!(err.message.contains("`map` has no option `colour`"), "{}", err.rendered);
+    assert!(err.rendered.contains("its options are `width`, `height` and `dpi`"), "{}", err.rendered);
+    let err = s.run("panels(map(temperature at 500 hPa)) with columns \"two\"", None).unwrap_err();
+    assert!(err.message.contains("`columns` takes a whole number"), "{}", err.rendered);
+    // A report with no outputs is refused where it is asked for.
+    let err = s.run("write_report(\"empty.html\")", None).unwrap_err();
+    assert!(err.message.contains("no outputs to report"), "{}", err.rendered);
+    s.run("output lower_thickness = thickness(1000 hPa to 500 hPa)", None).unwrap();
+    let path = directory().join("requested-report.html");
+    let _ = std::fs::remove_file(&path);
+    let out = s.run("write_report(\"requested-report.html\")", None).unwrap();
+    assert!(out.result.expect("a line").plain_text().starts_with("wrote the report to"));
+    let html = std::fs::read_to_string(&path).expect("the report was written");
+    assert!(html.contains("lower_thickness") && html.contains("not a warning service"));
+}

@@ -87,9 +87,9 @@ fn maps_hodograph_profile_and_section_match_their_references() {
     let size = FigureSize::new(800, 560);
     let thickness = case.thickness(layer, ThicknessRoute::Temperature).unwrap();
     let thermal = case.thermal_wind(layer, ThicknessRoute::Temperature).unwrap();
-    let map = baroc::figures::field_map_with(&thickness, Some(&thermal), &size).unwrap();
+    let map = baroc::figures::field_map_on(&thickness, Some(&thermal), &size, Some(&case.dataset)).unwrap();
     compare("thickness-and-thermal-wind", map.binary("image/png").unwrap());
-    let winds = baroc::figures::vector_map_with(&case.geostrophic_wind(50000.0).unwrap(), &size).unwrap();
+    let winds = baroc::figures::vector_map_on(&case.geostrophic_wind(50000.0).unwrap(), &size, Some(&case.dataset)).unwrap();
     compare("geostrophic-wind-500", winds.binary("image/png").unwrap());
     let hodograph = baroc::figures::hodograph(&case, 51.5, -31.0, &FigureSize::new(560, 560)).unwrap();
     compare("hodograph-port-tallowmere", hodograph.binary("image/png").unwrap());

@@ -694,3 +694,10 @@ mod tests {
         );
     }
 }
+
+/// The operators that present rather than compute (pictures, tables,
+/// printing, the recipe library, reports). They are not in the checker's
+/// table of operators (`BUILTINS`): they accept values of many kinds and
+/// check them when they run; pictures and reports become requests that the
+/// drawing side and the front ends carry out.
+pub const PRESENTATION: &[&str] = &["recipes", "save_recipe", "map", "hodograph", "profile", "section", "time_series", "panels", "write_report", "print", "clear_output"];

@@ -5,15 +5,16 @@
 use std::sync::Arc;
 
 use super::diagnostic::{list_words, Diagnostic};
-use super::eval::{engine_error, format_latitude, format_longitude, geopotential_kind, thickness_route, Evaluator};
+use super::eval::{engine_error, geopotential_kind, thickness_route, Evaluator};
 use super::syntax::Span;
-use super::value::{AngleAxis, Series, Value};
+use super::value::{AngleAxis, FigureContent, FigureOption, FigureRequest, ReportRequest, Series, Value};
 use crate::calendar::DateTime;
 use crate::diagnostics::{self as engine, DiagnosticError, Layer};
 use crate::grid::{Field, VectorField};
 use crate::io::Selection;
 use crate::physics::sampling::Region;
 use crate::units::{Dimension, Unit};
+use crate::text::{format_latitude, format_longitude};
 
 type Result<T> = std::result::Result<T, Diagnostic>;
 
@@ -62,15 +63,7 @@ pub const NAMES: &[&str] = &[
     "clear_output",
 ];
 
-/// The operators that present rather than compute (pictures, tables,
-/// printing, the recipe library, reports). They are not in the checker's
-/// table of operators (`builtins::BUILTINS`): they accept values of many
-/// kinds and check them when they run.
-pub const PRESENTATION: &[&str] = &["recipes", "save_recipe", "map", "hodograph", "profile", "section", "time_series", "panels", "write_report", "print", "clear_output"];
-
-/// Options every picture takes: its size in CSS pixels and the PNG's
-/// resolution.
-const PICTURE_OPTIONS: &[&str] = &["width", "height", "dpi"];
+pub use super::builtins::PRESENTATION;
 
 fn error(message: impl Into<String>, span: Span) -> Diagnostic {
     Diagnostic::error(message, span)
@@ -149,30 +142,6 @@ impl Options {
             Value::Word(w) | Value::Text(w) => Some((w.as_str(), *s)),
             _ => None,
         })
-    }
-
-    /// The figure size from `with width N, height N, dpi N` (CSS pixels and
-    /// dots per inch), each falling back to the default given.
-    fn figure_size(&self, default: crate::render::FigureSize) -> Result<crate::render::FigureSize> {
-        let mut size = default;
-        for (name, _, v, span) in &self.values {
-            let number = match v {
-                Value::Number { value, unit } if unit.is_dimensionless() && *value > 0.0 => *value,
-                other => {
-                    if PICTURE_OPTIONS.contains(&name.as_str()) {
-                        return Err(error(format!("`{name}` takes a plain positive number, found {}", other.kind()), *span));
-                    }
-                    continue;
-                }
-            };
-            match name.as_str() {
-                "width" => size.width = number.round() as u32,
-                "height" => size.height = number.round() as u32,
-                "dpi" => size.dpi = number,
-                _ => {}
-            }
-        }
-        Ok(size)
     }
 
     fn equator_band(&self) -> Result<Option<f64>> {
@@ -367,7 +336,7 @@ pub fn call_builtin(
                 Ok(Value::scalar(w.speed()))
             } else {
                 let mut data = w.eastward.data.clone();
-                ndarray::Zip::from(&mut data).and(&w.northward.data).par_for_each(|u, &v| *u = crate::demo::direction_from(*u as f64, v as f64) as f32);
+                ndarray::Zip::from(&mut data).and(&w.northward.data).par_for_each(|u, &v| *u = crate::physics::wind::direction_from(*u as f64, v as f64) as f32);
                 let mut f = w.eastward.derived("direction", "degree", data).map_err(|e| error(e, span))?;
                 f.long_name = format!("direction (from) of {}", w.eastward.long_name.replace("eastward ", ""));
                 Ok(Value::scalar(f))
@@ -458,101 +427,28 @@ pub fn call_builtin(
             args.count(0, "")?;
             Ok(Value::Text(super::recipe::library_listing(&evaluator.recipe_folders)))
         }
-        "map" => {
-            options.allow(name, PICTURE_OPTIONS)?;
-            let size = options.figure_size(crate::render::FigureSize::default())?;
-            if args.values.is_empty() || args.values.len() > 2 {
-                return Err(error("`map` takes a field to shade and, optionally, a vector field to draw on it", span).with_help("map(thickness(1000 hPa to 500 hPa), thermal_wind(1000 hPa to 500 hPa))"));
-            }
-            let figure = match ev.force_with(args.get(0).0.clone(), sel, args.get(0).1)? {
-                Value::Scalar(f) => {
-                    let w = match args.values.get(1) {
-                        Some((v, s)) => Some(vector(ev, v, *s, sel, name)?),
-                        None => None,
-                    };
-                    crate::figures::field_map_with(&f, w.as_deref(), &size)
-                }
-                Value::Vector(w) => crate::figures::vector_map_with(&w, &size),
-                other => return Err(wrong(name, &other, args.get(0).1, "a scalar or vector field")),
-            };
-            figure.map(Value::Figure).map_err(|e| error(e.to_string(), span))
-        }
-        "hodograph" => {
-            options.allow(name, PICTURE_OPTIONS)?;
-            let size = options.figure_size(crate::render::FigureSize::new(640, 640))?;
-            args.count(1, "point(51.5 north, 31 west)")?;
-            let (lat, lon) = point(&args, 0)?;
-            let case = case_of(ev, None)?;
-            crate::figures::hodograph(&case, lat, lon, &size).map(Value::Figure).map_err(|e| error(e.to_string(), span))
-        }
-        "profile" => {
-            options.allow(name, PICTURE_OPTIONS)?;
-            let size = options.figure_size(crate::render::FigureSize::new(520, 640))?;
-            if args.values.len() < 2 {
-                return Err(error("`profile` takes one or more fields with levels, then a point", span).with_help("profile(temperature, point(51.5 north, 31 west))"));
-            }
-            let last = args.values.len() - 1;
-            let (lat, lon) = point(&args, last)?;
-            let mut fields = Vec::new();
-            for (v, s) in &args.values[..last] {
-                fields.push(scalar(ev, v, *s, &Selection { times: Some(vec![selection.times.as_ref().and_then(|t| t.first().copied()).unwrap_or(0)]), ..selection.clone() }, name)?);
-            }
-            let refs: Vec<&Field> = fields.iter().map(|f| &**f).collect();
-            crate::figures::profile(&refs, lat, lon, &size).map(Value::Figure).map_err(|e| error(e.to_string(), span))
-        }
-        "section" => {
-            options.allow(name, PICTURE_OPTIONS)?;
-            let size = options.figure_size(crate::render::FigureSize::new(900, 520))?;
-            if args.values.len() != 3 && args.values.len() != 4 {
-                return Err(error("`section` takes a field with levels, optionally a wind, and two points", span).with_help("section(temperature, wind, point(40 north, 40 west), point(62 north, 20 west))"));
-            }
-            let first_time = Selection { times: Some(vec![selection.times.as_ref().and_then(|t| t.first().copied()).unwrap_or(0)]), ..selection.clone() };
-            let f = scalar(ev, &args.get(0).0, args.get(0).1, &first_time, name)?;
-            let n = args.values.len();
-            let w = if n == 4 { Some(vector(ev, &args.get(1).0, args.get(1).1, &first_time, name)?) } else { None };
-            let (a, b) = (point(&args, n - 2)?, point(&args, n - 1)?);
-            crate::figures::section(&f, w.as_deref(), a, b, &size).map(Value::Figure).map_err(|e| error(e.to_string(), span))
-        }
-        "time_series" => {
-            options.allow(name, PICTURE_OPTIONS)?;
-            let size = options.figure_size(crate::render::FigureSize::new(800, 420))?;
-            args.count(1, "thickness(1000 hPa to 500 hPa) at point(51.5 north, 31 west)")?;
-            match &args.get(0).0 {
-                Value::Series(s) => crate::figures::time_series(s, &size).map(Value::Figure).map_err(|e| error(e.to_string(), span)),
-                other => Err(wrong(name, other, args.get(0).1, "a table over time, such as a field at a point or an area_mean")),
-            }
-        }
-        "panels" => {
-            options.allow(name, &["columns"])?;
-            let columns = match options.values.iter().find(|o| o.0 == "columns") {
-                Some((_, _, Value::Number { value, .. }, _)) if *value >= 1.0 => *value as usize,
-                Some((_, s, other, _)) => return Err(error(format!("`columns` takes a whole number of at least 1, found {}", other.kind()), *s)),
-                None => 2,
-            };
-            let mut figures = Vec::new();
-            for (v, s) in &args.values {
-                match v {
-                    Value::Figure(b) => figures.push(b.clone()),
-                    other => return Err(wrong(name, other, *s, "a figure such as map(...) or hodograph(...)")),
-                }
-            }
-            crate::figures::panels(&figures, columns, "panels").map(Value::Figure).map_err(|e| error(e.to_string(), span))
+        "map" | "hodograph" | "profile" | "section" | "time_series" | "panels" => {
+            let content = figure_content(evaluator, name, &args, &selection, span)?;
+            let options = options.values.into_iter().map(|(name, name_span, value, value_span)| FigureOption { name, name_span, value, value_span }).collect();
+            Ok(Value::Figure(FigureRequest { operator: name.to_string(), content, options, span, dataset: evaluator.current_dataset().cloned() }))
         }
         "write_report" => {
             options.allow(name, &[])?;
             args.count(1, "\"case-study.html\"")?;
-            let file = match &args.get(0).0 {
+            let path = match &args.get(0).0 {
                 Value::Text(t) => evaluator.base_directory.join(t),
                 other => return Err(wrong(name, other, args.get(0).1, "a file name such as \"case-study.html\"")),
             };
-            let path = super::recipe::write_session_report(evaluator, &file).map_err(|e| error(e, args.get(0).1))?;
-            Ok(Value::Text(format!("wrote the report to {}", path.display())))
+            if evaluator.outputs.is_empty() {
+                return Err(error("no outputs to report: declare some with `output name = ...`", args.get(0).1));
+            }
+            Ok(Value::Report(ReportRequest { path, span: args.get(0).1 }))
         }
         "print" => {
             options.allow(name, &[])?;
             let mut parts = Vec::new();
             for (v, _) in &args.values {
-                parts.push(crate::display::plain(v));
+                parts.push((evaluator.describe)(v));
             }
             super::eval::print_line(&parts.join(" "));
             Ok(Value::Text(String::new()))
@@ -590,6 +486,80 @@ pub fn call_builtin(
                 d = d.with_help(format!("did you mean `{s}`?"));
             }
             Err(d)
+        }
+    }
+}
+
+/// The evaluated inputs of a presentation operator: its arguments read
+/// and checked (the options are left to the drawing side).
+fn figure_content(evaluator: &Evaluator, name: &str, args: &Args, selection: &Selection, span: Span) -> Result<FigureContent> {
+    let ev = evaluator;
+    let sel = selection;
+    let first_time = || Selection { times: Some(vec![selection.times.as_ref().and_then(|t| t.first().copied()).unwrap_or(0)]), ..selection.clone() };
+    match name {
+        "map" => {
+            if args.values.is_empty() || args.values.len() > 2 {
+                return Err(error("`map` takes a field to shade and, optionally, a vector field to draw on it", span).with_help("map(thickness(1000 hPa to 500 hPa), thermal_wind(1000 hPa to 500 hPa))"));
+            }
+            match ev.force_with(args.get(0).0.clone(), sel, args.get(0).1)? {
+                Value::Scalar(field) => {
+                    let vectors = match args.values.get(1) {
+                        Some((v, s)) => Some(vector(ev, v, *s, sel, name)?),
+                        None => None,
+                    };
+                    Ok(FigureContent::FieldMap { field, vectors })
+                }
+                Value::Vector(vectors) => Ok(FigureContent::VectorMap { vectors }),
+                other => Err(wrong(name, &other, args.get(0).1, "a scalar or vector field")),
+            }
+        }
+        "hodograph" => {
+            args.count(1, "point(51.5 north, 31 west)")?;
+            let (latitude, longitude) = point(args, 0)?;
+            let case = ev.case_with(selection, span, None)?;
+            Ok(FigureContent::Hodograph { case: Arc::new(case), latitude, longitude })
+        }
+        "profile" => {
+            if args.values.len() < 2 {
+                return Err(error("`profile` takes one or more fields with levels, then a point", span).with_help("profile(temperature, point(51.5 north, 31 west))"));
+            }
+            let last = args.values.len() - 1;
+            let (latitude, longitude) = point(args, last)?;
+            let mut fields = Vec::new();
+            for (v, s) in &args.values[..last] {
+                fields.push(scalar(ev, v, *s, &first_time(), name)?);
+            }
+            Ok(FigureContent::Profile { fields, latitude, longitude })
+        }
+        "section" => {
+            if args.values.len() != 3 && args.values.len() != 4 {
+                return Err(error("`section` takes a field with levels, optionally a wind, and two points", span).with_help("section(temperature, wind, point(40 north, 40 west), point(62 north, 20 west))"));
+            }
+            let field = scalar(ev, &args.get(0).0, args.get(0).1, &first_time(), name)?;
+            let n = args.values.len();
+            let wind = if n == 4 { Some(vector(ev, &args.get(1).0, args.get(1).1, &first_time(), name)?) } else { None };
+            let (from, to) = (point(args, n - 2)?, point(args, n - 1)?);
+            Ok(FigureContent::Section { field, wind, from, to })
+        }
+        "time_series" => {
+            args.count(1, "thickness(1000 hPa to 500 hPa) at point(51.5 north, 31 west)")?;
+            match &args.get(0).0 {
+                Value::Series(series) => Ok(FigureContent::TimeSeries { series: series.clone() }),
+                other => Err(wrong(name, other, args.get(0).1, "a table over time, such as a field at a point or an area_mean")),
+            }
+        }
+        _ => {
+            let mut figures = Vec::new();
+            for (v, s) in &args.values {
+                match v {
+                    Value::Figure(request) => figures.push(request.clone()),
+                    other => return Err(wrong(name, other, *s, "a figure such as map(...) or hodograph(...)")),
+                }
+            }
+            if figures.is_empty() {
+                return Err(error("`panels` needs at least one figure", span).with_help("panels(map(thickness(1000 hPa to 500 hPa)), hodograph(point(51.5 north, 31 west)))"));
+            }
+            Ok(FigureContent::Panels { figures })
         }
     }
 }

@@ -28,6 +28,7 @@ use crate::io::{Dataset, Role, Selection};
 use crate::physics::geostrophic::{GeopotentialKind, DEFAULT_EQUATOR_BAND};
 use crate::physics::sampling::Region;
 use crate::units::{Dimension, Unit};
+use crate::text::{format_latitude, format_longitude};
 
 /// How deep user functions may call each other.
 pub const MAX_CALL_DEPTH: usize = 64;
@@ -111,6 +112,10 @@ pub struct Evaluator {
     /// Source text of the top-level definitions made so far (bindings,
     /// functions, parameters, outputs), for saving them as a recipe.
     pub definitions: Vec<(String, String)>,
+    /// How `print` writes a value. The language's own short description by
+    /// default; front ends install their plain-text form (tables, field
+    /// summaries), so the language need not know how values are displayed.
+    pub describe: fn(&Value) -> String,
 }
 
 impl Default for Evaluator {
@@ -172,6 +177,7 @@ impl Evaluator {
             source: String::new(),
             check_scope: super::check::Scope::default(),
             definitions: Vec::new(),
+            describe: describe_value,
         }
     }
 
@@ -240,10 +246,11 @@ impl Evaluator {
     /// (what a notebook cell shows).
     pub fn run(&mut self, program: &Program, source: &str) -> Result<Vec<(Span, Value)>> {
         let mut shown = Vec::new();
-        self.run_each(program, source, &mut |event| {
+        self.run_each(program, source, &mut |_, event| {
             if let StatementEvent::Finished { span, value: Some(value), .. } = event {
                 shown.push((span, value));
             }
+            Ok(())
         })?;
         Ok(shown)
     }
@@ -251,17 +258,19 @@ impl Evaluator {
     /// Runs a whole program statement by statement, telling `on_event` when
     /// each statement starts and when it has finished (with its value, for
     /// an expression statement), so a front end can show each result as it
-    /// completes instead of all at the end. Stops at the first error, which
-    /// is returned; events already sent stand.
-    pub fn run_each(&mut self, program: &Program, source: &str, on_event: &mut dyn FnMut(StatementEvent)) -> Result<()> {
+    /// completes instead of all at the end. `on_event` sees the evaluator as
+    /// it stands after the statement (a front end carrying out a report
+    /// request needs it) and may stop the run with an error. Stops at the
+    /// first error, which is returned; events already sent stand.
+    pub fn run_each(&mut self, program: &Program, source: &str, on_event: &mut dyn FnMut(&Evaluator, StatementEvent) -> Result<()>) -> Result<()> {
         self.source = source.to_string();
         let total = program.statements.len();
         for (index, statement) in program.statements.iter().enumerate() {
-            on_event(StatementEvent::Started { index, total, span: statement.span });
+            on_event(self, StatementEvent::Started { index, total, span: statement.span })?;
             let context = Context { selection: self.base_selection.clone() };
             let value = self.statement(statement, &context)?;
             self.remember_definition(statement);
-            on_event(StatementEvent::Finished { index, total, span: statement.span, value });
+            on_event(self, StatementEvent::Finished { index, total, span: statement.span, value })?;
         }
         Ok(())
     }
@@ -1077,7 +1086,7 @@ impl Evaluator {
                     labels: row_labels(&w.eastward),
                     rows: u.iter().zip(&v).map(|(&a, &b)| {
                         let (a, b) = (a as f64, b as f64);
-                        vec![a, b, a.hypot(b), crate::demo::direction_from(a, b)]
+                        vec![a, b, a.hypot(b), crate::physics::wind::direction_from(a, b)]
                     }).collect(),
                 }))
             }
@@ -1250,15 +1259,6 @@ pub enum StatementEvent {
 }
 
 
-pub(crate) fn format_latitude(lat: f64) -> String {
-    format!("{:.2}°{}", lat.abs(), if lat >= 0.0 { "N" } else { "S" })
-}
-
-pub(crate) fn format_longitude(lon: f64) -> String {
-    let lon = ((lon + 180.0).rem_euclid(360.0)) - 180.0;
-    format!("{:.2}°{}", lon.abs(), if lon >= 0.0 { "E" } else { "W" })
-}
-
 pub(crate) fn describe_value(v: &Value) -> String {
     match v {
         Value::Number { value, unit } => format!("{} {unit}", trim(*value)),
@@ -1313,7 +1313,7 @@ fn as_scalar_like(v: &Value, other: &Value, span: Span) -> Result<Field> {
 
 fn direction_field(w: &VectorField) -> Result<Field> {
     let mut data = w.eastward.data.clone();
-    Zip::from(&mut data).and(&w.northward.data).par_for_each(|u, &v| *u = crate::demo::direction_from(*u as f64, v as f64) as f32);
+    Zip::from(&mut data).and(&w.northward.data).par_for_each(|u, &v| *u = crate::physics::wind::direction_from(*u as f64, v as f64) as f32);
     let mut out = w.eastward.derived("direction", "degree", data).map_err(|e| error(e, Span::default()))?;
     out.long_name = format!("direction (from) of {}", w.eastward.long_name.replace("eastward ", ""));
     out.standard_name = None;

@@ -150,6 +150,7 @@ pub fn call_recipe(
     let mut sub = Evaluator::new();
     sub.constants = evaluator.constants;
     sub.recipe_folders = evaluator.recipe_folders.clone();
+    sub.describe = evaluator.describe;
     for (n, d) in evaluator.datasets() {
         sub.attach_dataset(n, d.clone());
     }
@@ -169,31 +170,4 @@ pub fn call_recipe(
         1 => Ok(outputs.remove(0).1),
         _ => Ok(Value::Record(Record { title: header.title.unwrap_or_else(|| name.to_string()), entries: outputs })),
     }
-}
-
-/// Writes a report of the session's recipe outputs (title, parameters,
-/// outputs, the definitions as recipe text, provenance of the open data).
-pub fn write_session_report(evaluator: &Evaluator, path: &Path) -> Result<PathBuf, String> {
-    if evaluator.outputs.is_empty() {
-        return Err("no outputs to report: declare some with `output name = ...`".into());
-    }
-    let source: String = evaluator.definitions.iter().map(|(_, s)| format!("{}\n", s.trim())).collect();
-    let dataset = evaluator.current_dataset().cloned();
-    let request = crate::runner::RunRequest {
-        source,
-        origin: "a notebook session".into(),
-        data_files: dataset.as_ref().map(|d| d.labels().into_iter().map(PathBuf::from).collect()).unwrap_or_default(),
-        overrides: Vec::new(),
-        each_time: false,
-        time_steps: None,
-        progress: false,
-        recipe_folders: evaluator.recipe_folders.clone(),
-    };
-    let outcome = crate::runner::RunOutcome {
-        results: evaluator.outputs.iter().map(|(n, v)| crate::runner::NamedResult { name: n.clone(), value: v.clone() }).collect(),
-        header: evaluator.recipe.clone(),
-        dataset,
-    };
-    crate::report::build(&outcome, &request, Vec::new()).write(path).map_err(|e| e.to_string())?;
-    Ok(path.to_path_buf())
 }

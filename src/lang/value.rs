@@ -6,11 +6,13 @@
 use std::sync::Arc;
 
 use crate::calendar::DateTime;
-use crate::diagnostics::Layer;
+use crate::diagnostics::{Case, Layer};
 use crate::grid::{Field, VectorField};
 use crate::io::Dataset;
 use crate::physics::sampling::Region;
 use crate::units::Unit;
+
+use super::syntax::Span;
 
 /// Whether an angle is a latitude, a longitude, or neither.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -51,6 +53,63 @@ pub struct Series {
     pub labels: Vec<String>,
     /// rows x columns; NaN for missing.
     pub rows: Vec<Vec<f64>>,
+}
+
+/// What a presentation operator asks to be drawn, with its inputs already
+/// evaluated (fields read, points and tables made). The language only
+/// gathers these; the drawing side (`figures`, `display`) interprets the
+/// options and draws, so the language knows nothing of pictures.
+#[derive(Clone)]
+pub enum FigureContent {
+    /// A map of a scalar field, optionally with vectors drawn on it.
+    FieldMap { field: Arc<Field>, vectors: Option<Arc<VectorField>> },
+    /// A map of a vector field (speed shaded, barbs or arrows).
+    VectorMap { vectors: Arc<VectorField> },
+    /// A hodograph of the case's balanced (and analysed) wind at a point.
+    Hodograph { case: Arc<Case>, latitude: f64, longitude: f64 },
+    /// Vertical profiles of fields with levels at a point.
+    Profile { fields: Vec<Arc<Field>>, latitude: f64, longitude: f64 },
+    /// A cross-section between two points (latitude, longitude), with the
+    /// wind normal to it when given.
+    Section { field: Arc<Field>, wind: Option<Arc<VectorField>>, from: (f64, f64), to: (f64, f64) },
+    /// A time series of a table's first column.
+    TimeSeries { series: Series },
+    /// Several figures side by side.
+    Panels { figures: Vec<FigureRequest> },
+}
+
+/// An option as written after `with`: its name and evaluated value, with
+/// their spans so that the drawing side can point at a bad one.
+#[derive(Clone)]
+pub struct FigureOption {
+    pub name: String,
+    pub name_span: Span,
+    pub value: Value,
+    pub value_span: Span,
+}
+
+/// A figure to draw: which operator asked, what, with which options.
+#[derive(Clone)]
+pub struct FigureRequest {
+    /// The operator's name (`map`, `hodograph`, ...), for messages.
+    pub operator: String,
+    pub content: FigureContent,
+    pub options: Vec<FigureOption>,
+    /// The call, for errors found while drawing.
+    pub span: Span,
+    /// The open dataset the figure's data came from, if any, for what the
+    /// drawing side takes from it beyond the fields.
+    pub dataset: Option<Arc<Dataset>>,
+}
+
+/// A report of the session's outputs to be written to `path`
+/// (`write_report`): the front end that runs the program carries it out,
+/// since it holds the session and knows how reports are made.
+#[derive(Clone)]
+pub struct ReportRequest {
+    pub path: std::path::PathBuf,
+    /// The file name argument, for errors found while writing.
+    pub span: Span,
 }
 
 /// A user-defined function.
@@ -95,8 +154,10 @@ pub enum Value {
     Dataset(Arc<Dataset>),
     /// A word given as an option value (`with route mean_temperature`).
     Word(String),
-    /// A picture (map, hodograph, profile, section, panels), as its bundle.
-    Figure(crate::mime::MimeBundle),
+    /// A picture (map, hodograph, profile, section, panels) to draw.
+    Figure(FigureRequest),
+    /// A report to write (`write_report`).
+    Report(ReportRequest),
 }
 
 impl Value {
@@ -127,6 +188,7 @@ impl Value {
             Value::Dataset(_) => "a dataset",
             Value::Word(_) => "a word",
             Value::Figure(_) => "a figure",
+            Value::Report(_) => "a report request",
         }
     }
 

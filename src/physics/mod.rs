@@ -15,3 +15,4 @@ pub mod stability;
 pub mod standard_atmosphere;
 pub mod thermal_wind;
 pub mod vertical;
+pub mod wind;

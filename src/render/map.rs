@@ -105,6 +105,27 @@ impl<'a> ContourLayer<'a> {
     }
 }
 
+/// The name a coastline layer carries (see `coastline_layer`): the map
+/// lists it as a coastline, not as a field's lines.
+pub const COASTLINE: &str = "coastline";
+
+/// Coastlines drawn from a land-sea mask on the map's grid (1 land, 0 sea,
+/// NaN unknown), shape [latitude, longitude]: the mask's 0.5 contour, a thin
+/// dark unlabelled line. Add it with `MapSpec::contour_lines` after the
+/// field's own lines; datasets with a land-sea mask get coastlines this way
+/// without any map data shipped.
+pub fn coastline_layer(mask: ArrayView2<'_, f32>) -> ContourLayer<'_> {
+    ContourLayer {
+        values: mask,
+        name: COASTLINE.into(),
+        units: String::new(),
+        levels: Levels::Explicit(vec![0.5]),
+        colour: Some((60, 60, 60)),
+        dash_negative: false,
+        labels: false,
+    }
+}
+
 /// How vectors are drawn.
 #[derive(Debug, Clone, Copy, PartialEq)]
 pub enum VectorStyle {
@@ -525,12 +546,16 @@ impl PreparedMap {
                 level_step(&levels)
             };
             let isolines = field.isolines(&levels)?;
-            described.push(format!(
-                "lines of {} every {} {}",
-                layer.name,
-                format_value(step, step),
-                layer.units
-            ));
+            if layer.name == COASTLINE {
+                described.push("coastline from the land-sea mask".into());
+            } else {
+                described.push(format!(
+                    "lines of {} every {} {}",
+                    layer.name,
+                    format_value(step, step),
+                    layer.units
+                ));
+            }
             let (r, g, b) = layer.colour.unwrap_or(LINE_COLOURS[i % LINE_COLOURS.len()]);
             lines.push(PreparedLines {
                 name: layer.name.clone(),
@@ -600,7 +625,7 @@ impl PreparedMap {
         if let Some(s) = &shading {
             subtitle_parts.push(format!("shaded: {}", s.label));
         }
-        for l in &lines {
+        for l in lines.iter().filter(|l| l.name != COASTLINE) {
             subtitle_parts.push(
                 format!(
                     "lines: {} every {} {}",

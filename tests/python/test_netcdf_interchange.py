@@ -35,12 +35,12 @@ def test_thermal_wind_output_reads_back_in_xarray(baroc, demo_case, tmp_path):
 
 
 def test_thickness_and_thermal_wind_match_an_independent_numpy_computation(baroc, demo_case, tmp_path):
-    # Reference: read the demo with xarray (which unpacks and masks by CF
-    # rules on its own), integrate Tv = T (1 + 0.608 q) in ln p by the
+    # Reference: read the demo with xarray (which masks by CF rules on its
+    # own), integrate Tv = T (1 + 0.608 q) in ln p by the
     # trapezoid rule, and take the thermal wind with numpy.gradient.
     ds = xr.open_dataset(demo_case)
-    t = ds["t"].sel(level=[1000.0, 925.0, 850.0, 700.0, 600.0, 500.0]).values.astype("f8")
-    q = ds["q"].sel(level=[1000.0, 925.0, 850.0, 700.0, 600.0, 500.0]).values.astype("f8")
+    t = ds["temperature"].sel(pressure=[1000.0, 925.0, 850.0, 700.0, 600.0, 500.0]).values.astype("f8")
+    q = ds["specific_humidity"].sel(pressure=[1000.0, 925.0, 850.0, 700.0, 600.0, 500.0]).values.astype("f8")
     p = np.array([1000.0, 925.0, 850.0, 700.0, 600.0, 500.0]) * 100.0
     tv = t * (1.0 + 0.608 * q)
     lnp = np.log(p)
@@ -62,16 +62,110 @@ def test_thickness_and_thermal_wind_match_an_independent_numpy_computation(baroc
     np.testing.assert_allclose(got["vt_northward"].values, G0 / f * ddx, rtol=0, atol=0.02)
 
 
-def test_demo_file_is_cf_as_real_sources_write_it(demo_case):
+def test_demo_file_is_plain_cf(demo_case):
+    # CF conventions 1.8: every coordinate labelled with standard_name and
+    # axis (sections 4.1-4.4), udunits unit strings, a land-sea mask with the
+    # CF standard name land_binary_mask (1 on land, 0 at sea).
     with netCDF4.Dataset(demo_case) as ds:
-        z = ds["z"]
-        assert z.dtype == np.int16 and hasattr(z, "scale_factor") and z._FillValue == -32767
-        assert ds["level"].units == "millibar" and list(ds["level"][:3]) == [1000.0, 925.0, 850.0]
-        assert ds["latitude"][0] > ds["latitude"][-1]  # north to south
-        q = ds["q"][:]
+        for name, standard, axis in [("time", "time", "T"), ("pressure", "air_pressure", "Z"), ("latitude", "latitude", "Y"), ("longitude", "longitude", "X")]:
+            assert ds[name].standard_name == standard and ds[name].axis == axis, name
+        assert ds["pressure"].units == "hPa" and ds["pressure"].positive == "down"
+        assert list(ds["pressure"][:3]) == [1000.0, 925.0, 850.0]
+        assert ds["eastward_wind"].units == "m s-1" and ds["geopotential"].units == "m2 s-2"
+        assert ds["specific_humidity"].units == "kg kg-1"
+        for name in ["temperature", "eastward_wind", "northward_wind", "geopotential", "specific_humidity", "surface_pressure", "land_sea_mask"]:
+            assert "**" not in ds[name].units and len(name) > 2, name
+        q = ds["specific_humidity"][:]
         assert np.ma.is_masked(q) and q[:, -1].mask.all()  # not reported at 200 hPa
+        assert ds["time"].units == "hours since 2026-10-14 00:00:00"
         times = netCDF4.num2date(ds["time"][:], ds["time"].units, ds["time"].calendar)
         assert str(times[0]) == "2026-10-14 00:00:00" and str(times[-1]) == "2026-10-15 00:00:00"
+        mask = ds["land_sea_mask"]
+        assert mask.standard_name == "land_binary_mask" and mask.dimensions == ("latitude", "longitude")
+        values = mask[:]
+        assert set(np.unique(values)) == {0.0, 1.0}
+        # Some land and mostly sea: a basin with a coast, not a blank.
+        assert 0.05 < values.mean() < 0.5
+
+
+def _archive_layout_file(path):
+    """The layout of a widely distributed reanalysis archive's files: short
+    names (t, z, u, v, q, sp), Fortran-style unit strings (m s**-1,
+    m**2 s**-2), hours since 1900, coordinates without standard_name or
+    axis, levels in millibar, latitude north to south, geopotential packed
+    into shorts. Values are analytic so the reading can be checked."""
+    lat = np.linspace(60.0, 30.0, 13)  # north to south
+    lon = np.arange(-60.0, 0.1, 5.0)
+    levels = np.array([1000.0, 850.0, 700.0, 500.0, 300.0])
+    la, lo = np.meshgrid(lat, lon, indexing="ij")
+    shape = (2, len(levels), len(lat), len(lon))
+    temperature = np.empty(shape)
+    geopotential = np.empty(shape)
+    for k, p in enumerate(levels):
+        temperature[:, k] = 280.0 - 30.0 * np.log(1000.0 / p) - 0.4 * (la - 45.0)
+        geopotential[:, k] = G0 * (100.0 + 7000.0 * np.log(1000.0 / p) + 2.0 * lo)
+    with netCDF4.Dataset(path, "w", format="NETCDF3_64BIT_OFFSET") as ds:
+        ds.createDimension("time", None)
+        ds.createDimension("level", len(levels))
+        ds.createDimension("latitude", len(lat))
+        ds.createDimension("longitude", len(lon))
+        v = ds.createVariable("time", "i4", ("time",))
+        v.units = "hours since 1900-01-01 00:00:0.0"
+        v.calendar = "gregorian"
+        # 2026-10-14 00:00 and 06:00 as hours since 1900-01-01 (netCDF4.date2num).
+        v[:] = netCDF4.date2num([__import__("datetime").datetime(2026, 10, 14, 0), __import__("datetime").datetime(2026, 10, 14, 6)], v.units, v.calendar)
+        v = ds.createVariable("level", "i4", ("level",))
+        v.units = "millibar"
+        v.long_name = "pressure_level"
+        v[:] = levels.astype("i4")
+        v = ds.createVariable("latitude", "f4", ("latitude",))
+        v.units = "degrees_north"
+        v[:] = lat
+        v = ds.createVariable("longitude", "f4", ("longitude",))
+        v.units = "degrees_east"
+        v[:] = lon
+        dims = ("time", "level", "latitude", "longitude")
+        var = ds.createVariable("t", "f4", dims, fill_value=-32767.0)
+        var.units, var.long_name, var.standard_name = "K", "Temperature", "air_temperature"
+        var[:] = temperature
+        var = ds.createVariable("z", "i2", dims, fill_value=-32767)
+        var.scale_factor = 2.0
+        var.add_offset = 40000.0
+        var.units, var.long_name, var.standard_name = "m**2 s**-2", "Geopotential", "geopotential"
+        var.set_auto_maskandscale(True)
+        var[:] = geopotential
+        for name, standard in [("u", "eastward_wind"), ("v", "northward_wind")]:
+            var = ds.createVariable(name, "f4", dims)
+            var.units, var.standard_name = "m s**-1", standard
+            var[:] = np.full(shape, 10.0 if name == "u" else -5.0)
+        var = ds.createVariable("q", "f4", dims)
+        var.units, var.standard_name = "kg kg**-1", "specific_humidity"
+        var[:] = np.full(shape, 0.004)
+        var = ds.createVariable("sp", "f4", ("time", "latitude", "longitude"))
+        var.units, var.standard_name = "Pa", "surface_air_pressure"
+        var[:] = np.full((2, len(lat), len(lon)), 101000.0)
+    return temperature, geopotential
+
+
+def test_the_archive_layout_still_reads(baroc, tmp_path):
+    # The layout the demo file no longer uses (short names, ** unit
+    # strings, hours since 1900, unlabelled coordinates, packed
+    # geopotential) must still be read: values at a grid point against the
+    # analytic values written (packing step 2 m2 s-2), times decoded.
+    path = tmp_path / "archive-layout.nc"
+    temperature, geopotential = _archive_layout_file(path)
+    # 45 N is row 6 (60, 57.5, ..., 30), 20 W is column 8 (-60, -55, ...).
+    rows = table_json(baroc, "temperature at 500 hPa", "45 north, 20 west", path)
+    assert [r["label"][:16] for r in rows] == ["2026-10-14T00:00", "2026-10-14T06:00"]
+    assert abs(rows[0]["values"][0] - temperature[0, 3, 6, 8]) < 1e-3
+    rows = table_json(baroc, "geopotential at 700 hPa", "45 north, 20 west", path)
+    assert abs(rows[0]["values"][0] - geopotential[0, 2, 6, 8]) <= 1.0 + 1e-6
+    rows = table_json(baroc, "speed(wind at 850 hPa)", "45 north, 20 west", path)
+    assert abs(rows[0]["values"][0] - np.hypot(10.0, -5.0)) < 1e-4
+    # The ** spelling is understood as a unit: thickness (m) from the
+    # packed geopotential, 7000 ln(1000/500) m by construction.
+    rows = table_json(baroc, "thickness(1000 hPa to 500 hPa) with route geopotential", "45 north, 20 west", path)
+    assert abs(rows[0]["values"][0] - 7000.0 * np.log(2.0)) < 1.0
 
 
 def _layout_file(path, *, levels_hpa, level_units, level_factor, lat_south_first, lon_0_360, packed, fmt):
