@@ -24,3 +24,5 @@ pub mod units;
 pub mod render;
 pub mod report;
 pub mod runner;
+pub mod shard;
+pub mod merge;
