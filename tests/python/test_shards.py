@@ -13,43 +13,9 @@ import numpy as np
 import pytest
 
 from conftest import ROOT, run
+from netcdf_content import assert_same_content
 
 RECIPE = ROOT / "recipes" / "thermal-wind-budget.baroc"
-
-
-def is_provenance(name):
-    # What says where a file came from rather than what it holds.
-    return name == "history" or name.startswith("baroc_shard_") or name.startswith("baroc_merged_")
-
-
-def content(path):
-    """Everything a reader sees, except provenance: global attributes,
-    dimensions, and per variable its type, dimensions, attributes and raw
-    bytes (no masking or scaling, so fill values compare too)."""
-    with netCDF4.Dataset(path) as ds:
-        ds.set_auto_maskandscale(False)
-        out = {
-            "attributes": {k: ds.getncattr(k) for k in ds.ncattrs() if not is_provenance(k)},
-            "dimensions": {k: len(d) for k, d in ds.dimensions.items()},
-            "variables": {},
-        }
-        for name, v in ds.variables.items():
-            attributes = {}
-            for k in v.ncattrs():
-                value = v.getncattr(k)
-                attributes[k] = value.tobytes() if isinstance(value, np.ndarray) else value
-            out["variables"][name] = (str(v.dtype), v.dimensions, attributes, np.asarray(v[:]).tobytes())
-        return out
-
-
-def assert_same_content(a, b):
-    ca, cb = content(a), content(b)
-    assert ca["attributes"] == cb["attributes"]
-    assert ca["dimensions"] == cb["dimensions"]
-    assert list(ca["variables"]) == list(cb["variables"])
-    for name in ca["variables"]:
-        assert ca["variables"][name][:3] == cb["variables"][name][:3], name
-        assert ca["variables"][name][3] == cb["variables"][name][3], f"{name}: the bytes differ"
 
 
 @pytest.fixture(scope="module")
