@@ -26,3 +26,4 @@ pub mod report;
 pub mod runner;
 pub mod shard;
 pub mod merge;
+pub mod bounded;

@@ -69,6 +69,10 @@ enum Command {
         /// time steps; `slurm` takes it from the job array's SLURM_ARRAY_TASK_* variables.
         #[arg(long, value_name = "I/N|slurm")]
         shard: Option<String>,
+        /// Keep memory within this size (e.g. 4GiB) by running blocks of time steps one
+        /// after another and joining them in the output file.
+        #[arg(long, value_name = "SIZE")]
+        memory_limit: Option<String>,
     },
     /// Join the NetCDF files of a sharded run (`baroc run --shard`) along time into one.
     #[command(after_help = "Example:\n  for i in 1 2 3 4; do baroc run recipes/thermal-wind-budget.baroc --shard $i/4 -o part-$i.nc case.nc; done\n  baroc merge budget.nc part-*.nc")]
@@ -205,7 +209,7 @@ fn main() -> ExitCode {
     let result = match cli.command {
         Command::Demo { output, time_step } => demo(&output, time_step),
         Command::Inspect { files } => Dataset::open(&files).map(|d| out(&format!("{}\n", baroc::io::describe(&d)))).map_err(|e| format!("error: {e}")),
-        Command::Run { program, output, report, each_time, shard } => run(program, output, report, each_time, shard),
+        Command::Run { program, output, report, each_time, shard, memory_limit } => run(program, output, report, each_time, shard, memory_limit),
         Command::Merge { output, shards, accept_gaps_and_overlaps } => merge(output, shards, accept_gaps_and_overlaps),
         Command::Table { program, points, regions, format } => table(program, points, regions, format),
         Command::Kernel { connection_file, action } => kernel(connection_file, action),
@@ -248,7 +252,7 @@ fn request(program: ProgramArgs, each_time: bool) -> Result<RunRequest, String> 
     })
 }
 
-fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, each_time: bool, shard: Option<String>) -> Result<(), String> {
+fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, each_time: bool, shard: Option<String>, memory_limit: Option<String>) -> Result<(), String> {
     let mut request = request(program, each_time)?;
     let shard_plan = match &shard {
         Some(text) => {
@@ -260,6 +264,27 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
         }
         None => None,
     };
+    if let Some(limit) = &memory_limit {
+        let limit = baroc::bounded::parse_size(limit)?;
+        let Some(path) = &output else {
+            return Err("error: --memory-limit writes the results block by block to a file: add --output, for example -o results.nc".into());
+        };
+        if report.is_some() {
+            return Err("error: --report needs every result in memory at once; drop --memory-limit, or make the report from a run over fewer time steps".into());
+        }
+        let attributes = shard_plan.as_ref().map(|p| p.attributes()).unwrap_or_default();
+        let summary = baroc::bounded::run_to_file(&request, path, limit, attributes).map_err(|e| e.0)?;
+        out(&format!(
+            "wrote {} to {} ({} time steps in {} block{} of at most {})\n",
+            summary.names.join(", "),
+            path.display(),
+            summary.time_steps,
+            summary.blocks,
+            if summary.blocks == 1 { "" } else { "s" },
+            summary.steps_per_block
+        ));
+        return Ok(());
+    }
     let outcome = baroc::runner::run(&request).map_err(|e| e.0)?;
     if let Some(path) = &output {
         let attributes = shard_plan.as_ref().map(|p| p.attributes()).unwrap_or_default();
@@ -279,7 +304,7 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
 }
 
 fn merge(output: PathBuf, shards: Vec<PathBuf>, accept_gaps_and_overlaps: bool) -> Result<(), String> {
-    let request = baroc::merge::MergeRequest { output: output.clone(), shards, accept_partial_coverage: accept_gaps_and_overlaps };
+    let request = baroc::merge::MergeRequest { accept_partial_coverage: accept_gaps_and_overlaps, ..baroc::merge::MergeRequest::new(output.clone(), shards) };
     let summary = baroc::merge::merge(&request)?;
     out(&format!("merged {} shards ({} of {} time steps) into {}\n", summary.shards, summary.time_steps, summary.dataset_time_steps, output.display()));
     if !summary.missing_steps.is_empty() {

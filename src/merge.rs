@@ -36,6 +36,17 @@ pub struct MergeRequest {
     pub shards: Vec<PathBuf>,
     /// Accept gaps and overlaps in the shards' coverage of the time steps.
     pub accept_partial_coverage: bool,
+    /// Describe every shard in `baroc_merged_shards` and keep their
+    /// histories (false when the pieces are a bounded run's own blocks).
+    pub record_shards: bool,
+    /// Further global attributes for the merged file.
+    pub attributes: Vec<(String, String)>,
+}
+
+impl MergeRequest {
+    pub fn new(output: PathBuf, shards: Vec<PathBuf>) -> MergeRequest {
+        MergeRequest { output, shards, accept_partial_coverage: false, record_shards: true, attributes: Vec::new() }
+    }
 }
 
 /// What was merged.
@@ -212,7 +223,7 @@ fn compare(first: &ShardFile, other: &ShardFile) -> Result<(), String> {
                         format!("error: the grids differ: the `{}` coordinates of {b} are not those of {a}", va.name)
                     } else {
                         format!(
-                            "error: variable `{}` has no time dimension and differs between {b} and {a}: a result that combines time steps cannot be joined from shards; run it without --shard",
+                            "error: variable `{}` has no time dimension and differs between {b} and {a}: a result that combines time steps cannot be joined from blocks of time steps; run it whole (without --shard or --memory-limit)",
                             va.name
                         )
                     });
@@ -422,7 +433,12 @@ fn merge_on_netcdf_thread(request: &MergeRequest, temporary: &Path) -> Result<Me
             shard_history
         ));
     }
-    let mut provenance = vec![("history".to_string(), history), ("baroc_merged_shards".to_string(), described.join("\n"))];
+    let mut provenance = if request.record_shards {
+        vec![("history".to_string(), history), ("baroc_merged_shards".to_string(), described.join("\n"))]
+    } else {
+        vec![("history".to_string(), shards[0].globals.get("history").map(text).unwrap_or_default())]
+    };
+    provenance.extend(request.attributes.iter().cloned());
     let list = |steps: &[usize]| steps.iter().map(usize::to_string).collect::<Vec<_>>().join(" ");
     if !missing.is_empty() {
         provenance.push(("baroc_merged_missing_time_steps".into(), list(&missing)));

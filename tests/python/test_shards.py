@@ -194,3 +194,22 @@ def test_shard_errors_say_what_is_valid(baroc, demo_case, tmp_path):
     done = run(baroc, "run", RECIPE, "--shard", "1/4", demo_case, check=False)
     assert done.returncode != 0 and "add --output" in done.stderr
     assert not out.exists()
+
+
+def test_a_memory_limited_run_writes_what_one_whole_run_writes(baroc, shards, demo_case, tmp_path):
+    full, parts = shards
+    out = tmp_path / "bounded.nc"
+    # 1 MB is less than one of the demo's time steps: one step per block.
+    done = run(baroc, "run", RECIPE, "--memory-limit", "1MB", "-o", out, demo_case)
+    assert "5 time steps in 5 blocks of at most 1" in done.stdout
+    assert_same_content(full, out)
+    assert [p for p in os.listdir(tmp_path) if p.endswith(".partial")] == []
+    # Within a shard: the shard's own steps, in blocks, with its record.
+    out = tmp_path / "bounded-shard.nc"
+    done = run(baroc, "run", RECIPE, "--shard", "4/4", "--memory-limit", "1MB", "-o", out, demo_case)
+    assert "2 time steps in 2 blocks" in done.stdout
+    assert_same_content(parts[3], out)
+    with netCDF4.Dataset(out) as ds:
+        assert ds.getncattr("baroc_shard_index") == "4" and ds.getncattr("baroc_shard_first_time_step") == "3"
+    done = run(baroc, "run", RECIPE, "--memory-limit", "4 parsecs", "-o", out, demo_case, check=False)
+    assert done.returncode != 0 and "not a unit of size" in done.stderr
