@@ -25,3 +25,6 @@ pub mod render;
 pub mod report;
 pub mod runner;
 pub mod text;
+pub mod shard;
+pub mod merge;
+pub mod bounded;

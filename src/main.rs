@@ -65,6 +65,27 @@ enum Command {
         /// Evaluate each time step separately, in parallel, with a progress bar.
         #[arg(long)]
         each_time: bool,
+        /// Run one shard: I/N is the I-th (from 1) of N contiguous blocks of the data's
+        /// time steps; `slurm` takes it from the job array's SLURM_ARRAY_TASK_* variables.
+        #[arg(long, value_name = "I/N|slurm")]
+        shard: Option<String>,
+        /// Keep memory within this size (e.g. 4GiB) by running blocks of time steps one
+        /// after another and joining them in the output file.
+        #[arg(long, value_name = "SIZE")]
+        memory_limit: Option<String>,
+    },
+    /// Join the NetCDF files of a sharded run (`baroc run --shard`) along time into one.
+    #[command(after_help = "Example:\n  for i in 1 2 3 4; do baroc run recipes/thermal-wind-budget.baroc --shard $i/4 -o part-$i.nc case.nc; done\n  baroc merge budget.nc part-*.nc")]
+    Merge {
+        /// The merged file to write (atomically).
+        output: PathBuf,
+        /// The shard files, in any order.
+        #[arg(required = true)]
+        shards: Vec<PathBuf>,
+        /// Write the merged file even when shards leave time steps out (gaps) or cover a
+        /// step twice (overlaps: the copy of the shard that starts first is kept).
+        #[arg(long)]
+        accept_gaps_and_overlaps: bool,
     },
     /// Print named results at points or as area statistics.
     #[command(after_help = "Examples (on the demo case):\n  baroc table -e 'thickness(1000 hPa to 500 hPa)' --at '51.5 north, 31 west' baroc-demo/marrowind-wave-2026-10-14.nc\n  baroc table -e 'turning(1000 hPa to 500 hPa)' --region '45 north to 60 north, 40 west to 10 west' --format csv baroc-demo/marrowind-wave-2026-10-14.nc")]
@@ -188,7 +209,8 @@ fn main() -> ExitCode {
     let result = match cli.command {
         Command::Demo { output, time_step } => demo(&output, time_step),
         Command::Inspect { files } => Dataset::open(&files).map(|d| out(&format!("{}\n", baroc::io::describe(&d)))).map_err(|e| format!("error: {e}")),
-        Command::Run { program, output, report, each_time } => run(program, output, report, each_time),
+        Command::Run { program, output, report, each_time, shard, memory_limit } => run(program, output, report, each_time, shard, memory_limit),
+        Command::Merge { output, shards, accept_gaps_and_overlaps } => merge(output, shards, accept_gaps_and_overlaps),
         Command::Table { program, points, regions, format } => table(program, points, regions, format),
         Command::Kernel { connection_file, action } => kernel(connection_file, action),
     };
@@ -230,11 +252,43 @@ fn request(program: ProgramArgs, each_time: bool) -> Result<RunRequest, String> 
     })
 }
 
-fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, each_time: bool) -> Result<(), String> {
-    let request = request(program, each_time)?;
+fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, each_time: bool, shard: Option<String>, memory_limit: Option<String>) -> Result<(), String> {
+    let mut request = request(program, each_time)?;
+    let shard_plan = match &shard {
+        Some(text) => {
+            let shard = baroc::shard::Shard::parse(text, |name| std::env::var(name).ok())?;
+            if output.is_none() {
+                return Err(format!("error: --shard {text} writes its block of time steps to a file: add --output, for example -o part-{}.nc", shard.index + 1));
+            }
+            Some(baroc::shard::plan(&mut request, shard)?)
+        }
+        None => None,
+    };
+    if let Some(limit) = &memory_limit {
+        let limit = baroc::bounded::parse_size(limit)?;
+        let Some(path) = &output else {
+            return Err("error: --memory-limit writes the results block by block to a file: add --output, for example -o results.nc".into());
+        };
+        if report.is_some() {
+            return Err("error: --report needs every result in memory at once; drop --memory-limit, or make the report from a run over fewer time steps".into());
+        }
+        let attributes = shard_plan.as_ref().map(|p| p.attributes()).unwrap_or_default();
+        let summary = baroc::bounded::run_to_file(&request, path, limit, attributes).map_err(|e| e.0)?;
+        out(&format!(
+            "wrote {} to {} ({} time steps in {} block{} of at most {})\n",
+            summary.names.join(", "),
+            path.display(),
+            summary.time_steps,
+            summary.blocks,
+            if summary.blocks == 1 { "" } else { "s" },
+            summary.steps_per_block
+        ));
+        return Ok(());
+    }
     let outcome = baroc::runner::run(&request).map_err(|e| e.0)?;
     if let Some(path) = &output {
-        let names = baroc::runner::write_results(path, &outcome, &request).map_err(|e| e.0)?;
+        let attributes = shard_plan.as_ref().map(|p| p.attributes()).unwrap_or_default();
+        let names = baroc::runner::write_results_with(path, &outcome, &request, attributes).map_err(|e| e.0)?;
         out(&format!("wrote {} to {}\n", names.join(", "), path.display()));
     }
     if let Some(path) = &report {
@@ -245,6 +299,19 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
         for r in &outcome.results {
             out(&format!("{}: {}\n", r.name, baroc::display::plain(&r.value)));
         }
+    }
+    Ok(())
+}
+
+fn merge(output: PathBuf, shards: Vec<PathBuf>, accept_gaps_and_overlaps: bool) -> Result<(), String> {
+    let request = baroc::merge::MergeRequest { accept_partial_coverage: accept_gaps_and_overlaps, ..baroc::merge::MergeRequest::new(output.clone(), shards) };
+    let summary = baroc::merge::merge(&request)?;
+    out(&format!("merged {} shards ({} of {} time steps) into {}\n", summary.shards, summary.time_steps, summary.dataset_time_steps, output.display()));
+    if !summary.missing_steps.is_empty() {
+        out(&format!("time steps left out (no shard had them): {:?}\n", summary.missing_steps));
+    }
+    if !summary.repeated_steps.is_empty() {
+        out(&format!("time steps in two shards (the first kept): {:?}\n", summary.repeated_steps));
     }
     Ok(())
 }

@@ -214,6 +214,11 @@ fn join_along_time(steps: Vec<Vec<NamedResult>>) -> Result<Vec<NamedResult>, Run
 /// and in a `baroc_script` attribute. Results on other grids than the first
 /// are refused with the names of both.
 pub fn write_results(path: &Path, outcome: &RunOutcome, request: &RunRequest) -> Result<Vec<String>, RunError> {
+    write_results_with(path, outcome, request, Vec::new())
+}
+
+/// `write_results` with further global attributes (a shard's record).
+pub fn write_results_with(path: &Path, outcome: &RunOutcome, request: &RunRequest, attributes: Vec<(String, String)>) -> Result<Vec<String>, RunError> {
     let mut fields: Vec<Field> = Vec::new();
     for r in &outcome.results {
         match &r.value {
@@ -246,7 +251,7 @@ pub fn write_results(path: &Path, outcome: &RunOutcome, request: &RunRequest) ->
             overrides.join(" "),
             request.data_files.iter().map(|p| p.display().to_string()).collect::<Vec<_>>().join(" ")
         ),
-        global_attributes: vec![("baroc_script".into(), request.source.clone())],
+        global_attributes: [("baroc_script".to_string(), request.source.clone()), (crate::shard::ATTRIBUTE_PARAMETERS.to_string(), overrides.join(" "))].into_iter().chain(attributes).collect(),
         ..WriteOptions::default()
     };
     write_fields(path, &refs, &options).map_err(|e| RunError(format!("error: {e}")))?;

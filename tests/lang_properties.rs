@@ -183,10 +183,12 @@ fn printed_trees_parse_back_to_the_same_tree() {
             .map_err(|errors| TestCaseError::fail(format!("printed text does not parse:\n{printed}\n{errors:#?}")))?;
         prop_assert_eq!(parsed.without_spans(), tree.clone(), "printed as:\n{}", printed);
         // The canonical text is a fixed point of printing.
+        // And it goes through everything a front end does without a panic.
+        exercise(&printed);
         prop_assert_eq!(parsed.to_string(), printed);
         Ok(())
     });
-    eprintln!("round trip: {} generated programs printed and parsed back", ran.get());
+    eprintln!("round trip: {} generated programs printed, parsed back and checked", ran.get());
     if let Err(error) = result {
         panic!("{error}");
     }

@@ -209,7 +209,9 @@ impl Authenticator {
         if !self.verify(&signature, [&header, &parent, &metadata, &content]) {
             return Err(WireError::BadSignature);
         }
-        if self.signs() && !self.remember(&signature) {
+        // Remembered in one spelling: hex digits in capitals carry the same
+        // HMAC, and must not pass as a new message.
+        if self.signs() && !self.remember(&signature.to_ascii_lowercase()) {
             return Err(WireError::ReplayedSignature);
         }
 
@@ -425,7 +427,12 @@ mod tests {
 
         let frames = sample(&sender);
         assert!(receiver.decode(frames.clone()).is_ok());
-        assert_eq!(receiver.decode(frames), Err(WireError::ReplayedSignature));
+        assert_eq!(receiver.decode(frames.clone()), Err(WireError::ReplayedSignature));
+        // The same signature in capital hex digits is the same HMAC: a replay.
+        let mut shouted = frames;
+        let at = shouted.iter().position(|f| f.as_slice() == DELIMITER).unwrap() + 1;
+        shouted[at] = shouted[at].to_ascii_uppercase();
+        assert_eq!(receiver.decode(shouted), Err(WireError::ReplayedSignature));
     }
 
     #[test]

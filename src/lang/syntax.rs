@@ -569,9 +569,9 @@ impl Printer {
                     }
                     // `f(g(x) with a 1, h(y))` would read `h (y)` as a second
                     // option, so a call with options is grouped unless last.
-                    let has_options =
-                        matches!(&argument.kind, ExprKind::Call { options, .. } if !options.is_empty());
-                    if has_options && index + 1 < arguments.len() {
+                    // The same holds when the options end a longer
+                    // argument: `f(-g() with a 1, h(y))`.
+                    if ends_with_options(argument) && index + 1 < arguments.len() {
                         self.out.push('(');
                         self.bare(argument, argument.precedence(), level);
                         self.out.push(')');
@@ -658,6 +658,21 @@ impl Printer {
                 self.out.push('}');
             }
         }
+    }
+}
+
+/// True when the printed text of `expr` may end with a call's options, which
+/// a following `, name value` would extend. Errs towards true: a needless
+/// pair of parentheses reads back as the same tree.
+fn ends_with_options(expr: &Expr) -> bool {
+    match &expr.kind {
+        ExprKind::Call { options, .. } => !options.is_empty(),
+        ExprKind::Unary { operand, .. } => ends_with_options(operand),
+        ExprKind::Binary { right, .. } => ends_with_options(right),
+        ExprKind::Range { to, .. } => ends_with_options(to),
+        ExprKind::Select { selector, .. } => ends_with_options(selector),
+        ExprKind::If { else_branch, .. } => ends_with_options(else_branch),
+        _ => false,
     }
 }
 
