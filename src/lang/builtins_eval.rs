@@ -174,6 +174,20 @@ impl Options {
         Ok(size)
     }
 
+    /// The map options, passed through as written; `figures` says what they mean.
+    fn map_options(&self) -> Result<crate::figures::MapOptions> {
+        let mut out = crate::figures::MapOptions::default();
+        for (name, _, v, span) in self.values.iter().filter(|o| crate::figures::MAP_OPTIONS.contains(&o.0.as_str())) {
+            let value = match v {
+                Value::Number { value, unit } => crate::figures::OptionValue::Number { value: *value, unit: unit.clone() },
+                Value::Word(w) | Value::Text(w) => crate::figures::OptionValue::Word(w.clone()),
+                other => crate::figures::OptionValue::Word(other.kind().to_string()),
+            };
+            out.set(name, &value).map_err(|m| error(m, *span))?;
+        }
+        Ok(out)
+    }
+
     fn equator_band(&self) -> Result<Option<f64>> {
         match self.values.iter().find(|o| o.0 == "equator_band") {
             None => Ok(None),
@@ -458,8 +472,9 @@ pub fn call_builtin(
             Ok(Value::Text(super::recipe::library_listing(&evaluator.recipe_folders)))
         }
         "map" => {
-            options.allow(name, PICTURE_OPTIONS)?;
+            options.allow(name, &[PICTURE_OPTIONS, crate::figures::MAP_OPTIONS].concat())?;
             let size = options.figure_size(crate::render::FigureSize::default())?;
+            let map_options = options.map_options()?;
             if args.values.is_empty() || args.values.len() > 2 {
                 return Err(error("`map` takes a field to shade and, optionally, a vector field to draw on it", span).with_help("map(thickness(1000 hPa to 500 hPa), thermal_wind(1000 hPa to 500 hPa))"));
             }
@@ -469,9 +484,9 @@ pub fn call_builtin(
                         Some((v, s)) => Some(vector(ev, v, *s, sel, name)?),
                         None => None,
                     };
-                    crate::figures::field_map_with(&f, w.as_deref(), &size)
+                    crate::figures::field_map_with_options(&f, w.as_deref(), &size, &map_options)
                 }
-                Value::Vector(w) => crate::figures::vector_map_with(&w, &size),
+                Value::Vector(w) => crate::figures::vector_map_with_options(&w, &size, &map_options),
                 other => return Err(wrong(name, &other, args.get(0).1, "a scalar or vector field")),
             };
             figure.map(Value::Figure).map_err(|e| error(e.to_string(), span))

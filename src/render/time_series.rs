@@ -208,7 +208,7 @@ mod tests {
                 ),
             ],
             quantity: "speed".into(),
-            units: "m/s".into(),
+            units: "m s-1".into(),
             ..Default::default()
         };
         let bundle = render_time_series(&spec, &FigureSize::new(760, 420)).unwrap();
