@@ -118,6 +118,14 @@ fn attribute<'a>(f: &'a Field, key: &str) -> Option<&'a str> {
     f.attributes.iter().find(|(k, _)| k == key).map(|(_, v)| v.as_str())
 }
 
+/// "2.5 m/s" as "2.5 m s-1": the number kept, the unit in its one spelling.
+fn quantity_spelled(text: &str) -> String {
+    match text.trim().split_once(' ') {
+        Some((number, unit)) if number.parse::<f64>().is_ok() => format!("{number} {}", crate::units::spelling(unit)),
+        _ => text.trim().to_string(),
+    }
+}
+
 /// Values of a slice converted from one unit to another (a copy).
 fn converted(values: ArrayView2<'_, f32>, from: &str, to: &str) -> Option<ndarray::Array2<f32>> {
     let (a, b) = (crate::units::Unit::parse(from).ok()?, crate::units::Unit::parse(to).ok()?);
@@ -173,7 +181,7 @@ pub fn field_map_with_options(f: &Field, vectors: Option<&VectorField>, size: &F
         shaded = shaded
             .palette(crate::render::Palette::Cyclic)
             .levels(crate::render::Levels::Explicit(bands))
-            .missing_label(format!("weak wind (below {})", crate::units::spelling(threshold)));
+            .missing_label(format!("weak wind (below {})", quantity_spelled(threshold)));
     }
     if thickness {
         shaded = shaded.levels(crate::render::Levels::Interval(THICKNESS_INTERVAL_DAM));
