@@ -333,6 +333,13 @@ pub fn hodograph(case: &Case, latitude: f64, longitude: f64, size: &FigureSize) 
         _ => None,
     };
     let caption = match (geostrophic.first(), geostrophic.last()) {
+        (Some(b), Some(t)) if geostrophic.len() > 1 && crate::physics::thermal_wind::turning_is_weak(b.u as f32, b.v as f32, t.u as f32, t.v as f32, crate::physics::thermal_wind::DEFAULT_WEAK_WIND) => format!(
+            "From {} to {} hPa: weak wind (a wind or the shear below {} {}), so no turning is given.",
+            b.pressure / 100.0,
+            t.pressure / 100.0,
+            crate::physics::thermal_wind::DEFAULT_WEAK_WIND,
+            crate::units::spelled::METRES_PER_SECOND
+        ),
         (Some(b), Some(t)) if geostrophic.len() > 1 => {
             let angle = turning_angle(b.u as f32, b.v as f32, t.u as f32, t.v as f32) as f64;
             let sense = if angle > 0.0 { "veers" } else { "backs" };
