@@ -251,20 +251,8 @@ impl Drawable for PreparedCrossSection {
         };
         let bottom = h - caption_h - frame::bottom_margin(p, true) - ends_h - p.px(4.0);
         let rect = Rect::new(left, top, w - bar_w, bottom);
-        let x_axis = Axis {
-            from: self.x_range.0,
-            to: self.x_range.1,
-            start_px: rect.left,
-            end_px: rect.right,
-            log: false,
-        };
-        let y_axis = Axis {
-            from: self.p_bottom,
-            to: self.p_top,
-            start_px: rect.bottom,
-            end_px: rect.top,
-            log: true,
-        };
+        let x_axis = Axis::across(rect, self.x_range.0, self.x_range.1);
+        let y_axis = Axis::pressure(rect, self.p_bottom, self.p_top);
         // Grid y is -ln(p in hPa).
         let position =
             |&(d, y): &(f64, f64)| -> Pt { (x_axis.position(d), y_axis.position((-y).exp())) };

@@ -101,6 +101,29 @@ pub(crate) fn draw_caption<DB: DrawingBackend>(
     Ok(())
 }
 
+/// A series drawn as a line with a dot at each valid value, broken where a
+/// value is missing (profiles and time series share it).
+pub(crate) fn draw_marked_line<DB: DrawingBackend>(
+    p: &Painter<'_, DB>,
+    points: impl IntoIterator<Item = Option<Pt>>,
+    colour: RGBAColor,
+) -> Result<(), RenderError> {
+    let mut run: Vec<Pt> = Vec::new();
+    for point in points {
+        match point {
+            Some(at) => {
+                p.circle(at, 2.5, colour, true, 1.0)?;
+                run.push(at);
+            }
+            None => {
+                p.polyline(&run, colour, 1.8)?;
+                run.clear();
+            }
+        }
+    }
+    p.polyline(&run, colour, 1.8)
+}
+
 /// A colour bar beside a shaded chart (maps and cross-sections share it):
 /// one box per band, pointed ends for values beyond the outermost levels,
 /// numbers at the band edges (always including zero), the label wrapped.
@@ -225,6 +248,22 @@ pub(crate) struct Axis {
 }
 
 impl Axis {
+    /// A linear axis along the chart's width, `from` at the left edge.
+    pub fn across(rect: Rect, from: f64, to: f64) -> Axis {
+        Axis { from, to, start_px: rect.left, end_px: rect.right, log: false }
+    }
+
+    /// A linear axis up the chart's height, `from` at the bottom edge.
+    pub fn up(rect: Rect, from: f64, to: f64) -> Axis {
+        Axis { from, to, start_px: rect.bottom, end_px: rect.top, log: false }
+    }
+
+    /// A pressure axis up the chart, logarithmic, the bottom pressure at the
+    /// bottom edge (pressure increases downward, as the atmosphere stands).
+    pub fn pressure(rect: Rect, bottom: f64, top: f64) -> Axis {
+        Axis { from: bottom, to: top, start_px: rect.bottom, end_px: rect.top, log: true }
+    }
+
     pub fn position(self, v: f64) -> f64 {
         let (a, b, x) = if self.log {
             (self.from.ln(), self.to.ln(), v.ln())

@@ -283,20 +283,8 @@ impl Drawable for PreparedHodograph {
             RGBAColor(0, 0, 0, 0.45),
             1.0,
         )?;
-        let x_axis = frame::Axis {
-            from: u_lo,
-            to: u_hi,
-            start_px: rect.left,
-            end_px: rect.right,
-            log: false,
-        };
-        let y_axis = frame::Axis {
-            from: v_lo,
-            to: v_hi,
-            start_px: rect.bottom,
-            end_px: rect.top,
-            log: false,
-        };
+        let x_axis = frame::Axis::across(rect, u_lo, u_hi);
+        let y_axis = frame::Axis::up(rect, v_lo, v_hi);
         let x_ticks = frame::linear_ticks(u_lo, u_hi, 8);
         let y_ticks = frame::linear_ticks(v_lo, v_hi, 8);
         frame::draw_axes(
