@@ -365,8 +365,12 @@ pub struct SiteSummary {
     pub thermal_wind_direction: f64,
     /// Difference of the thermal-wind speed between the two routes (m/s).
     pub route_difference: f64,
-    /// Turning of the geostrophic wind (degrees, veering positive).
+    /// Turning of the geostrophic wind (degrees, veering positive); NaN
+    /// where it is not defined.
     pub turning: f64,
+    /// The turning is undefined because a wind or the shear is weak (below
+    /// the default threshold), not because data are missing.
+    pub weak_wind: bool,
     /// Layer-mean geostrophic temperature advection (K per day).
     pub advection_per_day: f64,
     /// Analysed-wind shear minus thermal wind, magnitude (m/s).
@@ -382,6 +386,8 @@ pub fn summarise(case: &crate::diagnostics::Case, layer: crate::diagnostics::Lay
     let vt = case.thermal_wind(layer, ThicknessRoute::Temperature)?;
     let vz = case.thermal_wind(layer, ThicknessRoute::Geopotential)?;
     let turning = case.turning(layer)?;
+    // The same angle without the weak-wind mask, to tell "weak wind" from missing data.
+    let turning_unmasked = case.turning_with(layer, 0.0)?;
     let advection = case.layer_temperature_advection(layer)?;
     let ageo = case.ageostrophic_shear(layer, ThicknessRoute::Geopotential)?;
     let mut rows = Vec::new();
@@ -399,6 +405,7 @@ pub fn summarise(case: &crate::diagnostics::Case, layer: crate::diagnostics::Lay
             thermal_wind_direction: direction_from(u, v),
             route_difference: uz.hypot(vz_) - u.hypot(v),
             turning: at(&turning)?,
+            weak_wind: at(&turning)?.is_nan() && at(&turning_unmasked)?.is_finite(),
             advection_per_day: at(&advection)? * 86400.0,
             ageostrophic_shear: at(&ageo.eastward)?.hypot(at(&ageo.northward)?),
         });
@@ -409,29 +416,46 @@ pub fn summarise(case: &crate::diagnostics::Case, layer: crate::diagnostics::Lay
 /// The summary as an aligned plain-text table with units in the header.
 pub fn format_summary(rows: &[SiteSummary], layer: crate::diagnostics::Layer, time_label: &str) -> String {
     let mut out = format!("Marrowind Basin wave, {time_label}: thermal-wind diagnostics of the {} layer\n", layer.label());
+    out.push_str(&format!(
+        "(turning is given only where both winds and the shear reach {} {}; elsewhere \"weak wind\")\n",
+        crate::physics::thermal_wind::DEFAULT_WEAK_WIND,
+        crate::units::spelled::METRES_PER_SECOND
+    ));
     let header = [
-        "site", "lat (deg N)", "lon (deg E)", "thickness (m)", "mean T (K)", "thermal wind (m/s)", "from (deg)", "routes differ (m/s)",
-        "turning (deg)", "", "advection (K/day)", "ageo. shear (m/s)",
+        "site", "latitude", "longitude", "thickness (dam)", "mean temperature (K)", "thermal wind (m s-1)", "from (degree)", "routes differ (m s-1)",
+        "turning (degree)", "", "advection (K day-1)", "ageostrophic shear (m s-1)",
     ];
     let mut table: Vec<Vec<String>> = vec![header.iter().map(|s| s.to_string()).collect()];
     for r in rows {
         use crate::physics::advection::{implied_advection, ImpliedAdvection};
+        // No sense of turning on an angle that is not defined.
         let turn = if r.turning > 0.0 { "veers" } else { "backs" };
-        let sense = match implied_advection(r.turning, r.latitude) {
-            ImpliedAdvection::Warm => format!("{turn}: warm"),
-            ImpliedAdvection::Cold => format!("{turn}: cold"),
-            ImpliedAdvection::Neutral => String::new(),
+        let sense = if !r.turning.is_finite() {
+            String::new()
+        } else {
+            match implied_advection(r.turning, r.latitude) {
+                ImpliedAdvection::Warm => format!("{turn}: warm"),
+                ImpliedAdvection::Cold => format!("{turn}: cold"),
+                ImpliedAdvection::Neutral => String::new(),
+            }
+        };
+        let turning = if r.weak_wind {
+            "weak wind".to_string()
+        } else if r.turning.is_finite() {
+            format!("{:+.1}", r.turning)
+        } else {
+            "missing".to_string()
         };
         table.push(vec![
             r.site.clone(),
-            format!("{:.2}", r.latitude),
-            format!("{:.2}", r.longitude),
-            format!("{:.1}", r.thickness),
+            crate::lang::eval::format_latitude(r.latitude),
+            crate::lang::eval::format_longitude(r.longitude),
+            format!("{:.1}", r.thickness / 10.0),
             format!("{:.2}", r.mean_temperature),
             format!("{:.1}", r.thermal_wind_speed),
             format!("{:.0}", r.thermal_wind_direction),
             format!("{:+.2}", r.route_difference),
-            format!("{:+.1}", r.turning),
+            turning,
             sense,
             format!("{:+.2}", r.advection_per_day),
             format!("{:.1}", r.ageostrophic_shear),
@@ -476,6 +500,34 @@ pub fn write_report(directory: &Path, case_file: &Path, step: usize) -> Result<P
         outcome.header.about.clone().unwrap_or_default()
     ));
     let path = directory.join("marrowind-report.html");
-    crate::report::build(&outcome, &request, Vec::new()).write(&path).map_err(|e| e.to_string())?;
+    let pictures = vertical_pictures(case_file, step)?;
+    crate::report::build(&outcome, &request, pictures).write(&path).map_err(|e| e.to_string())?;
     Ok(path)
+}
+
+/// The report's pictures of the vertical: a hodograph and a temperature
+/// profile at the first site, and a section of temperature with the wind
+/// across it, through the wave from its warm side to its cold side.
+pub fn vertical_pictures(case_file: &Path, step: usize) -> Result<Vec<(crate::mime::MimeBundle, String)>, String> {
+    use crate::io::Role;
+    use crate::render::FigureSize;
+    let dataset = std::sync::Arc::new(crate::io::Dataset::open(&[case_file]).map_err(|e| e.to_string())?);
+    let case = crate::diagnostics::Case::new(dataset.clone()).with_selection(crate::io::Selection { times: Some(vec![step]), ..Default::default() });
+    let name_of = |role: Role| dataset.find_role(role).map(|v| v.name.clone()).ok_or_else(|| format!("the demo file has no {role:?} variable"));
+    let (site, latitude, longitude) = SITES[0];
+    let hodograph = crate::figures::hodograph(&case, latitude, longitude, &FigureSize::new(560, 560)).map_err(|e| e.to_string())?;
+    let temperature = case.field(&name_of(Role::Temperature)?).map_err(|e| e.to_string())?;
+    let profile = crate::figures::profile(&[&temperature], latitude, longitude, &FigureSize::new(480, 560)).map_err(|e| e.to_string())?;
+    let wind = crate::grid::VectorField::new(
+        case.field(&name_of(Role::EastwardWind)?).map_err(|e| e.to_string())?,
+        case.field(&name_of(Role::NorthwardWind)?).map_err(|e| e.to_string())?,
+    )
+    .map_err(|e| e.to_string())?;
+    let (from, to) = ((40.0, -40.0), (64.0, -22.0));
+    let section = crate::figures::section(&temperature, Some(&wind), from, to, &FigureSize::new(800, 480)).map_err(|e| e.to_string())?;
+    Ok(vec![
+        (hodograph, format!("Hodograph of the geostrophic wind at {site}: the wind turns with height as the layer's temperature gradient says.")),
+        (profile, format!("Temperature profile at {site}.")),
+        (section, "Section of temperature across the wave, from its warm side in the south-west to its cold side in the north-east, with the wind across the section as lines.".to_string()),
+    ])
 }

@@ -377,16 +377,26 @@ impl Case {
     }
 
     /// Turning of the geostrophic wind across a layer (degrees; veering, i.e.
-    /// clockwise with height, positive; backing negative).
+    /// clockwise with height, positive; backing negative), NaN ("weak wind")
+    /// where either wind or the shear is slower than the default threshold.
     pub fn turning(&self, layer: Layer) -> Result<Field> {
+        self.turning_with(layer, thermal_wind::DEFAULT_WEAK_WIND)
+    }
+
+    /// As `turning`, with the weak-wind threshold in m s-1 (0 reports every
+    /// angle that exists). The threshold is recorded in the field's
+    /// `weak_wind_threshold` attribute so pictures and tables can say why a
+    /// value is missing.
+    pub fn turning_with(&self, layer: Layer, weak_wind: f64) -> Result<Field> {
         let (b, t) = (self.geostrophic_wind(layer.bottom)?, self.geostrophic_wind(layer.top)?);
         let slices = |f: &Field| f.horizontal_slices().to_owned();
-        let angle = thermal_wind::turning(slices(&b.eastward).view(), slices(&b.northward).view(), slices(&t.eastward).view(), slices(&t.northward).view());
+        let angle = thermal_wind::turning_where_defined(slices(&b.eastward).view(), slices(&b.northward).view(), slices(&t.eastward).view(), slices(&t.northward).view(), weak_wind);
         Ok(b.eastward
             .derived(&format!("geostrophic_turning_{}", layer.tag()), "degree", reshape_like(angle, &b.eastward))
             .map_err(DiagnosticError::Unsupported)?
             .with_long_name(format!("turning of the geostrophic wind across the {} layer (veering positive)", layer.label()))
-            .with_attribute("layer", layer.label()))
+            .with_attribute("layer", layer.label())
+            .with_attribute("weak_wind_threshold", format!("{} m s-1", weak_wind)))
     }
 
     /// Potential temperature (K) at a pressure.

@@ -24,7 +24,8 @@ fn trim(x: f64) -> String {
 pub fn describe_field(f: &Field) -> String {
     let Statistics { minimum, maximum, mean, valid, missing } = f.statistics();
     let dims: Vec<String> = f.dimensions().iter().map(|(n, l)| format!("{n} {l}")).collect();
-    let mut out = format!("{} [{}]: {}\n  dimensions: {}\n  grid: {}\n", f.name, f.units, f.long_name, dims.join(", "), f.grid.describe());
+    let units = crate::units::spelling(&f.units);
+    let mut out = format!("{} [{units}]: {}\n  dimensions: {}\n  grid: {}\n", f.name, f.long_name, dims.join(", "), f.grid.describe());
     if let Some(levels) = &f.levels {
         out.push_str(&format!("  levels (hPa): {}\n", levels.iter().map(|p| trim(p / 100.0)).collect::<Vec<_>>().join(", ")));
     }
@@ -37,22 +38,21 @@ pub fn describe_field(f: &Field) -> String {
         let labels = t.labels();
         out.push_str(&format!("  times: {} ({} step{})\n", if labels.len() == 1 { labels[0].clone() } else { format!("{} to {}", labels[0], labels[labels.len() - 1]) }, labels.len(), if labels.len() == 1 { "" } else { "s" }));
     }
-    out.push_str(&format!("  minimum {}  mean {}  maximum {} {}  ({} valid, {} missing)", trim(minimum), trim(mean), trim(maximum), f.units, valid, missing));
+    out.push_str(&format!("  minimum {}  mean {}  maximum {} {units}  ({} valid, {} missing)", trim(minimum), trim(mean), trim(maximum), valid, missing));
     out
 }
 
 fn describe_vector(w: &VectorField) -> String {
     let speed = w.speed();
     let s = speed.statistics();
+    let units = crate::units::spelling(&w.eastward.units);
     format!(
-        "{} and {} [{}]\n  {}\n  speed: mean {} maximum {} {}",
+        "{} and {} [{units}]\n  {}\n  speed: mean {} maximum {} {units}",
         w.eastward.name,
         w.northward.name,
-        w.eastward.units,
         w.eastward.long_name.replace("eastward ", ""),
         trim(s.mean),
         trim(s.maximum),
-        w.eastward.units
     )
 }
 
@@ -65,7 +65,7 @@ pub fn series_table(series: &Series) -> TableSpec {
             Some((n, u)) => (n.to_string(), u.trim_end_matches(')').to_string()),
             None => (c.clone(), String::new()),
         };
-        columns.push(Column::new(name, units));
+        columns.push(Column::new(name, crate::units::spelling(&units)));
     }
     let mut table = TableSpec::new(series.title.clone(), columns);
     for (label, row) in series.labels.iter().zip(&series.rows) {
@@ -95,12 +95,12 @@ pub fn bundle_from(value: &Value, dataset: Option<&crate::io::Dataset>) -> MimeB
         Value::Figure(request) => crate::figures::draw(request).unwrap_or_else(|d| MimeBundle::plain(format!("the {} could not be drawn: {}", request.operator, d.message))),
         Value::Report(request) => MimeBundle::plain(format!("a report to write to {} (written when a session or run carries it out)", request.path.display())),
         Value::Scalar(f) => {
-            let mut b = crate::figures::field_map_on(f, None, &crate::render::FigureSize::default(), dataset).unwrap_or_default();
+            let mut b = crate::figures::field_map_on(f, None, &crate::render::FigureSize::default(), dataset, &Default::default()).unwrap_or_default();
             b.insert_text("text/plain", describe_field(f));
             b
         }
         Value::Vector(w) => {
-            let mut b = crate::figures::vector_map_on(w, &crate::render::FigureSize::default(), dataset).unwrap_or_default();
+            let mut b = crate::figures::vector_map_on(w, &crate::render::FigureSize::default(), dataset, &Default::default()).unwrap_or_default();
             b.insert_text("text/plain", describe_vector(w));
             b
         }

@@ -57,12 +57,16 @@ pub fn draw(request: &FigureRequest) -> Result<MimeBundle, Diagnostic> {
     let options = &request.options;
     let failed = |e: FigureError| Diagnostic::error(e.to_string(), request.span);
     let rendered = |e: RenderError| Diagnostic::error(e.to_string(), request.span);
-    if !matches!(request.content, FigureContent::Panels { .. }) {
-        allow(operator, options, PICTURE_OPTIONS)?;
+    match &request.content {
+        FigureContent::FieldMap { .. } | FigureContent::VectorMap { .. } => allow(operator, options, &[PICTURE_OPTIONS, MAP_OPTIONS].concat())?,
+        FigureContent::Panels { .. } => {}
+        _ => allow(operator, options, PICTURE_OPTIONS)?,
     }
     match &request.content {
-        FigureContent::FieldMap { field, vectors } => field_map_on(field, vectors.as_deref(), &figure_size(options, FigureSize::default())?, request.dataset.as_deref()).map_err(rendered),
-        FigureContent::VectorMap { vectors } => vector_map_on(vectors, &figure_size(options, FigureSize::default())?, request.dataset.as_deref()).map_err(rendered),
+        FigureContent::FieldMap { field, vectors } => {
+            field_map_on(field, vectors.as_deref(), &figure_size(options, FigureSize::default())?, request.dataset.as_deref(), &map_options(options)?).map_err(rendered)
+        }
+        FigureContent::VectorMap { vectors } => vector_map_on(vectors, &figure_size(options, FigureSize::default())?, request.dataset.as_deref(), &map_options(options)?).map_err(rendered),
         FigureContent::Hodograph { case, latitude, longitude } => hodograph(case, *latitude, *longitude, &figure_size(options, FigureSize::new(640, 640))?).map_err(failed),
         FigureContent::Profile { fields, latitude, longitude } => {
             let refs: Vec<&Field> = fields.iter().map(|f| &**f).collect();
@@ -81,6 +85,21 @@ pub fn draw(request: &FigureRequest) -> Result<MimeBundle, Diagnostic> {
             panels(&drawn, columns, "panels").map_err(failed)
         }
     }
+}
+
+/// The map options among a request's options, interpreted; an error points
+/// at the value that cannot be used and says what would do.
+fn map_options(options: &[FigureOption]) -> Result<MapOptions, Diagnostic> {
+    let mut out = MapOptions::default();
+    for option in options.iter().filter(|o| MAP_OPTIONS.contains(&o.name.as_str())) {
+        let value = match &option.value {
+            Value::Number { value, unit } => OptionValue::Number { value: *value, unit: unit.clone() },
+            Value::Word(w) | Value::Text(w) => OptionValue::Word(w.clone()),
+            other => OptionValue::Word(other.kind().to_string()),
+        };
+        out.set(&option.name, &value).map_err(|message| Diagnostic::error(message, option.value_span))?;
+    }
+    Ok(out)
 }
 
 /// The first horizontal slice of a field, and a note of which it is.
@@ -102,11 +121,124 @@ fn first_slice(f: &Field) -> (ArrayView2<'_, f32>, String) {
     (slice, note.join(", "))
 }
 
-/// The contour interval the trade uses for a field, where there is one:
-/// thickness every 60 m, geopotential height every 60 m (common practice).
-fn habitual_interval(f: &Field) -> Option<f64> {
-    let length = crate::units::Unit::parse(&f.units).map(|u| u.dimension() == crate::units::Dimension::LENGTH).unwrap_or(false);
-    (length && (f.name.starts_with("thickness") || f.standard_name.as_deref() == Some("geopotential_height"))).then_some(60.0)
+/// Options of a map that the trade sets chart by chart. Every one has a
+/// default, so `MapOptions::default()` draws the habitual chart.
+#[derive(Debug, Clone, Default, PartialEq)]
+pub struct MapOptions {
+    /// Speed unit for shading a wind and for its barb key ("kt", "m s-1",
+    /// "km h-1"...); None keeps the field's own unit.
+    pub speed_unit: Option<String>,
+    /// Reference thickness (m) about which thickness lines are coloured
+    /// warm (at and above) or cold (below); None takes
+    /// `DEFAULT_REFERENCE_THICKNESS` for the 1000-500 hPa layer and no
+    /// reference for other layers.
+    pub reference_thickness: Option<f64>,
+    /// Half-width of the white band around zero on signed fields, as a
+    /// fraction of the largest magnitude; None takes
+    /// `render::colour::DEFAULT_NEUTRAL_FRACTION`.
+    pub neutral_band: Option<f64>,
+}
+
+/// The map options a user may set, by name (interpreted here, on the
+/// drawing side; the language only passes them through).
+pub const MAP_OPTIONS: &[&str] = &["speed_unit", "reference", "neutral_band"];
+
+/// An option's value as written: a number with its unit, or a word.
+#[derive(Debug, Clone, PartialEq)]
+pub enum OptionValue {
+    Number { value: f64, unit: crate::units::Unit },
+    Word(String),
+}
+
+impl MapOptions {
+    /// Set one option from what the user wrote; the error says what would
+    /// be valid.
+    /// - `speed_unit kt` (or any speed unit: `m s-1`, `km h-1`);
+    /// - `reference 552 dam` (a thickness, any length unit);
+    /// - `neutral_band 0.1` (a fraction of the largest magnitude, 0 to 0.5).
+    pub fn set(&mut self, name: &str, value: &OptionValue) -> Result<(), String> {
+        use crate::units::{Dimension, Unit};
+        match (name, value) {
+            ("speed_unit", OptionValue::Word(w)) => match Unit::parse(w) {
+                Ok(u) if u.dimension() == Dimension::VELOCITY => {
+                    self.speed_unit = Some(crate::units::spelling(w));
+                    Ok(())
+                }
+                _ => Err(format!("`speed_unit` takes a unit of speed such as kt or m s-1, not `{w}`")),
+            },
+            ("reference", OptionValue::Number { value, unit }) if unit.dimension() == Dimension::LENGTH => {
+                self.reference_thickness = Some(unit.to_si(*value));
+                Ok(())
+            }
+            ("neutral_band", OptionValue::Number { value, unit }) if unit.is_dimensionless() && (0.0..=0.5).contains(value) => {
+                self.neutral_band = Some(*value);
+                Ok(())
+            }
+            ("speed_unit", _) => Err("`speed_unit` takes a unit of speed such as kt or m s-1".into()),
+            ("reference", _) => Err("`reference` takes a thickness with its unit, such as 546 dam or 5460 m".into()),
+            ("neutral_band", _) => Err("`neutral_band` takes a fraction of the largest magnitude from 0 to 0.5, such as 0.05".into()),
+            (other, _) => Err(format!("maps have no option `{other}`; their options are {}", MAP_OPTIONS.join(", "))),
+        }
+    }
+}
+
+/// The 1000-500 hPa thickness about which forecasters split warm and cold
+/// air masses by habit: 546 dam (common practice, no single source; the
+/// 5460 m line is a long-standing rule-of-thumb rain/snow and air-mass
+/// divide in mid-latitudes).
+pub const DEFAULT_REFERENCE_THICKNESS: f64 = 5460.0;
+
+/// Thickness is read in decametres, every 6 dam (common practice of
+/// synoptic charts).
+const THICKNESS_INTERVAL_DAM: f64 = 6.0;
+
+/// Heights are contoured every 6 dam too (60 m; common practice).
+const HEIGHT_INTERVAL_M: f64 = 60.0;
+
+/// Warm and cold line colours of thickness charts: a copper and a blue from
+/// the ends of our diverging table, dark enough to read over any shading.
+const WARM_LINE: (u8, u8, u8) = (160, 50, 20);
+const COLD_LINE: (u8, u8, u8) = (25, 60, 160);
+
+fn is_length(units: &str) -> bool {
+    crate::units::Unit::parse(units).map(|u| u.dimension() == crate::units::Dimension::LENGTH).unwrap_or(false)
+}
+
+fn is_thickness(f: &Field) -> bool {
+    f.name.starts_with("thickness") && is_length(&f.units)
+}
+
+fn attribute<'a>(f: &'a Field, key: &str) -> Option<&'a str> {
+    f.attributes.iter().find(|(k, _)| k == key).map(|(_, v)| v.as_str())
+}
+
+/// "2.5 m/s" as "2.5 m s-1": the number kept, the unit in its one spelling.
+fn quantity_spelled(text: &str) -> String {
+    match text.trim().split_once(' ') {
+        Some((number, unit)) if number.parse::<f64>().is_ok() => format!("{number} {}", crate::units::spelling(unit)),
+        _ => text.trim().to_string(),
+    }
+}
+
+/// Values of a slice converted from one unit to another (a copy).
+fn converted(values: ArrayView2<'_, f32>, from: &str, to: &str) -> Option<ndarray::Array2<f32>> {
+    let (a, b) = (crate::units::Unit::parse(from).ok()?, crate::units::Unit::parse(to).ok()?);
+    let (scale, offset) = a.conversion_to(&b).ok()?;
+    Some(values.mapv(|v| (v as f64 * scale + offset) as f32))
+}
+
+/// What a field is, in plain words for labels ("thickness 1000-500 hPa"
+/// rather than the variable name); the unit is added by whoever shows it.
+fn plain_words(f: &Field) -> String {
+    let words = if is_thickness(f) {
+        match attribute(f, "layer") {
+            Some(layer) => format!("thickness {layer}"),
+            None => "thickness".to_string(),
+        }
+    } else {
+        f.long_name.clone()
+    };
+    words
 }
 
 /// The land-sea mask of a dataset (the variable with the CF standard name
@@ -137,22 +269,57 @@ pub fn land_mask_on(dataset: &crate::io::Dataset, latitudes: &[f64], longitudes:
 /// A map of a scalar field: shaded, with labelled contour lines, and
 /// optional vectors on top.
 pub fn field_map_with(f: &Field, vectors: Option<&VectorField>, size: &FigureSize) -> Result<MimeBundle, RenderError> {
-    field_map_on(f, vectors, size, None)
+    field_map_on(f, vectors, size, None, &MapOptions::default())
 }
 
-/// A map of a scalar field, with coastlines from the dataset's land-sea
-/// mask when it has one.
-pub fn field_map_on(f: &Field, vectors: Option<&VectorField>, size: &FigureSize, dataset: Option<&crate::io::Dataset>) -> Result<MimeBundle, RenderError> {
+/// A map of a scalar field as the trade reads it: thickness in decametres
+/// with dashed lines every 6 dam coloured about a reference and bands from
+/// the same interval; heights every 6 dam; turning on a cyclic scale with
+/// weak-wind areas hatched; signed fields with a neutral band around zero;
+/// coastlines from the dataset's land-sea mask when it has one.
+pub fn field_map_on(f: &Field, vectors: Option<&VectorField>, size: &FigureSize, dataset: Option<&crate::io::Dataset>, options: &MapOptions) -> Result<MimeBundle, RenderError> {
     let (values, note) = first_slice(f);
-    let mut spec = MapSpec::new(format!("{} ({})", f.long_name, f.units), &f.grid.latitudes, &f.grid.longitudes).subtitle(note);
-    let shaded = ShadedLayer::new(values, f.name.clone(), f.units.clone());
+    let thickness = is_thickness(f);
+    let dam;
+    let (values, units) = if thickness {
+        dam = converted(values, &f.units, crate::units::spelled::DECAMETRES).ok_or_else(|| RenderError::input(&f.name, "thickness not convertible to dam"))?;
+        (dam.view(), crate::units::spelled::DECAMETRES.to_string())
+    } else {
+        (values, crate::units::spelling(&f.units))
+    };
+    let label = plain_words(f);
+    let title = if units.is_empty() || units == "1" { label.clone() } else { format!("{label} ({units})") };
+    let mut spec = MapSpec::new(title, &f.grid.latitudes, &f.grid.longitudes).subtitle(note);
+    let mut shaded = ShadedLayer::new(values, label.clone(), units.clone());
+    if let Some(fraction) = options.neutral_band {
+        shaded = shaded.neutral_fraction(fraction);
+    }
+    if let Some(threshold) = attribute(f, "weak_wind_threshold") {
+        // An angle between two winds: the full circle on the cyclic table,
+        // every 30 degrees, with undefined angles hatched as weak wind.
+        let bands: Vec<f64> = (-6..=6).map(|k| k as f64 * 30.0).collect();
+        shaded = shaded
+            .palette(crate::render::Palette::Cyclic)
+            .levels(crate::render::Levels::Explicit(bands))
+            .missing_label(format!("weak wind (below {})", quantity_spelled(threshold)));
+    }
+    if thickness {
+        shaded = shaded.levels(crate::render::Levels::Interval(THICKNESS_INTERVAL_DAM));
+    }
     spec = spec.shaded(shaded);
-    // Lines where the trade draws them (thickness and heights every 60 m);
-    // other fields are read from the shading and its colour bar, since lines
-    // on a noisy signed field (advection, vorticity) clutter the map with
-    // small rings around zero.
-    if let Some(interval) = habitual_interval(f) {
-        spec = spec.contour_lines(ContourLayer::new(values, f.name.clone(), f.units.clone()).every(interval));
+    // Lines where the trade draws them (thickness and heights); other
+    // fields are read from the shading and its colour bar, since lines on a
+    // noisy signed field (advection, vorticity) clutter the map with small
+    // rings around zero.
+    if thickness {
+        let mut lines = ContourLayer::new(values, label.clone(), units.clone()).every(THICKNESS_INTERVAL_DAM).dashed();
+        let reference = options.reference_thickness.or_else(|| (attribute(f, "layer") == Some("1000-500 hPa")).then_some(DEFAULT_REFERENCE_THICKNESS));
+        if let Some(r) = reference {
+            lines = lines.about(r / 10.0, WARM_LINE, COLD_LINE);
+        }
+        spec = spec.contour_lines(lines);
+    } else if is_length(&f.units) && f.standard_name.as_deref() == Some("geopotential_height") {
+        spec = spec.contour_lines(ContourLayer::new(values, label.clone(), units.clone()).every(HEIGHT_INTERVAL_M));
     }
     let vector_slices;
     if let Some(w) = vectors {
@@ -176,22 +343,54 @@ pub fn field_map(f: &Field, vectors: Option<&VectorField>) -> Option<MimeBundle>
 /// A map of a vector field: speed shaded, barbs for winds, arrows for other
 /// vectors (gradients, shears).
 pub fn vector_map_with(w: &VectorField, size: &FigureSize) -> Result<MimeBundle, RenderError> {
-    vector_map_on(w, size, None)
+    vector_map_on(w, size, None, &MapOptions::default())
 }
 
-/// A map of a vector field, with coastlines from the dataset's land-sea
-/// mask when it has one.
-pub fn vector_map_on(w: &VectorField, size: &FigureSize, dataset: Option<&crate::io::Dataset>) -> Result<MimeBundle, RenderError> {
+/// A map of a vector field with options: `speed_unit` shades a wind's speed
+/// in that unit, and the barb key states its marks in the shading's unit,
+/// so colours and barbs read on one scale; coastlines from the dataset's
+/// land-sea mask when it has one.
+pub fn vector_map_on(w: &VectorField, size: &FigureSize, dataset: Option<&crate::io::Dataset>, options: &MapOptions) -> Result<MimeBundle, RenderError> {
     let speed = w.speed();
     let (values, note) = first_slice(&speed);
     let (u, _) = first_slice(&w.eastward);
     let (v, _) = first_slice(&w.northward);
     let name = w.eastward.long_name.replace("eastward ", "");
     let is_speed = crate::units::Unit::parse(&w.eastward.units).map(|u| u.dimension() == crate::units::Dimension::VELOCITY).unwrap_or(false);
-    let layer = if is_speed { VectorLayer::barbs(u, v, name.clone()) } else { VectorLayer::arrows(u, v, name.clone()) };
-    let mut spec = MapSpec::new(format!("{name} ({})", w.eastward.units), &w.eastward.grid.latitudes, &w.eastward.grid.longitudes)
+    let own = crate::units::spelling(&w.eastward.units);
+    let shown = match &options.speed_unit {
+        Some(unit) if is_speed => crate::units::spelling(unit),
+        _ => own.clone(),
+    };
+    let speed_shown;
+    let values = if shown != own {
+        speed_shown = converted(values, &own, &shown).ok_or_else(|| RenderError::input("speed_unit", format!("cannot show a speed in `{shown}`")))?;
+        speed_shown.view()
+    } else {
+        values
+    };
+    // Barbs take m s-1 whatever the shading; the key names the shading's unit too.
+    let metres_per_second = crate::units::spelled::METRES_PER_SECOND;
+    let barb_winds = if is_speed {
+        converted(u, &own, metres_per_second).zip(converted(v, &own, metres_per_second))
+    } else {
+        None
+    };
+    let layer = match &barb_winds {
+        Some((u_ms, v_ms)) => {
+            let per = crate::units::Unit::parse(&shown)
+                .ok()
+                .zip(crate::units::Unit::parse(metres_per_second).ok())
+                .and_then(|(a, b)| a.conversion_to(&b).ok())
+                .map(|c| c.0)
+                .unwrap_or(1.0);
+            VectorLayer::barbs(u_ms.view(), v_ms.view(), name.clone()).key_unit(shown.clone(), per)
+        }
+        None => VectorLayer::arrows(u, v, name.clone()),
+    };
+    let mut spec = MapSpec::new(format!("{name} ({shown})"), &w.eastward.grid.latitudes, &w.eastward.grid.longitudes)
         .subtitle(note)
-        .shaded(ShadedLayer::new(values, format!("speed of {name}"), w.eastward.units.clone()))
+        .shaded(ShadedLayer::new(values, format!("speed of {name}"), shown.clone()))
         .vectors(layer)
         .caption("Baroc: an analysis tool, not a warning service.");
     let land = dataset.and_then(|d| land_mask_on(d, &w.eastward.grid.latitudes, &w.eastward.grid.longitudes));
@@ -263,6 +462,13 @@ pub fn hodograph(case: &Case, latitude: f64, longitude: f64, size: &FigureSize) 
         _ => None,
     };
     let caption = match (geostrophic.first(), geostrophic.last()) {
+        (Some(b), Some(t)) if geostrophic.len() > 1 && crate::physics::thermal_wind::turning_is_weak(b.u as f32, b.v as f32, t.u as f32, t.v as f32, crate::physics::thermal_wind::DEFAULT_WEAK_WIND) => format!(
+            "From {} to {} hPa: weak wind (a wind or the shear below {} {}), so no turning is given.",
+            b.pressure / 100.0,
+            t.pressure / 100.0,
+            crate::physics::thermal_wind::DEFAULT_WEAK_WIND,
+            crate::units::spelled::METRES_PER_SECOND
+        ),
         (Some(b), Some(t)) if geostrophic.len() > 1 => {
             let angle = turning_angle(b.u as f32, b.v as f32, t.u as f32, t.v as f32) as f64;
             let sense = if angle > 0.0 { "veers" } else { "backs" };
@@ -306,7 +512,7 @@ pub fn profile(fields: &[&Field], latitude: f64, longitude: f64, size: &FigureSi
         title: format!("Profile of {}", first.long_name),
         subtitle: format!("{}  {}", place(latitude, longitude), time_label(first)),
         quantity: first.long_name.clone(),
-        units: first.units.clone(),
+        units: crate::units::spelling(&first.units),
         series,
         caption: String::new(),
     };
@@ -362,13 +568,13 @@ pub fn section(field: &Field, wind: Option<&VectorField>, from: (f64, f64), to: 
             }
         }
     }
-    let mut spec = CrossSectionSpec::new(format!("Section of {}", field.long_name), &distance, &levels, values.view(), field.long_name.clone(), field.units.clone());
+    let mut spec = CrossSectionSpec::new(format!("Section of {}", field.long_name), &distance, &levels, values.view(), field.long_name.clone(), crate::units::spelling(&field.units));
     spec.subtitle = time_label(field);
     spec.start_label = place(from.0, from.1);
     spec.end_label = place(to.0, to.1);
     if let Some(nm) = &normal {
         spec.normal_wind = Some(nm.view());
-        spec.caption = "Lines: wind component normal to the section (m/s, positive to the left looking along it).".into();
+        spec.caption = "Lines: wind component normal to the section (m s-1, positive to the left looking along it).".into();
     }
     Ok(render_cross_section(&spec, size)?)
 }
@@ -387,7 +593,7 @@ pub fn time_series(series: &crate::lang::value::Series, size: &FigureSize) -> Re
         times: series.labels.clone(),
         series: vec![TimeSeries::new(quantity.clone(), series.rows.iter().map(|r| r[0]).collect())],
         quantity,
-        units,
+        units: crate::units::spelling(&units),
         caption: String::new(),
     };
     Ok(render_time_series(&spec, size)?)

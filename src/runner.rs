@@ -307,7 +307,7 @@ pub fn tabulate(outcome: &RunOutcome, points: &[(f64, f64)], regions: &[crate::p
                         result: name.clone(),
                         place: format!("{} {}", crate::text::format_latitude(lat), crate::text::format_longitude(lon)),
                         label,
-                        columns: vec![format!("value ({})", f.units)],
+                        columns: vec![format!("value ({})", crate::units::spelling(&f.units))],
                         values: vec![v as f64],
                     });
                 }
@@ -319,7 +319,7 @@ pub fn tabulate(outcome: &RunOutcome, points: &[(f64, f64)], regions: &[crate::p
                         result: name.clone(),
                         place: format!("box {}..{}, {}..{}", region.south, region.north, region.west, region.east),
                         label,
-                        columns: vec![format!("mean ({})", f.units), format!("minimum ({})", f.units), format!("maximum ({})", f.units), "valid points".into()],
+                        columns: { let u = crate::units::spelling(&f.units); vec![format!("mean ({u})"), format!("minimum ({u})"), format!("maximum ({u})"), "valid points".into()] },
                         values: vec![s.weighted_mean, s.minimum, s.maximum, s.valid_points as f64],
                     });
                 }

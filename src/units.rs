@@ -1281,6 +1281,55 @@ impl<'de> serde::Deserialize<'de> for Unit {
 // Tests
 // ---------------------------------------------------------------------------
 
+/// The one spelling of each unit Baroc writes, in figures, tables, NetCDF
+/// output and messages alike: udunits/CF style (space-separated factors,
+/// signed integer exponents), as [`Unit::canonical`] writes them. Outputs
+/// take their unit words from here or from [`spelling`], never from a
+/// string of their own.
+pub mod spelled {
+    pub const METRES_PER_SECOND: &str = "m s-1";
+    pub const KNOTS: &str = "kt";
+    pub const KELVIN: &str = "K";
+    pub const KELVIN_PER_DAY: &str = "K day-1";
+    pub const KELVIN_PER_SECOND: &str = "K s-1";
+    pub const METRES: &str = "m";
+    pub const DECAMETRES: &str = "dam";
+    pub const KILOMETRES: &str = "km";
+    pub const HECTOPASCALS: &str = "hPa";
+    pub const DEGREES: &str = "degree";
+    pub const PER_SECOND: &str = "s-1";
+    pub const PER_SECOND_SQUARED: &str = "s-2";
+    pub const GEOPOTENTIAL: &str = "m2 s-2";
+}
+
+/// Every spelling of [`spelled`], for checks that outputs agree with it.
+pub const SPELLINGS: &[&str] = &[
+    spelled::METRES_PER_SECOND,
+    spelled::KNOTS,
+    spelled::KELVIN,
+    spelled::KELVIN_PER_DAY,
+    spelled::KELVIN_PER_SECOND,
+    spelled::METRES,
+    spelled::DECAMETRES,
+    spelled::KILOMETRES,
+    spelled::HECTOPASCALS,
+    spelled::DEGREES,
+    spelled::PER_SECOND,
+    spelled::PER_SECOND_SQUARED,
+    spelled::GEOPOTENTIAL,
+];
+
+/// The spelling Baroc writes for a unit given in any accepted form ("m/s",
+/// "m s**-1", "meter second-1" all give "m s-1"); text that is not a unit
+/// is returned trimmed, unchanged.
+pub fn spelling(text: &str) -> String {
+    match Unit::parse(text) {
+        Ok(unit) if !text.trim().is_empty() => unit.canonical(),
+        _ => text.trim().to_string(),
+    }
+}
+
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -1896,5 +1945,18 @@ mod tests {
     fn from_str_matches_parse() {
         let parsed: Unit = "K s-1".parse().unwrap();
         assert_eq!(parsed, unit("K/s"));
+    }
+
+    #[test]
+    fn the_spelling_table_is_what_the_canonical_writer_gives() {
+        // udunits-2 grammar (space-separated factors, integer exponents):
+        // each spelling reads back as itself.
+        for s in SPELLINGS {
+            assert_eq!(&Unit::parse(s).unwrap().canonical(), s);
+        }
+        assert_eq!(spelling("m/s"), "m s-1");
+        assert_eq!(spelling("m s**-1"), "m s-1");
+        assert_eq!(spelling("K/day"), "K day-1");
+        assert_eq!(spelling("degrees"), "degree");
     }
 }

@@ -285,11 +285,42 @@ fn the_land_sea_mask_holds_the_invented_coastline_and_maps_draw_it() {
     assert!((0.05..0.5).contains(&land), "land fraction {land}");
     let t = case.field("temperature").unwrap().at_time_index(0).unwrap();
     let size = baroc::render::FigureSize::new(640, 480);
-    let with = baroc::figures::field_map_on(&t, None, &size, Some(&case.dataset)).unwrap();
+    let with = baroc::figures::field_map_on(&t, None, &size, Some(&case.dataset), &Default::default()).unwrap();
     assert!(with.plain_text().contains("coastline from the land-sea mask"), "{}", with.plain_text());
-    let without = baroc::figures::field_map_on(&t, None, &size, None).unwrap();
+    let without = baroc::figures::field_map_on(&t, None, &size, None, &Default::default()).unwrap();
     assert!(!without.plain_text().contains("coastline"));
     // A box inside the open sea has no coast to draw.
     let sea = baroc::figures::land_mask_on(&case.dataset, &[45.0, 45.75], &[-50.0, -49.25]);
     assert!(sea.is_none());
+}
+
+#[test]
+fn the_summary_says_weak_wind_where_the_turning_is_not_defined() {
+    // Definition: the angle between two winds is reported only where both
+    // winds and their difference reach the threshold (2.5 m s-1 by default);
+    // checked here against the geostrophic winds computed directly.
+    let dir = std::env::temp_dir().join(format!("baroc-weak-{}", std::process::id()));
+    let path = baroc::demo::write(&dir).unwrap();
+    let case = baroc::diagnostics::Case::new(std::sync::Arc::new(baroc::io::Dataset::open(&[path]).unwrap()))
+        .with_selection(baroc::io::Selection { times: Some(vec![baroc::demo::TIME_STEPS - 1]), ..Default::default() });
+    let layer = baroc::diagnostics::Layer::new(100000.0, 50000.0).0;
+    let rows = baroc::demo::summarise(&case, layer).unwrap();
+    let text = baroc::demo::format_summary(&rows, layer, "t");
+    let (bottom, top) = (case.geostrophic_wind(100000.0).unwrap(), case.geostrophic_wind(50000.0).unwrap());
+    let at = |f: &baroc::grid::Field, lat: f64, lon: f64| baroc::diagnostics::point_values(f, lat, lon).unwrap()[0] as f64;
+    let mut weak_rows = 0;
+    for r in &rows {
+        let (ub, vb) = (at(&bottom.eastward, r.latitude, r.longitude), at(&bottom.northward, r.latitude, r.longitude));
+        let (ut, vt) = (at(&top.eastward, r.latitude, r.longitude), at(&top.northward, r.latitude, r.longitude));
+        let weak = ub.hypot(vb) < 2.5 || ut.hypot(vt) < 2.5 || (ut - ub).hypot(vt - vb) < 2.5;
+        assert_eq!(r.weak_wind, weak, "{}: winds {:.1} and {:.1}, shear {:.1} m s-1", r.site, ub.hypot(vb), ut.hypot(vt), (ut - ub).hypot(vt - vb));
+        let line = text.lines().find(|l| l.starts_with(&r.site)).unwrap();
+        if weak {
+            weak_rows += 1;
+            assert!(line.contains("weak wind") && !line.contains("veers") && !line.contains("backs"), "{line}");
+        } else {
+            assert!(line.contains("veers") || line.contains("backs"), "{line}");
+        }
+    }
+    assert!(weak_rows >= 1, "the demo has a site of weak wind:\n{text}");
 }

@@ -244,3 +244,18 @@ fn pictures_and_reports_are_requests_the_session_carries_out() {
     let html = std::fs::read_to_string(&path).expect("the report was written");
     assert!(html.contains("lower_thickness") && html.contains("not a warning service"));
 }
+
+#[test]
+fn map_options_reach_the_picture_and_bad_ones_say_what_is_valid() {
+    // Knots by definition: 1 kt = 1852 m per hour (international nautical mile).
+    let mut s = session();
+    let knots = baroc::display::bundle(&value(&mut s, "map(geostrophic_wind(geopotential at 500 hPa)) with speed_unit kt"));
+    let text = knots.text("image/svg+xml").expect("a picture");
+    assert!(text.contains("(kt)"), "the colour bar is in knots");
+    let metres = baroc::display::bundle(&value(&mut s, "map(geostrophic_wind(geopotential at 500 hPa))"));
+    assert!(metres.text("image/svg+xml").unwrap().contains("(m s-1)"));
+    let wrong = s.run("map(geostrophic_wind(geopotential at 500 hPa)) with speed_unit \"K\"", None).unwrap_err();
+    assert!(wrong.rendered.contains("unit of speed"), "{}", wrong.rendered);
+    let band = s.run("map(temperature_advection(1000 hPa to 500 hPa)) with neutral_band 0.9", None).unwrap_err();
+    assert!(band.rendered.contains("from 0 to 0.5"), "{}", band.rendered);
+}

@@ -87,9 +87,9 @@ fn maps_hodograph_profile_and_section_match_their_references() {
     let size = FigureSize::new(800, 560);
     let thickness = case.thickness(layer, ThicknessRoute::Temperature).unwrap();
     let thermal = case.thermal_wind(layer, ThicknessRoute::Temperature).unwrap();
-    let map = baroc::figures::field_map_on(&thickness, Some(&thermal), &size, Some(&case.dataset)).unwrap();
+    let map = baroc::figures::field_map_on(&thickness, Some(&thermal), &size, Some(&case.dataset), &Default::default()).unwrap();
     compare("thickness-and-thermal-wind", map.binary("image/png").unwrap());
-    let winds = baroc::figures::vector_map_on(&case.geostrophic_wind(50000.0).unwrap(), &size, Some(&case.dataset)).unwrap();
+    let winds = baroc::figures::vector_map_on(&case.geostrophic_wind(50000.0).unwrap(), &size, Some(&case.dataset), &Default::default()).unwrap();
     compare("geostrophic-wind-500", winds.binary("image/png").unwrap());
     let hodograph = baroc::figures::hodograph(&case, 51.5, -31.0, &FigureSize::new(560, 560)).unwrap();
     compare("hodograph-port-tallowmere", hodograph.binary("image/png").unwrap());
@@ -101,6 +101,18 @@ fn maps_hodograph_profile_and_section_match_their_references() {
     let wind = baroc::grid::VectorField::new(u, v).unwrap();
     let section = baroc::figures::section(&t, Some(&wind), (40.0, -40.0), (64.0, -22.0), &FigureSize::new(800, 480)).unwrap();
     compare("section-across-the-front", section.binary("image/png").unwrap());
+    // Turning on the cyclic scale with weak-wind areas hatched, and a signed
+    // field (advection) with its neutral band.
+    let turning = case.turning(layer).unwrap();
+    let turning_map = baroc::figures::field_map_with(&turning, None, &size).unwrap();
+    compare("turning-1000-500", turning_map.binary("image/png").unwrap());
+    let advection = case.layer_temperature_advection(layer).unwrap();
+    let advection_map = baroc::figures::field_map_with(&advection, None, &size).unwrap();
+    compare("advection-1000-500", advection_map.binary("image/png").unwrap());
+    // Winds shaded in knots: the barb key and the colour bar share the unit.
+    let options = baroc::figures::MapOptions { speed_unit: Some("kt".into()), ..Default::default() };
+    let knots = baroc::figures::vector_map_on(&case.geostrophic_wind(50000.0).unwrap(), &size, Some(&case.dataset), &options).unwrap();
+    compare("geostrophic-wind-500-knots", knots.binary("image/png").unwrap());
     // The SVG of the map is valid XML and small (contour polygons, not pixels).
     let svg = map.text("image/svg+xml").unwrap();
     assert!(roxmltree::Document::parse(svg).is_ok());

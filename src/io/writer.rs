@@ -156,7 +156,7 @@ fn write_into(path: &Path, fields: &[&Field], options: &WriteOptions) -> Result<
         let dim_refs: Vec<&str> = dims.iter().map(String::as_str).collect();
         let mut v = file.add_variable::<f32>(&f.name, &dim_refs)?;
         v.set_fill_value(FILL_VALUE)?;
-        v.put_attribute("units", f.units.as_str())?;
+        v.put_attribute("units", crate::units::spelling(&f.units).as_str())?;
         v.put_attribute("long_name", f.long_name.as_str())?;
         if let Some(s) = &f.standard_name {
             v.put_attribute("standard_name", s.as_str())?;

@@ -589,7 +589,7 @@ impl Evaluator {
     }
 
     fn is_option_word(&self, function: &str, option: &str) -> bool {
-        matches!((function, option), (_, "route"))
+        matches!((function, option), (_, "route") | ("map", "speed_unit"))
     }
 
     // ----- arithmetic -------------------------------------------------------
@@ -856,6 +856,9 @@ impl Evaluator {
     }
 
     fn convert(&self, v: Value, target: &Unit, text: &str, value_span: Span, unit_span: Span) -> Result<Value> {
+        // Results carry the one spelling of the unit ("K/day" becomes "K day-1").
+        let spelled = crate::units::spelling(text);
+        let text = spelled.as_str();
         let incompatible = |from: &Unit| {
             error(format!("cannot express {} in `{text}`", from.dimension().describe()), unit_span)
                 .with_label(format!("{} expected", target.dimension().describe()))

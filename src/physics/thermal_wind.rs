@@ -77,6 +77,38 @@ pub fn turning(u_bottom: ArrayView3<f32>, v_bottom: ArrayView3<f32>, u_top: Arra
     out
 }
 
+/// Below this speed (m s-1) a turning angle is not reported by default: the
+/// direction of a wind of a few m s-1 is within the noise of an analysis,
+/// and so is the angle between two such winds. Our choice, in line with
+/// common practice of plotting light winds without a direction (about
+/// 5 kt); no single source.
+pub const DEFAULT_WEAK_WIND: f64 = 2.5;
+
+/// Whether the turning across a layer is too weak to be defined: either wind
+/// or the shear between them (the thermal wind for geostrophic winds) is
+/// slower than `threshold` (m s-1), or any component is missing.
+pub fn turning_is_weak(u_bottom: f32, v_bottom: f32, u_top: f32, v_top: f32, threshold: f64) -> bool {
+    let (ub, vb, ut, vt) = (u_bottom as f64, v_bottom as f64, u_top as f64, v_top as f64);
+    let slow = |u: f64, v: f64| !(u.hypot(v) >= threshold);
+    slow(ub, vb) || slow(ut, vt) || slow(ut - ub, vt - vb)
+}
+
+/// Turning angle on whole arrays, NaN where `turning_is_weak` says the
+/// angle is not defined (see `turning_angle` for the sign).
+pub fn turning_where_defined(
+    u_bottom: ArrayView3<f32>,
+    v_bottom: ArrayView3<f32>,
+    u_top: ArrayView3<f32>,
+    v_top: ArrayView3<f32>,
+    threshold: f64,
+) -> Array3<f32> {
+    let mut out = Array3::<f32>::zeros(u_bottom.dim());
+    Zip::from(&mut out).and(u_bottom).and(v_bottom).and(u_top).and(v_top).par_for_each(|o, &ub, &vb, &ut, &vt| {
+        *o = if turning_is_weak(ub, vb, ut, vt, threshold) { f32::NAN } else { turning_angle(ub, vb, ut, vt) }
+    });
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -109,5 +141,45 @@ mod tests {
         // Westerly below, south-westerly above: anticlockwise, backing.
         assert!((turning_angle(1.0, 0.0, 1.0, 1.0) + 45.0).abs() < 1e-4);
         assert!(turning_angle(0.0, 0.0, 1.0, 0.0).is_nan());
+    }
+
+    #[test]
+    fn turning_is_undefined_where_either_wind_or_the_shear_is_weak() {
+        // Analytic case: a westerly of 10 m s-1 at the bottom everywhere; at
+        // the top the same speed turned 30 degrees clockwise (veering:
+        // u = 10 cos 30, v = -10 sin 30) except
+        // in a calm region (top wind 1 m s-1) and a region where the top
+        // wind equals the bottom wind plus 1 m s-1 (weak shear).
+        // Expected: 30 degrees outside, NaN in both regions (definition of
+        // the angle between two vectors; threshold 2.5 m s-1).
+        let n = 12;
+        let ub = ndarray::Array3::<f32>::from_elem((1, n, n), 10.0);
+        let vb = ndarray::Array3::<f32>::zeros((1, n, n));
+        let mut ut = ndarray::Array3::<f32>::from_elem((1, n, n), 10.0 * 30f32.to_radians().cos());
+        let mut vt = ndarray::Array3::<f32>::from_elem((1, n, n), -10.0 * 30f32.to_radians().sin());
+        for j in 0..4 {
+            for i in 0..4 {
+                ut[[0, j, i]] = 1.0; // calm region at the top
+                vt[[0, j, i]] = 0.0;
+                ut[[0, j + 8, i + 8]] = 11.0; // weak shear: speeds up by 1 m s-1
+                vt[[0, j + 8, i + 8]] = 0.0;
+            }
+        }
+        let angle = turning_where_defined(ub.view(), vb.view(), ut.view(), vt.view(), DEFAULT_WEAK_WIND);
+        for j in 0..n {
+            for i in 0..n {
+                let masked = (j < 4 && i < 4) || (j >= 8 && i >= 8);
+                let a = angle[[0, j, i]];
+                if masked {
+                    assert!(a.is_nan(), "({j}, {i}) should be undefined, got {a}");
+                } else {
+                    assert!((a - 30.0).abs() < 1e-3, "({j}, {i}): {a}");
+                }
+            }
+        }
+        // Just above the threshold the angle is defined again.
+        assert!(!turning_is_weak(2.6, 0.0, 0.0, 2.6, 2.5));
+        assert!(turning_is_weak(2.4, 0.0, 0.0, 10.0, 2.5));
+        assert!(turning_is_weak(10.0, 0.0, f32::NAN, 10.0, 2.5));
     }
 }

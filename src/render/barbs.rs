@@ -151,9 +151,13 @@ pub fn barb_shape(
     let mut position = 0.0;
     let mut pennants = Vec::new();
     for _ in 0..counts.pennants {
+        // A pennant is a filled triangle standing on the staff: its base
+        // runs along the staff, its apex sits square off the outer corner
+        // at the length of a full barb's reach, so it reads as a flag.
         let outer = along(position);
         let inner = along(position + pennant_base);
-        pennants.push([outer, slant(outer, feather), inner]);
+        let apex = (outer.0 + feather * 0.866 * side.0, outer.1 + feather * 0.866 * side.1);
+        pennants.push([outer, apex, inner]);
         position += pennant_base + spacing * 0.35;
     }
     if counts.pennants > 0 {
@@ -182,6 +186,126 @@ pub fn barb_shape(
         pennants,
         calm_radius: None,
     })
+}
+
+impl BarbShape {
+    /// Every straight stroke of the barb: the staff, the feathers and the
+    /// pennants' edges (a calm circle as its bounding square's edges).
+    pub fn segments(&self) -> Vec<(ScreenPoint, ScreenPoint)> {
+        let mut out = Vec::new();
+        if let Some(staff) = self.staff {
+            out.push(staff);
+        }
+        out.extend(self.feathers.iter().copied());
+        for t in &self.pennants {
+            out.extend([(t[0], t[1]), (t[1], t[2]), (t[2], t[0])]);
+        }
+        if let Some(r) = self.calm_radius {
+            let (x, y) = self.station;
+            let c = [(x - r, y - r), (x + r, y - r), (x + r, y + r), (x - r, y + r)];
+            out.extend([(c[0], c[1]), (c[1], c[2]), (c[2], c[3]), (c[3], c[0])]);
+        }
+        out
+    }
+
+    /// The smallest box (left, top, right, bottom) holding the whole barb.
+    pub fn bounds(&self) -> (f64, f64, f64, f64) {
+        let mut b = (f64::INFINITY, f64::INFINITY, f64::NEG_INFINITY, f64::NEG_INFINITY);
+        for (p, q) in self.segments() {
+            for (x, y) in [p, q] {
+                b = (b.0.min(x), b.1.min(y), b.2.max(x), b.3.max(y));
+            }
+        }
+        b
+    }
+}
+
+/// Shortest distance between two segments (zero when they cross).
+pub fn segment_distance(a: (ScreenPoint, ScreenPoint), b: (ScreenPoint, ScreenPoint)) -> f64 {
+    let cross = |o: ScreenPoint, p: ScreenPoint, q: ScreenPoint| (p.0 - o.0) * (q.1 - o.1) - (p.1 - o.1) * (q.0 - o.0);
+    let (d1, d2) = (cross(b.0, b.1, a.0), cross(b.0, b.1, a.1));
+    let (d3, d4) = (cross(a.0, a.1, b.0), cross(a.0, a.1, b.1));
+    if d1 * d2 < 0.0 && d3 * d4 < 0.0 {
+        return 0.0;
+    }
+    let point_to = |p: ScreenPoint, s: (ScreenPoint, ScreenPoint)| {
+        let (dx, dy) = (s.1 .0 - s.0 .0, s.1 .1 - s.0 .1);
+        let len2 = dx * dx + dy * dy;
+        let t = if len2 > 0.0 { (((p.0 - s.0 .0) * dx + (p.1 - s.0 .1) * dy) / len2).clamp(0.0, 1.0) } else { 0.0 };
+        ((p.0 - s.0 .0 - t * dx).powi(2) + (p.1 - s.0 .1 - t * dy).powi(2)).sqrt()
+    };
+    point_to(a.0, b).min(point_to(a.1, b)).min(point_to(b.0, a)).min(point_to(b.1, a))
+}
+
+/// Shortest distance between the strokes of two barbs.
+pub fn barb_distance(a: &BarbShape, b: &BarbShape) -> f64 {
+    let (sa, sb) = (a.segments(), b.segments());
+    let mut best = f64::INFINITY;
+    for x in &sa {
+        for y in &sb {
+            best = best.min(segment_distance(*x, *y));
+        }
+    }
+    best
+}
+
+/// One wind to draw: where (screen), the wind (m/s) and the hemisphere.
+#[derive(Debug, Clone, Copy)]
+pub struct BarbCandidate {
+    pub station: ScreenPoint,
+    pub u: f64,
+    pub v: f64,
+    pub hemisphere: Hemisphere,
+}
+
+/// Choose the barbs to draw so that the map reads whatever the grid's
+/// density: candidates are taken in order, and one is kept only if its
+/// station is at least `min_distance` pixels from every kept station, its
+/// whole figure lies inside `frame` (left, top, right, bottom), and none of
+/// its strokes comes within `clearance` pixels of a kept barb's strokes.
+/// Calm and missing winds are kept as circles or dropped as the shape says.
+pub fn place_barbs(
+    candidates: &[BarbCandidate],
+    length: f64,
+    frame: (f64, f64, f64, f64),
+    min_distance: f64,
+    clearance: f64,
+) -> Vec<BarbShape> {
+    // Kept barbs indexed by a coarse screen lattice, so each candidate is
+    // compared only with its neighbours (a barb reaches at most about 1.3
+    // staff lengths from its station).
+    let reach = length * 1.4 + clearance;
+    let cell = (2.0 * reach).max(min_distance).max(1.0);
+    let mut buckets: std::collections::HashMap<(i64, i64), Vec<usize>> = std::collections::HashMap::new();
+    let mut kept: Vec<BarbShape> = Vec::new();
+    for c in candidates {
+        let Some(shape) = barb_shape(c.station, c.u, c.v, c.hemisphere, length) else {
+            continue;
+        };
+        let b = shape.bounds();
+        if !(b.0 >= frame.0 && b.1 >= frame.1 && b.2 <= frame.2 && b.3 <= frame.3) {
+            continue;
+        }
+        let key = ((c.station.0 / cell).floor() as i64, (c.station.1 / cell).floor() as i64);
+        let mut fits = true;
+        'search: for dx in -1..=1 {
+            for dy in -1..=1 {
+                for &k in buckets.get(&(key.0 + dx, key.1 + dy)).map(|v| v.as_slice()).unwrap_or(&[]) {
+                    let other = &kept[k];
+                    let d = (other.station.0 - c.station.0).hypot(other.station.1 - c.station.1);
+                    if d < min_distance || barb_distance(other, &shape) < clearance {
+                        fits = false;
+                        break 'search;
+                    }
+                }
+            }
+        }
+        if fits {
+            buckets.entry(key).or_default().push(kept.len());
+            kept.push(shape);
+        }
+    }
+    kept
 }
 
 /// An arrow in the direction the wind blows TO, centred on the station:
@@ -313,5 +437,85 @@ mod tests {
         );
         let angle = (-(head.1 - tail.1)).atan2(head.0 - tail.0);
         assert!((angle - 4f64.atan2(3.0)).abs() < 1e-12);
+    }
+
+    /// A deterministic scatter of winds (a linear congruential generator,
+    /// Numerical Recipes constants) for the geometry tests.
+    fn scatter(n: usize, seed: u64) -> Vec<f64> {
+        let mut x = seed;
+        (0..n)
+            .map(|_| {
+                x = x.wrapping_mul(1664525).wrapping_add(1013904223) % (1 << 32);
+                x as f64 / (1u64 << 32) as f64
+            })
+            .collect()
+    }
+
+    #[test]
+    fn placed_barbs_stay_inside_the_frame_and_never_touch_each_other() {
+        // Legibility rule of plotted wind (common practice, no source): a
+        // barb is drawn whole inside the chart and apart from its
+        // neighbours. A dense grid (every 4 px, much denser than the
+        // barbs) of winds of every direction and 0..120 kt.
+        let frame = (50.0, 40.0, 650.0, 440.0);
+        let mut candidates = Vec::new();
+        let r = scatter(2 * 160 * 110, 7);
+        for j in 0..110 {
+            for i in 0..160 {
+                let k = 2 * (j * 160 + i);
+                let (speed, angle) = (r[k] * 62.0, r[k + 1] * std::f64::consts::TAU);
+                candidates.push(BarbCandidate {
+                    station: (40.0 + 4.0 * i as f64, 30.0 + 4.0 * j as f64),
+                    u: speed * angle.cos(),
+                    v: speed * angle.sin(),
+                    hemisphere: if j < 55 { Hemisphere::North } else { Hemisphere::South },
+                });
+            }
+        }
+        let length = 24.0;
+        let placed = place_barbs(&candidates, length, frame, 30.0, 2.0);
+        // Enough of them to read the field: at least one per 60 x 60 px.
+        assert!(placed.len() >= (600 * 400) / (60 * 60), "only {} barbs", placed.len());
+        for b in &placed {
+            for (p, q) in b.segments() {
+                for (x, y) in [p, q] {
+                    assert!(x >= frame.0 && x <= frame.2 && y >= frame.1 && y <= frame.3, "({x}, {y}) outside the frame");
+                }
+            }
+        }
+        for (i, a) in placed.iter().enumerate() {
+            for b in &placed[i + 1..] {
+                assert!(barb_distance(a, b) >= 2.0, "barbs at {:?} and {:?} touch", a.station, b.station);
+            }
+        }
+    }
+
+    #[test]
+    fn a_barb_over_the_edge_is_left_out_not_cut() {
+        // A westerly at the left edge: its staff would run west out of the frame.
+        let c = BarbCandidate { station: (55.0, 100.0), u: 20.0, v: 0.0, hemisphere: Hemisphere::North };
+        assert!(place_barbs(&[c], 24.0, (50.0, 40.0, 650.0, 440.0), 30.0, 2.0).is_empty());
+        let inside = BarbCandidate { station: (100.0, 100.0), ..c };
+        assert_eq!(place_barbs(&[inside], 24.0, (50.0, 40.0, 650.0, 440.0), 30.0, 2.0).len(), 1);
+    }
+
+    #[test]
+    fn pennants_are_triangles_standing_on_the_staff() {
+        // WMO plotted-wind practice: a pennant's base lies on the staff.
+        let shape = barb_shape((0.0, 0.0), knots(65.0), 0.0, Hemisphere::North, 30.0).unwrap();
+        let (station, tip) = shape.staff.unwrap();
+        let t = shape.pennants[0];
+        let on_staff = |p: ScreenPoint| ((tip.0 - station.0) * (p.1 - station.1) - (tip.1 - station.1) * (p.0 - station.0)).abs() < 1e-9;
+        assert!(on_staff(t[0]) && on_staff(t[2]) && !on_staff(t[1]));
+        let area = ((t[1].0 - t[0].0) * (t[2].1 - t[0].1) - (t[2].0 - t[0].0) * (t[1].1 - t[0].1)).abs() / 2.0;
+        assert!(area > 10.0, "a visible triangle, area {area}");
+    }
+
+    #[test]
+    fn segment_distance_is_zero_for_crossing_and_the_gap_otherwise() {
+        // Plane geometry.
+        assert_eq!(segment_distance(((0.0, 0.0), (2.0, 2.0)), ((0.0, 2.0), (2.0, 0.0))), 0.0);
+        assert!((segment_distance(((0.0, 0.0), (1.0, 0.0)), ((0.0, 3.0), (1.0, 3.0))) - 3.0).abs() < 1e-12);
+        assert!((segment_distance(((0.0, 0.0), (1.0, 0.0)), ((4.0, 4.0), (4.0, 5.0))) - 5.0).abs() < 1e-12);
     }
 }

@@ -7,7 +7,7 @@ use ndarray::ArrayView2;
 use plotters::prelude::*;
 
 use super::colour::{
-    band_colours, format_value, level_step, line_levels, shading_levels, Levels, Palette, ToRgba,
+    format_value, level_step, line_levels, plan_shading, Levels, Palette, ShadingPlan, ToRgba,
 };
 use super::contouring::{FilledContours, GridField, Isolines};
 use super::frame::{self, Axis, TICK_SIZE};
@@ -140,13 +140,8 @@ impl PreparedCrossSection {
         let range = field.range();
         let (levels, colours, filled, summary) = match range {
             Some((lo, hi)) => {
-                let palette = spec.palette.unwrap_or(if lo < 0.0 && hi > 0.0 {
-                    Palette::BlueWhiteRed
-                } else {
-                    Palette::Viridis
-                });
-                let levels = shading_levels(&spec.levels, lo, hi, palette.is_diverging());
-                let colours = band_colours(&levels, palette);
+                let ShadingPlan { levels, colours, .. } =
+                    plan_shading(&spec.levels, lo, hi, spec.palette, None);
                 let filled = field.filled(&levels)?;
                 let step = level_step(&levels);
                 (
@@ -199,7 +194,7 @@ impl PreparedCrossSection {
             format_value(p_min, 1.0),
             if spec.normal_wind.is_some() {
                 format!(
-                    "; normal wind every {} m/s",
+                    "; normal wind every {} m s-1",
                     format_value(wind_step, wind_step)
                 )
             } else {
@@ -241,14 +236,14 @@ impl Drawable for PreparedCrossSection {
         let (caption_lines, caption_h) = frame::caption_height(p, &self.caption);
         let y_ticks_all = frame::pressure_ticks(self.p_top, self.p_bottom);
         let left = frame::left_margin(p, &y_ticks_all, true);
-        let step = level_step(&self.levels);
-        let widest = self
-            .levels
-            .iter()
-            .map(|l| p.text_extent(&format_value(*l, step), TICK_SIZE).0)
-            .fold(0.0, f64::max);
-        let bar_w =
-            p.px(14.0 + 16.0 + 10.0) + widest + p.text_extent("0", frame::LABEL_SIZE).1 + p.px(8.0);
+        let colour_bar = frame::ColourBar {
+            levels: &self.levels,
+            colours: &self.colours,
+            label: &self.label,
+            over: false,
+            under: false,
+        };
+        let bar_w = colour_bar.width(p, h * 0.6);
         let ends_h = if self.start_label.is_empty() && self.end_label.is_empty() {
             0.0
         } else {
@@ -256,20 +251,8 @@ impl Drawable for PreparedCrossSection {
         };
         let bottom = h - caption_h - frame::bottom_margin(p, true) - ends_h - p.px(4.0);
         let rect = Rect::new(left, top, w - bar_w, bottom);
-        let x_axis = Axis {
-            from: self.x_range.0,
-            to: self.x_range.1,
-            start_px: rect.left,
-            end_px: rect.right,
-            log: false,
-        };
-        let y_axis = Axis {
-            from: self.p_bottom,
-            to: self.p_top,
-            start_px: rect.bottom,
-            end_px: rect.top,
-            log: true,
-        };
+        let x_axis = Axis::across(rect, self.x_range.0, self.x_range.1);
+        let y_axis = Axis::pressure(rect, self.p_bottom, self.p_top);
         // Grid y is -ln(p in hPa).
         let position =
             |&(d, y): &(f64, f64)| -> Pt { (x_axis.position(d), y_axis.position((-y).exp())) };
@@ -363,45 +346,10 @@ impl Drawable for PreparedCrossSection {
             BLACK_INK.rgba(),
             Anchor::TopRight,
         )?;
-        // Colour bar.
-        let n = self.colours.len();
-        if n > 0 {
-            let bar = Rect::new(
-                rect.right + p.px(14.0),
-                rect.top,
-                rect.right + p.px(30.0),
-                rect.bottom,
-            );
-            let box_h = bar.height() / n as f64;
-            for (i, c) in self.colours.iter().enumerate() {
-                let y1 = bar.bottom - i as f64 * box_h;
-                p.fill_rect(Rect::new(bar.left, y1 - box_h, bar.right, y1), *c)?;
-            }
-            p.stroke_rect(bar, BLACK_INK.rgba(), 1.0)?;
-            let label_h = p.text_extent("0", TICK_SIZE).1 + p.px(2.0);
-            let every = ((label_h / box_h).ceil() as usize).max(1);
-            for (i, level) in self.levels.iter().enumerate() {
-                if i % every == 0 {
-                    let y = bar.bottom - i as f64 * box_h;
-                    p.text(
-                        &format_value(*level, step),
-                        (bar.right + p.px(5.0), y),
-                        TICK_SIZE,
-                        BLACK_INK.rgba(),
-                        Anchor::CentreLeft,
-                    )?;
-                }
-            }
-            let name_x =
-                bar.right + p.px(10.0) + widest + p.text_extent("0", frame::LABEL_SIZE).1 / 2.0;
-            let text = p.fit_text(&self.label, frame::LABEL_SIZE, bar.height());
-            p.vertical_text(
-                &text,
-                (name_x, (bar.top + bar.bottom) / 2.0),
-                frame::LABEL_SIZE,
-                BLACK_INK.rgba(),
-            )?;
-        }
+        colour_bar.draw(
+            p,
+            Rect::new(rect.right + p.px(14.0), rect.top, rect.right + p.px(30.0), rect.bottom),
+        )?;
         frame::draw_caption(p, &caption_lines, h - caption_h)?;
         Ok(())
     }
@@ -454,7 +402,7 @@ mod tests {
         spec.normal_wind = Some(wind.view());
         spec.start_label = "Cape Orrin".into();
         spec.end_label = "Hallow Bank".into();
-        spec.caption = "Normal wind every 5 m/s; negative dashed.".into();
+        spec.caption = "Normal wind every 5 m s-1; negative dashed.".into();
         let bundle = render_cross_section(&spec, &FigureSize::new(800, 520)).unwrap();
         roxmltree::Document::parse(bundle.text("image/svg+xml").unwrap()).unwrap();
         let (w, h, _, _) = decode_png(bundle.binary("image/png").unwrap());

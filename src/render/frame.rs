@@ -3,7 +3,7 @@
 
 use plotters::prelude::*;
 
-use super::colour::{format_value, multiples_within, nice_step, ToRgba};
+use super::colour::{format_value, level_step, multiples_within, nice_step, ToRgba};
 use super::painter::{Anchor, Painter, Pt, Rect, BLACK_INK, GREY_INK};
 use super::RenderError;
 
@@ -40,27 +40,30 @@ pub(crate) fn draw_title<DB: DrawingBackend>(
     let (w, _) = p.size();
     let margin = p.px(10.0);
     let mut y = p.px(8.0);
+    // Titles and subtitles wrap onto more lines rather than being cut.
     if !title.is_empty() {
-        let text = p.fit_text(title, TITLE_SIZE, w - 2.0 * margin);
-        p.bold_text(
-            &text,
-            (w / 2.0, y),
-            TITLE_SIZE,
-            BLACK_INK.rgba(),
-            Anchor::TopCentre,
-        )?;
-        y += p.text_extent(&text, TITLE_SIZE).1 + p.px(5.0);
+        for text in p.wrap_text(title, TITLE_SIZE, w - 2.0 * margin) {
+            p.bold_text(
+                &text,
+                (w / 2.0, y),
+                TITLE_SIZE,
+                BLACK_INK.rgba(),
+                Anchor::TopCentre,
+            )?;
+            y += p.text_extent(&text, TITLE_SIZE).1 + p.px(5.0);
+        }
     }
     if !subtitle.is_empty() {
-        let text = p.fit_text(subtitle, SUBTITLE_SIZE, w - 2.0 * margin);
-        p.text(
-            &text,
-            (w / 2.0, y),
-            SUBTITLE_SIZE,
-            GREY_INK.rgba(),
-            Anchor::TopCentre,
-        )?;
-        y += p.text_extent(&text, SUBTITLE_SIZE).1 + p.px(4.0);
+        for text in p.wrap_text(subtitle, SUBTITLE_SIZE, w - 2.0 * margin) {
+            p.text(
+                &text,
+                (w / 2.0, y),
+                SUBTITLE_SIZE,
+                GREY_INK.rgba(),
+                Anchor::TopCentre,
+            )?;
+            y += p.text_extent(&text, SUBTITLE_SIZE).1 + p.px(4.0);
+        }
     }
     Ok(y + p.px(4.0))
 }
@@ -98,6 +101,139 @@ pub(crate) fn draw_caption<DB: DrawingBackend>(
     Ok(())
 }
 
+/// A series drawn as a line with a dot at each valid value, broken where a
+/// value is missing (profiles and time series share it).
+pub(crate) fn draw_marked_line<DB: DrawingBackend>(
+    p: &Painter<'_, DB>,
+    points: impl IntoIterator<Item = Option<Pt>>,
+    colour: RGBAColor,
+) -> Result<(), RenderError> {
+    let mut run: Vec<Pt> = Vec::new();
+    for point in points {
+        match point {
+            Some(at) => {
+                p.circle(at, 2.5, colour, true, 1.0)?;
+                run.push(at);
+            }
+            None => {
+                p.polyline(&run, colour, 1.8)?;
+                run.clear();
+            }
+        }
+    }
+    p.polyline(&run, colour, 1.8)
+}
+
+/// A colour bar beside a shaded chart (maps and cross-sections share it):
+/// one box per band, pointed ends for values beyond the outermost levels,
+/// numbers at the band edges (always including zero), the label wrapped.
+pub(crate) struct ColourBar<'a> {
+    pub levels: &'a [f64],
+    pub colours: &'a [RGBAColor],
+    pub label: &'a str,
+    pub over: bool,
+    pub under: bool,
+}
+
+impl ColourBar<'_> {
+    /// The width the bar, its numbers and its wrapped label take beside a chart.
+    pub(crate) fn width<DB: DrawingBackend>(&self, p: &Painter<'_, DB>, height: f64) -> f64 {
+        if self.colours.is_empty() {
+            return p.px(14.0);
+        }
+        let step = level_step(self.levels);
+        let widest = self
+            .levels
+            .iter()
+            .map(|l| p.text_extent(&format_value(*l, step), TICK_SIZE).0)
+            .fold(0.0, f64::max);
+        let lines = p.wrap_text(self.label, LABEL_SIZE, height).len().max(1) as f64;
+        p.px(14.0 + 16.0 + 6.0) + widest + lines * (p.text_extent("0", LABEL_SIZE).1 + p.px(2.0)) + p.px(10.0)
+    }
+
+    /// Draw the bar in `bar` (the coloured strip), numbers and label to its right.
+    pub(crate) fn draw<DB: DrawingBackend>(&self, p: &Painter<'_, DB>, bar: Rect) -> Result<(), RenderError> {
+    let s = self;
+    let n = s.colours.len();
+    if n == 0 {
+        return Ok(());
+    }
+    let ext = p.px(10.0);
+    let top = bar.top + if s.over { ext } else { 0.0 };
+    let bottom = bar.bottom - if s.under { ext } else { 0.0 };
+    let box_h = (bottom - top) / n as f64;
+    for (i, c) in s.colours.iter().enumerate() {
+        let y1 = bottom - i as f64 * box_h;
+        let y0 = y1 - box_h;
+        p.fill_rect(Rect::new(bar.left, y0, bar.right, y1), *c)?;
+    }
+    // Pointed ends for values beyond the outermost levels.
+    if s.over {
+        let tri = [
+            (bar.left, top),
+            (bar.right, top),
+            ((bar.left + bar.right) / 2.0, bar.top),
+        ];
+        p.polygon(&tri, s.colours[n - 1])?;
+        p.polyline(&[tri[0], tri[2], tri[1]], BLACK_INK.rgba(), 1.0)?;
+    }
+    if s.under {
+        let tri = [
+            (bar.left, bottom),
+            (bar.right, bottom),
+            ((bar.left + bar.right) / 2.0, bar.bottom),
+        ];
+        p.polygon(&tri, s.colours[0])?;
+        p.polyline(&[tri[0], tri[2], tri[1]], BLACK_INK.rgba(), 1.0)?;
+    }
+    p.stroke_rect(
+        Rect::new(bar.left, top, bar.right, bottom),
+        BLACK_INK.rgba(),
+        1.0,
+    )?;
+    let step = level_step(s.levels);
+    let label_h = p.text_extent("0", TICK_SIZE).1 + p.px(2.0);
+    let every = ((label_h / box_h).ceil() as usize).max(1);
+    let mut widest: f64 = 0.0;
+    for (i, level) in s.levels.iter().enumerate() {
+        let y = bottom - i as f64 * box_h;
+        p.line(
+            (bar.right, y),
+            (bar.right + p.px(3.0), y),
+            BLACK_INK.rgba(),
+            1.0,
+        )?;
+        // Label every `every`-th level, always including zero for signed fields.
+        let zero_index = s.levels.iter().position(|l| *l == 0.0);
+        let anchor = zero_index.unwrap_or(0);
+        if (i as i64 - anchor as i64).rem_euclid(every as i64) == 0 {
+            let text = format_value(*level, step);
+            widest = widest.max(p.text_extent(&text, TICK_SIZE).0);
+            p.text(
+                &text,
+                (bar.right + p.px(5.0), y),
+                TICK_SIZE,
+                BLACK_INK.rgba(),
+                Anchor::CentreLeft,
+            )?;
+        }
+    }
+    // The label is wrapped, never cut: one vertical line per piece.
+    let line_h = p.text_extent("0", LABEL_SIZE).1 + p.px(2.0);
+    let name_x = bar.right + p.px(10.0) + widest + line_h / 2.0;
+    for (i, text) in p.wrap_text(s.label, LABEL_SIZE, bar.height()).iter().enumerate() {
+        p.vertical_text(
+            text,
+            (name_x + i as f64 * line_h, (bar.top + bar.bottom) / 2.0),
+            LABEL_SIZE,
+            BLACK_INK.rgba(),
+        )?;
+    }
+    Ok(())
+    }
+}
+
+
 /// A value axis mapped onto a pixel interval.
 #[derive(Debug, Clone, Copy)]
 pub(crate) struct Axis {
@@ -112,6 +248,22 @@ pub(crate) struct Axis {
 }
 
 impl Axis {
+    /// A linear axis along the chart's width, `from` at the left edge.
+    pub fn across(rect: Rect, from: f64, to: f64) -> Axis {
+        Axis { from, to, start_px: rect.left, end_px: rect.right, log: false }
+    }
+
+    /// A linear axis up the chart's height, `from` at the bottom edge.
+    pub fn up(rect: Rect, from: f64, to: f64) -> Axis {
+        Axis { from, to, start_px: rect.bottom, end_px: rect.top, log: false }
+    }
+
+    /// A pressure axis up the chart, logarithmic, the bottom pressure at the
+    /// bottom edge (pressure increases downward, as the atmosphere stands).
+    pub fn pressure(rect: Rect, bottom: f64, top: f64) -> Axis {
+        Axis { from: bottom, to: top, start_px: rect.bottom, end_px: rect.top, log: true }
+    }
+
     pub fn position(self, v: f64) -> f64 {
         let (a, b, x) = if self.log {
             (self.from.ln(), self.to.ln(), v.ln())

@@ -148,7 +148,7 @@ impl PreparedHodograph {
         let top = geostrophic[geostrophic.len() - 1];
         let shear = ((top.u - bottom.u).powi(2) + (top.v - bottom.v).powi(2)).sqrt();
         let description = format!(
-            "Hodograph \"{}\"{}: geostrophic wind at {} levels from {} to {} hPa, {}-{} hPa shear {} m/s{}.",
+            "Hodograph \"{}\"{}: geostrophic wind at {} levels from {} to {} hPa, {}-{} hPa shear {} m s-1{}.",
             spec.title,
             if spec.location.is_empty() { String::new() } else { format!(" at {}", spec.location) },
             geostrophic.len(),
@@ -257,7 +257,7 @@ impl Drawable for PreparedHodograph {
             for run in clip_polyline(&circle, &rect) {
                 p.polyline(&run, grid, 1.0)?;
             }
-            let text = format!("{} m/s", format_value(r, ring_step));
+            let text = format!("{} m s-1", format_value(r, ring_step));
             for dir in &label_dirs {
                 let at = position(r * dir.0, r * dir.1);
                 let b = p.text_box(&text, at, SMALL_SIZE, Anchor::Centre);
@@ -283,20 +283,8 @@ impl Drawable for PreparedHodograph {
             RGBAColor(0, 0, 0, 0.45),
             1.0,
         )?;
-        let x_axis = frame::Axis {
-            from: u_lo,
-            to: u_hi,
-            start_px: rect.left,
-            end_px: rect.right,
-            log: false,
-        };
-        let y_axis = frame::Axis {
-            from: v_lo,
-            to: v_hi,
-            start_px: rect.bottom,
-            end_px: rect.top,
-            log: false,
-        };
+        let x_axis = frame::Axis::across(rect, u_lo, u_hi);
+        let y_axis = frame::Axis::up(rect, v_lo, v_hi);
         let x_ticks = frame::linear_ticks(u_lo, u_hi, 8);
         let y_ticks = frame::linear_ticks(v_lo, v_hi, 8);
         frame::draw_axes(
@@ -306,8 +294,8 @@ impl Drawable for PreparedHodograph {
             &y_axis,
             &x_ticks,
             &y_ticks,
-            "u, eastward (m/s)",
-            "v, northward (m/s)",
+            "u, eastward (m s-1)",
+            "v, northward (m s-1)",
             false,
         )?;
 

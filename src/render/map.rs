@@ -11,10 +11,12 @@
 use ndarray::ArrayView2;
 use plotters::prelude::*;
 
-use super::barbs::{arrow_shape, barb_shape, Hemisphere, METRES_PER_SECOND_PER_KNOT};
+use super::barbs::{
+    arrow_shape, barb_shape, place_barbs, BarbCandidate, Hemisphere, METRES_PER_SECOND_PER_KNOT,
+};
 use super::colour::{
-    band_colours, format_value, level_step, line_levels, nice_step, shading_levels, Levels,
-    Palette, ToRgba,
+    format_value, level_step, line_levels, nice_step, plan_shading, Levels, Palette, ShadingPlan,
+    ToRgba,
 };
 use super::contouring::{FilledContours, GridField, Isolines, Path};
 use super::frame::{self, dashes, SMALL_SIZE, TICK_SIZE};
@@ -29,9 +31,16 @@ pub struct ShadedLayer<'a> {
     pub name: String,
     pub units: String,
     pub levels: Levels,
-    /// None: diverging (blue-white-red) when the data take both signs,
-    /// sequential (viridis) otherwise.
+    /// None: diverging (blue to copper) when the data take both signs,
+    /// sequential (slate to straw) otherwise.
     pub palette: Option<Palette>,
+    /// Half-width of the white band around zero of a signed field, as a
+    /// fraction of the largest magnitude; None takes
+    /// `colour::DEFAULT_NEUTRAL_FRACTION`.
+    pub neutral_fraction: Option<f64>,
+    /// What missing values mean here, for the legend ("missing data" when
+    /// empty; "weak wind" where an angle between winds is undefined).
+    pub missing_label: String,
 }
 
 impl<'a> ShadedLayer<'a> {
@@ -46,7 +55,17 @@ impl<'a> ShadedLayer<'a> {
             units: units.into(),
             levels: Levels::Auto,
             palette: None,
+            neutral_fraction: None,
+            missing_label: String::new(),
         }
+    }
+    pub fn neutral_fraction(mut self, fraction: f64) -> Self {
+        self.neutral_fraction = Some(fraction);
+        self
+    }
+    pub fn missing_label(mut self, text: impl Into<String>) -> Self {
+        self.missing_label = text.into();
+        self
     }
     pub fn levels(mut self, levels: Levels) -> Self {
         self.levels = levels;
@@ -73,6 +92,11 @@ pub struct ContourLayer<'a> {
     pub dash_negative: bool,
     /// Write each line's value on it.
     pub labels: bool,
+    /// Draw every line dashed (thickness lines, by the trade's habit).
+    pub dash_all: bool,
+    /// Colour lines about a reference value: (reference, colour at and
+    /// above it, colour below it); the reference is named in the legend.
+    pub reference: Option<(f64, (u8, u8, u8), (u8, u8, u8))>,
 }
 
 impl<'a> ContourLayer<'a> {
@@ -89,7 +113,18 @@ impl<'a> ContourLayer<'a> {
             colour: None,
             dash_negative: true,
             labels: true,
+            dash_all: false,
+            reference: None,
         }
+    }
+    pub fn dashed(mut self) -> Self {
+        self.dash_all = true;
+        self
+    }
+    /// Warm colour for lines at and above `reference`, cold below.
+    pub fn about(mut self, reference: f64, warm: (u8, u8, u8), cold: (u8, u8, u8)) -> Self {
+        self.reference = Some((reference, warm, cold));
+        self
     }
     pub fn every(mut self, interval: f64) -> Self {
         self.levels = Levels::Interval(interval);
@@ -146,6 +181,10 @@ pub struct VectorLayer<'a> {
     pub style: VectorStyle,
     /// Minimum distance between drawn vectors in CSS pixels.
     pub spacing: f64,
+    /// The unit the barb key also states its marks in, so barbs and the
+    /// shading read on one scale: its spelling and how many m/s one of it
+    /// is (e.g. ("m s-1", 1.0)); None states knots only.
+    pub key_unit: Option<(String, f64)>,
 }
 
 impl<'a> VectorLayer<'a> {
@@ -156,6 +195,7 @@ impl<'a> VectorLayer<'a> {
             name: name.into(),
             style: VectorStyle::Barbs,
             spacing: 40.0,
+            key_unit: None,
         }
     }
     pub fn arrows(u: ArrayView2<'a, f32>, v: ArrayView2<'a, f32>, name: impl Into<String>) -> Self {
@@ -165,10 +205,15 @@ impl<'a> VectorLayer<'a> {
             name: name.into(),
             style: VectorStyle::Arrows { reference: None },
             spacing: 30.0,
+            key_unit: None,
         }
     }
     pub fn spacing(mut self, css_pixels: f64) -> Self {
         self.spacing = css_pixels;
+        self
+    }
+    pub fn key_unit(mut self, spelling: impl Into<String>, metres_per_second: f64) -> Self {
+        self.key_unit = Some((spelling.into(), metres_per_second));
         self
     }
 }
@@ -419,6 +464,9 @@ struct PreparedShading {
     colours: Vec<RGBAColor>,
     filled: FilledContours,
     missing: bool,
+    missing_label: String,
+    /// Half-width of the white band around zero, if any.
+    neutral: Option<f64>,
     under: bool,
     over: bool,
 }
@@ -431,6 +479,8 @@ struct PreparedLines {
     colour: RGBAColor,
     dash_negative: bool,
     labels: bool,
+    dash_all: bool,
+    reference: Option<(f64, RGBAColor, RGBAColor)>,
 }
 
 struct PreparedVectors {
@@ -440,6 +490,7 @@ struct PreparedVectors {
     u: Vec<f64>,
     v: Vec<f64>,
     spacing: f64,
+    key_unit: Option<(String, f64)>,
 }
 
 pub(crate) struct PreparedMap {
@@ -495,26 +546,24 @@ impl PreparedMap {
                             colours: Vec::new(),
                             filled: field.filled(&[])?,
                             missing: true,
+                            missing_label: missing_label_of(layer),
+                            neutral: None,
                             under: false,
                             over: false,
                         })
                     }
                     Some((lo, hi)) => {
-                        let palette = layer.palette.unwrap_or(if lo < 0.0 && hi > 0.0 {
-                            Palette::BlueWhiteRed
-                        } else {
-                            Palette::Viridis
-                        });
-                        let levels = shading_levels(&layer.levels, lo, hi, palette.is_diverging());
-                        let colours = band_colours(&levels, palette);
+                        let ShadingPlan { levels, colours, palette, neutral } =
+                            plan_shading(&layer.levels, lo, hi, layer.palette, layer.neutral_fraction);
                         let filled = field.filled(&levels)?;
                         let step = level_step(&levels);
                         described.push(format!(
-                            "shaded {} from {} to {} {}",
+                            "shaded {} from {} to {} {} ({} colour table)",
                             layer.name,
                             format_value(lo, step / 10.0),
                             format_value(hi, step / 10.0),
-                            layer.units
+                            layer.units,
+                            palette.name()
                         ));
                         Some(PreparedShading {
                             label: label_of(&layer.name, &layer.units),
@@ -524,6 +573,8 @@ impl PreparedMap {
                             colours,
                             filled,
                             missing,
+                            missing_label: missing_label_of(layer),
+                            neutral,
                         })
                     }
                 }
@@ -565,6 +616,10 @@ impl PreparedMap {
                 colour: RGBAColor(r, g, b, 1.0),
                 dash_negative: layer.dash_negative,
                 labels: layer.labels,
+                dash_all: layer.dash_all,
+                reference: layer.reference.map(|(r, w, c)| {
+                    (r, RGBAColor(w.0, w.1, w.2, 1.0), RGBAColor(c.0, c.1, c.2, 1.0))
+                }),
             });
         }
 
@@ -599,6 +654,7 @@ impl PreparedMap {
                     u,
                     v,
                     spacing: layer.spacing.clamp(8.0, 400.0),
+                    key_unit: layer.key_unit.clone(),
                 })
             }
         };
@@ -623,7 +679,17 @@ impl PreparedMap {
             subtitle_parts.push(spec.subtitle.clone());
         }
         if let Some(s) = &shading {
-            subtitle_parts.push(format!("shaded: {}", s.label));
+            subtitle_parts.push(match s.neutral {
+                Some(w) => format!(
+                    "shaded: {}, white within ±{} {}",
+                    s.label,
+                    format_value(w, nice_step(w, 10)),
+                    spec.shading.as_ref().map(|l| l.units.as_str()).unwrap_or("")
+                )
+                .trim()
+                .to_string(),
+                None => format!("shaded: {}", s.label),
+            });
         }
         for l in lines.iter().filter(|l| l.name != COASTLINE) {
             subtitle_parts.push(
@@ -653,6 +719,14 @@ impl PreparedMap {
             vectors,
             description,
         })
+    }
+}
+
+fn missing_label_of(layer: &ShadedLayer<'_>) -> String {
+    if layer.missing_label.trim().is_empty() {
+        "missing data".to_string()
+    } else {
+        layer.missing_label.clone()
     }
 }
 
@@ -731,27 +805,26 @@ impl Drawable for PreparedMap {
         let (w, h) = p.size();
         let top = frame::draw_title(p, &self.title, &self.subtitle)?;
         let (caption_lines, caption_h) = frame::caption_height(p, &self.caption);
-        let key_h = if self.vectors.is_some() || self.shading.as_ref().is_some_and(|s| s.missing) {
+        let key_h = if self.vectors.is_some()
+            || self.shading.as_ref().is_some_and(|s| s.missing)
+            || self.lines.iter().any(|l| l.reference.is_some())
+        {
             p.text_extent("Ag", SMALL_SIZE).1 + p.px(18.0)
         } else {
             0.0
         };
         let tick_h = p.text_extent("0", TICK_SIZE).1;
         let left_w = p.text_extent("88°N", TICK_SIZE).0 + p.px(14.0);
-        let colour_bar_w = match &self.shading {
-            Some(s) if !s.levels.is_empty() => {
-                let step = level_step(&s.levels);
-                let widest = s
-                    .levels
-                    .iter()
-                    .map(|l| p.text_extent(&format_value(*l, step), TICK_SIZE).0)
-                    .fold(0.0, f64::max);
-                p.px(14.0 + 16.0 + 6.0)
-                    + widest
-                    + p.text_extent("0", frame::LABEL_SIZE).1
-                    + p.px(10.0)
-            }
-            _ => p.px(14.0),
+        let colour_bar = self.shading.as_ref().map(|s| frame::ColourBar {
+            levels: &s.levels,
+            colours: &s.colours,
+            label: &s.label,
+            over: s.over,
+            under: s.under,
+        });
+        let colour_bar_w = match &colour_bar {
+            Some(bar) => bar.width(p, (h - top - caption_h - key_h - tick_h) * 0.9),
+            None => p.px(14.0),
         };
         let avail = Rect::new(
             left_w,
@@ -822,25 +895,33 @@ impl Drawable for PreparedMap {
         let mut labels: Vec<(String, Pt, RGBAColor)> = Vec::new();
         for layer in &self.lines {
             for (li, iso) in layer.isolines.iter().enumerate() {
-                let dashed = layer.dash_negative && iso.level < 0.0;
-                let width = if iso.level == 0.0 && layer.dash_negative {
-                    1.8
-                } else {
-                    1.2
+                let dashed = layer.dash_all || (layer.dash_negative && iso.level < 0.0);
+                let (colour, width) = match layer.reference {
+                    Some((r, warm, cold)) => (
+                        if iso.level >= r { warm } else { cold },
+                        if (iso.level - r).abs() < 1e-9 * r.abs().max(1.0) { 2.2 } else { 1.3 },
+                    ),
+                    None if iso.level == 0.0 && layer.dash_negative => (layer.colour, 1.8),
+                    None => (layer.colour, 1.2),
                 };
                 for line in &iso.lines {
                     let pts = frame.path_px(line);
+                    // Each line on a thin pale casing, so it reads over
+                    // dark and light bands alike.
+                    let casing = RGBAColor(255, 255, 255, 0.55);
                     if dashed {
-                        for run in dashes(&pts, p.px(6.0), p.px(4.0)) {
-                            p.polyline(&run, layer.colour, width)?;
+                        for run in dashes(&pts, p.px(7.0), p.px(4.0)) {
+                            p.polyline(&run, casing, width + 1.6)?;
+                            p.polyline(&run, colour, width)?;
                         }
                     } else {
-                        p.polyline(&pts, layer.colour, width)?;
+                        p.polyline(&pts, casing, width + 1.6)?;
+                        p.polyline(&pts, colour, width)?;
                     }
                     if layer.labels {
                         let text = format_value(iso.level, layer.step);
                         for at in frame::label_positions(p, &pts, &text, rect, &mut occupied, li) {
-                            labels.push((text.clone(), at, layer.colour));
+                            labels.push((text.clone(), at, colour));
                         }
                     }
                 }
@@ -901,34 +982,50 @@ impl Drawable for PreparedMap {
             )?;
         }
 
+        let mut key_x = rect.left;
         if let Some(s) = &self.shading {
-            draw_colour_bar(
-                p,
-                s,
-                Rect::new(
-                    rect.right + p.px(14.0),
-                    rect.top,
-                    rect.right + p.px(30.0),
-                    rect.bottom,
-                ),
-            )?;
+            if let Some(bar) = &colour_bar {
+                bar.draw(
+                    p,
+                    Rect::new(
+                        rect.right + p.px(14.0),
+                        rect.top,
+                        rect.right + p.px(30.0),
+                        rect.bottom,
+                    ),
+                )?;
+            }
             if s.missing {
                 let y = rect.bottom + tick_h + p.px(20.0);
                 let swatch = Rect::new(
-                    rect.left,
+                    key_x,
                     y - p.px(6.0),
-                    rect.left + p.px(22.0),
+                    key_x + p.px(22.0),
                     y + p.px(6.0),
                 );
                 p.hatch(swatch)?;
                 p.stroke_rect(swatch, GREY_INK.rgba(), 1.0)?;
-                p.text(
-                    "missing data",
-                    (swatch.right + p.px(5.0), (swatch.top + swatch.bottom) / 2.0),
-                    SMALL_SIZE,
-                    BLACK_INK.rgba(),
-                    Anchor::CentreLeft,
-                )?;
+                let at = (swatch.right + p.px(5.0), (swatch.top + swatch.bottom) / 2.0);
+                p.text(&s.missing_label, at, SMALL_SIZE, BLACK_INK.rgba(), Anchor::CentreLeft)?;
+                key_x = at.0 + p.text_extent(&s.missing_label, SMALL_SIZE).0 + p.px(14.0);
+            }
+        }
+        // Lines coloured about a reference: a dashed swatch of each colour.
+        for layer in &self.lines {
+            if let Some((r, warm, cold)) = layer.reference {
+                let y = rect.bottom + tick_h + p.px(20.0);
+                let value = format_value(r, layer.step);
+                for (colour, text) in [
+                    (warm, format!("{value} {} and above", layer.units)),
+                    (cold, format!("below {value} {}", layer.units)),
+                ] {
+                    for run in dashes(&[(key_x, y), (key_x + p.px(22.0), y)], p.px(7.0), p.px(4.0)) {
+                        p.polyline(&run, colour, 1.6)?;
+                    }
+                    let at = (key_x + p.px(27.0), y);
+                    p.text(&text, at, SMALL_SIZE, BLACK_INK.rgba(), Anchor::CentreLeft)?;
+                    key_x = at.0 + p.text_extent(&text, SMALL_SIZE).0 + p.px(12.0);
+                }
             }
         }
         frame::draw_caption(p, &caption_lines, h - caption_h)?;
@@ -971,18 +1068,38 @@ impl PreparedMap {
         let ink = BLACK_INK.rgba();
         match v.style {
             VectorStyle::Barbs => {
-                let length = spacing * 0.7;
-                for &(at, u, vv, lat) in &samples {
-                    if let Some(shape) = barb_shape(at, u, vv, Hemisphere::of_latitude(lat), length)
-                    {
-                        draw_barb(p, &shape, ink)?;
-                    }
+                // Whole barbs only, inside the frame, none touching another.
+                let length = spacing * 0.6;
+                let candidates: Vec<BarbCandidate> = samples
+                    .iter()
+                    .map(|&(at, u, vv, lat)| BarbCandidate {
+                        station: at,
+                        u,
+                        v: vv,
+                        hemisphere: Hemisphere::of_latitude(lat),
+                    })
+                    .collect();
+                let r = frame.rect.inflate(-p.px(1.0));
+                for shape in place_barbs(&candidates, length, (r.left, r.top, r.right, r.bottom), spacing * 0.75, p.px(1.5)) {
+                    draw_barb(p, &shape, ink)?;
                 }
-                // Key: a 65-kt example barb and the meaning of each mark.
-                let text = "barbs in knots: pennant 50, full barb 10, half barb 5";
+                // Key: a 65-kt example barb and the meaning of each mark, also
+                // in the shading's unit when that is not knots.
+                let text = match &v.key_unit {
+                    Some((unit, per)) if *per > 0.0 && (per - METRES_PER_SECOND_PER_KNOT).abs() > 1e-9 => {
+                        let in_unit = |kt: f64| format_value(kt * METRES_PER_SECOND_PER_KNOT / per, 0.1);
+                        format!(
+                            "barbs: pennant 50 kt ({} {unit}), full barb 10 kt ({} {unit}), half barb 5 kt ({} {unit})",
+                            in_unit(50.0),
+                            in_unit(10.0),
+                            in_unit(5.0)
+                        )
+                    }
+                    _ => "barbs in kt: pennant 50, full barb 10, half barb 5".to_string(),
+                };
                 let right = frame.rect.right;
-                let tw = p.text_extent(text, SMALL_SIZE).0;
-                p.text(text, (right, key_y), SMALL_SIZE, ink, Anchor::CentreRight)?;
+                let tw = p.text_extent(&text, SMALL_SIZE).0;
+                p.text(&text, (right, key_y), SMALL_SIZE, ink, Anchor::CentreRight)?;
                 // A westerly: the staff runs west from the station, away from the text.
                 let station = (right - tw - p.px(8.0), key_y);
                 if let Some(shape) = barb_shape(
@@ -1024,7 +1141,7 @@ impl PreparedMap {
                 }
                 let right = frame.rect.right;
                 let label = format!(
-                    "{} m/s",
+                    "{} m s-1",
                     format_value(reference, reference / 10.0)
                         .trim_end_matches('0')
                         .trim_end_matches('.')
@@ -1068,86 +1185,6 @@ fn draw_arrow<DB: DrawingBackend>(
 ) -> Result<(), RenderError> {
     p.line(tail, head, ink, 1.2)?;
     p.polygon(&[head, left, right], ink)
-}
-
-fn draw_colour_bar<DB: DrawingBackend>(
-    p: &Painter<'_, DB>,
-    s: &PreparedShading,
-    bar: Rect,
-) -> Result<(), RenderError> {
-    let n = s.colours.len();
-    if n == 0 {
-        return Ok(());
-    }
-    let ext = p.px(10.0);
-    let top = bar.top + if s.over { ext } else { 0.0 };
-    let bottom = bar.bottom - if s.under { ext } else { 0.0 };
-    let box_h = (bottom - top) / n as f64;
-    for (i, c) in s.colours.iter().enumerate() {
-        let y1 = bottom - i as f64 * box_h;
-        let y0 = y1 - box_h;
-        p.fill_rect(Rect::new(bar.left, y0, bar.right, y1), *c)?;
-    }
-    // Pointed ends for values beyond the outermost levels.
-    if s.over {
-        let tri = [
-            (bar.left, top),
-            (bar.right, top),
-            ((bar.left + bar.right) / 2.0, bar.top),
-        ];
-        p.polygon(&tri, s.colours[n - 1])?;
-        p.polyline(&[tri[0], tri[2], tri[1]], BLACK_INK.rgba(), 1.0)?;
-    }
-    if s.under {
-        let tri = [
-            (bar.left, bottom),
-            (bar.right, bottom),
-            ((bar.left + bar.right) / 2.0, bar.bottom),
-        ];
-        p.polygon(&tri, s.colours[0])?;
-        p.polyline(&[tri[0], tri[2], tri[1]], BLACK_INK.rgba(), 1.0)?;
-    }
-    p.stroke_rect(
-        Rect::new(bar.left, top, bar.right, bottom),
-        BLACK_INK.rgba(),
-        1.0,
-    )?;
-    let step = level_step(&s.levels);
-    let label_h = p.text_extent("0", TICK_SIZE).1 + p.px(2.0);
-    let every = ((label_h / box_h).ceil() as usize).max(1);
-    let mut widest: f64 = 0.0;
-    for (i, level) in s.levels.iter().enumerate() {
-        let y = bottom - i as f64 * box_h;
-        p.line(
-            (bar.right, y),
-            (bar.right + p.px(3.0), y),
-            BLACK_INK.rgba(),
-            1.0,
-        )?;
-        // Label every `every`-th level, always including zero for signed fields.
-        let zero_index = s.levels.iter().position(|l| *l == 0.0);
-        let anchor = zero_index.unwrap_or(0);
-        if (i as i64 - anchor as i64).rem_euclid(every as i64) == 0 {
-            let text = format_value(*level, step);
-            widest = widest.max(p.text_extent(&text, TICK_SIZE).0);
-            p.text(
-                &text,
-                (bar.right + p.px(5.0), y),
-                TICK_SIZE,
-                BLACK_INK.rgba(),
-                Anchor::CentreLeft,
-            )?;
-        }
-    }
-    let name_x = bar.right + p.px(10.0) + widest + p.text_extent("0", frame::LABEL_SIZE).1 / 2.0;
-    let text = p.fit_text(&s.label, frame::LABEL_SIZE, bar.height());
-    p.vertical_text(
-        &text,
-        (name_x, (bar.top + bar.bottom) / 2.0),
-        frame::LABEL_SIZE,
-        BLACK_INK.rgba(),
-    )?;
-    Ok(())
 }
 
 #[cfg(test)]

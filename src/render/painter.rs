@@ -583,24 +583,6 @@ impl<'a, DB: DrawingBackend> Painter<'a, DB> {
         Rect::new(left, top, left + w, top + h)
     }
 
-    /// A line of text shortened with an ellipsis to fit `max_width` device pixels.
-    pub fn fit_text(&self, text: &str, size_css: f64, max_width: f64) -> String {
-        if self.text_extent(text, size_css).0 <= max_width {
-            return text.to_string();
-        }
-        // Measure at most a few hundred characters: no figure line is wider.
-        let chars: Vec<char> = text.chars().take(400).collect();
-        let mut n = chars.len();
-        while n > 1 {
-            n -= 1;
-            let candidate: String = chars[..n].iter().collect::<String>() + "…";
-            if self.text_extent(&candidate, size_css).0 <= max_width {
-                return candidate;
-            }
-        }
-        "…".to_string()
-    }
-
     /// Greedy word wrap to lines no wider than `max_width` device pixels.
     pub fn wrap_text(&self, text: &str, size_css: f64, max_width: f64) -> Vec<String> {
         let mut lines = Vec::new();

@@ -7,7 +7,7 @@ use plotters::prelude::*;
 
 use super::colour::ToRgba;
 use super::frame::{self, series_colour, Axis, Swatch, TICK_SIZE};
-use super::painter::{Painter, Pt, Rect};
+use super::painter::{Painter, Rect};
 use super::{bundle_of, Drawable, FigureSize, RenderError};
 use crate::mime::MimeBundle;
 
@@ -137,21 +137,8 @@ impl Drawable for PreparedProfile {
         let left = frame::left_margin(p, &y_ticks_all, true);
         let bottom = h - caption_h - frame::bottom_margin(p, true) - p.px(4.0);
         let rect = Rect::new(left, top, w - p.px(16.0), bottom);
-        let x_axis = Axis {
-            from: self.x_range.0,
-            to: self.x_range.1,
-            start_px: rect.left,
-            end_px: rect.right,
-            log: false,
-        };
-        // Pressure increases downward: the bottom pressure at the bottom edge.
-        let y_axis = Axis {
-            from: self.p_bottom,
-            to: self.p_top,
-            start_px: rect.bottom,
-            end_px: rect.top,
-            log: true,
-        };
+        let x_axis = Axis::across(rect, self.x_range.0, self.x_range.1);
+        let y_axis = Axis::pressure(rect, self.p_bottom, self.p_top);
         let x_ticks = frame::linear_ticks(self.x_range.0, self.x_range.1, 6);
         let y_ticks =
             frame::thin_ticks(y_ticks_all, &y_axis, p.text_extent("0", TICK_SIZE).1 * 1.3);
@@ -183,18 +170,10 @@ impl Drawable for PreparedProfile {
                 .zip(s.values.iter().copied())
                 .collect();
             levels.sort_by(|a, b| b.0.total_cmp(&a.0));
-            let mut run: Vec<Pt> = Vec::new();
-            for (pr, v) in levels {
-                if v.is_finite() {
-                    let at = (x_axis.position(v), y_axis.position(pr / 100.0));
-                    p.circle(at, 2.5, colour, true, 1.0)?;
-                    run.push(at);
-                } else {
-                    p.polyline(&run, colour, 1.8)?;
-                    run.clear();
-                }
-            }
-            p.polyline(&run, colour, 1.8)?;
+            let points = levels.into_iter().map(|(pr, v)| {
+                v.is_finite().then(|| (x_axis.position(v), y_axis.position(pr / 100.0)))
+            });
+            frame::draw_marked_line(p, points, colour)?;
             entries.push((s.name.clone(), colour, Swatch::Line { dashed: false }));
         }
         frame::draw_legend(p, rect, &entries, false)?;

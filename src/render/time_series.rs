@@ -5,7 +5,7 @@ use plotters::prelude::*;
 
 use super::colour::ToRgba;
 use super::frame::{self, series_colour, Axis, Swatch, Tick, TICK_SIZE};
-use super::painter::{Painter, Pt, Rect};
+use super::painter::{Painter, Rect};
 use super::{bundle_of, Drawable, FigureSize, RenderError};
 use crate::mime::MimeBundle;
 
@@ -121,20 +121,8 @@ impl Drawable for PreparedTimeSeries {
         let rect = Rect::new(left, top, w - p.px(20.0), bottom);
         let n = self.spec.times.len();
         let pad = 0.5;
-        let x_axis = Axis {
-            from: -pad,
-            to: (n - 1) as f64 + pad,
-            start_px: rect.left,
-            end_px: rect.right,
-            log: false,
-        };
-        let y_axis = Axis {
-            from: self.y_range.0,
-            to: self.y_range.1,
-            start_px: rect.bottom,
-            end_px: rect.top,
-            log: false,
-        };
+        let x_axis = Axis::across(rect, -pad, (n - 1) as f64 + pad);
+        let y_axis = Axis::up(rect, self.y_range.0, self.y_range.1);
         // Label as many times as fit side by side.
         let widest = self
             .spec
@@ -164,18 +152,10 @@ impl Drawable for PreparedTimeSeries {
         let mut entries = Vec::new();
         for (si, s) in self.spec.series.iter().enumerate() {
             let colour = series_colour(si);
-            let mut run: Vec<Pt> = Vec::new();
-            for (i, &v) in s.values.iter().enumerate() {
-                if v.is_finite() {
-                    let at = (x_axis.position(i as f64), y_axis.position(v));
-                    p.circle(at, 2.5, colour, true, 1.0)?;
-                    run.push(at);
-                } else {
-                    p.polyline(&run, colour, 1.8)?;
-                    run.clear();
-                }
-            }
-            p.polyline(&run, colour, 1.8)?;
+            let points = s.values.iter().enumerate().map(|(i, &v)| {
+                v.is_finite().then(|| (x_axis.position(i as f64), y_axis.position(v)))
+            });
+            frame::draw_marked_line(p, points, colour)?;
             entries.push((s.name.clone(), colour, Swatch::Line { dashed: false }));
         }
         frame::draw_legend(p, rect, &entries, false)?;
@@ -208,7 +188,7 @@ mod tests {
                 ),
             ],
             quantity: "speed".into(),
-            units: "m/s".into(),
+            units: "m s-1".into(),
             ..Default::default()
         };
         let bundle = render_time_series(&spec, &FigureSize::new(760, 420)).unwrap();
