@@ -448,8 +448,8 @@ pub fn format_summary(rows: &[SiteSummary], layer: crate::diagnostics::Layer, ti
         };
         table.push(vec![
             r.site.clone(),
-            crate::lang::eval::format_latitude(r.latitude),
-            crate::lang::eval::format_longitude(r.longitude),
+            crate::text::format_latitude(r.latitude),
+            crate::text::format_longitude(r.longitude),
             format!("{:.1}", r.thickness / 10.0),
             format!("{:.2}", r.mean_temperature),
             format!("{:.1}", r.thermal_wind_speed),

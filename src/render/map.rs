@@ -157,6 +157,8 @@ pub fn coastline_layer(mask: ArrayView2<'_, f32>) -> ContourLayer<'_> {
         levels: Levels::Explicit(vec![0.5]),
         colour: Some((60, 60, 60)),
         dash_negative: false,
+        dash_all: false,
+        reference: None,
         labels: false,
     }
 }
