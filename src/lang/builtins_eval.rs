@@ -241,13 +241,20 @@ pub fn call_builtin(
             wrap_vector(case.geostrophic_wind_of(&f, kind, &at))
         }
         "thickness" | "layer_mean_temperature" | "thermal_wind" | "ageostrophic_shear" => {
-            let allowed: &[&str] = if name == "thermal_wind" || name == "ageostrophic_shear" { &["route", "equator_band"] } else { &["route"] };
+            let allowed: &[&str] = if name == "thermal_wind" || name == "ageostrophic_shear" { &["route", "equator_band", "integration"] } else { &["route", "integration"] };
             options.allow(name, allowed)?;
             args.count(1, "1000 hPa to 500 hPa")?;
             let layer = args.layer(0)?;
             let (word, word_span) = options.word("route").map_or((None, span), |(w, s)| (Some(w), s));
             let route = thickness_route(word, word_span)?;
-            let case = case_of(ev, options.equator_band()?)?;
+            let mut case = case_of(ev, options.equator_band()?)?;
+            case.integration = match options.word("integration") {
+                None | Some(("quadratic", _)) => crate::physics::vertical::IntegrationRule::Quadratic,
+                Some(("trapezoid", _)) => crate::physics::vertical::IntegrationRule::Trapezoid,
+                Some((other, word_span)) => {
+                    return Err(error(format!("`{other}` is not an integration rule"), word_span).with_help("integration rules: quadratic (the default), trapezoid"))
+                }
+            };
             match name {
                 "thickness" => wrap(case.thickness(layer, route)),
                 "layer_mean_temperature" => wrap(case.layer_mean_temperature(layer, route)),

@@ -565,7 +565,7 @@ impl Evaluator {
     }
 
     fn is_option_word(&self, function: &str, option: &str) -> bool {
-        matches!((function, option), (_, "route"))
+        matches!((function, option), (_, "route") | (_, "integration"))
     }
 
     // ----- arithmetic -------------------------------------------------------
