@@ -208,3 +208,25 @@ fn each_time_step_run_in_parallel_equals_one_run() {
     }
     assert_eq!(whole.results.len(), 2);
 }
+
+#[test]
+fn audit_in_the_language_gives_the_commands_verdict() {
+    // The demo's heights are the hydrostatic integral of its virtual
+    // temperature (hypsometric equation, field guide), so the audit passes;
+    // a selection in time restricts what is audited.
+    let mut s = session();
+    match value(&mut s, "audit()") {
+        Value::Text(text) => {
+            assert!(text.contains("pass: heights and temperature agree hydrostatically"), "{text}");
+            assert!(text.contains("not a warning service"));
+            assert!(text.contains("2026-10-15T00:00:00"));
+        }
+        other => panic!("{}", other.kind()),
+    }
+    match value(&mut s, "audit() at time(0)") {
+        Value::Text(text) => assert!(!text.contains("2026-10-15T00:00:00") && text.contains("2026-10-14T00:00:00"), "{text}"),
+        other => panic!("{}", other.kind()),
+    }
+    let err = s.run("audit() with integration simpson", None).unwrap_err();
+    assert!(err.rendered.contains("trapezoid"), "{}", err.rendered);
+}

@@ -59,13 +59,14 @@ pub const NAMES: &[&str] = &[
     "panels",
     "write_report",
     "print",
+    "audit",
 ];
 
 /// The operators that present rather than compute (pictures, tables,
 /// printing, the recipe library, reports). They are not in the checker's
 /// table of operators (`builtins::BUILTINS`): they accept values of many
 /// kinds and check them when they run.
-pub const PRESENTATION: &[&str] = &["recipes", "save_recipe", "map", "hodograph", "profile", "section", "time_series", "panels", "write_report", "print"];
+pub const PRESENTATION: &[&str] = &["recipes", "save_recipe", "map", "hodograph", "profile", "section", "time_series", "panels", "write_report", "print", "audit"];
 
 /// Options every picture takes: its size in CSS pixels and the PNG's
 /// resolution.
@@ -458,6 +459,21 @@ pub fn call_builtin(
                 labels,
                 rows: stats.iter().map(|s| vec![s.weighted_mean, s.minimum, s.maximum, s.valid_points as f64, s.missing_points as f64]).collect(),
             }))
+        }
+        "audit" => {
+            // The balance audit of the open dataset (times and region as
+            // selected); the work and its presentation live in `crate::audit`.
+            options.allow(name, &["integration"])?;
+            args.count(0, "")?;
+            let case = case_of(ev, None)?;
+            let mut settings = crate::audit::AuditSettings { equator_band: case.equator_band, constants: case.constants, ..crate::audit::AuditSettings::default() };
+            match options.word("integration") {
+                None | Some(("trapezoid", _)) => {}
+                Some(("quadratic", _)) => settings.integration = crate::physics::vertical::IntegrationRule::Quadratic,
+                Some((other, word_span)) => return Err(error(format!("`{other}` is not an integration rule"), word_span).with_help("integration rules: trapezoid (the audit's default), quadratic")),
+            }
+            let report = crate::audit::present::audit_case(&case, &settings).map_err(|e| error(e.to_string(), span))?;
+            Ok(Value::Text(crate::audit::present::format(&report, crate::audit::present::AuditFormat::Text)))
         }
         "recipes" => {
             options.allow(name, &[])?;
