@@ -288,26 +288,48 @@ impl Case {
             ThicknessRoute::Temperature | ThicknessRoute::DryTemperature => {
                 let t_name = self.role_name(Role::Temperature)?;
                 let levels = self.levels_of(&t_name)?;
-                let weights = vertical::layer_integral_weights_by(&levels, layer.bottom, layer.top, self.integration)?;
-                let (t, w) = self.read_weighted(&t_name, &weights)?;
-                let humidity = match route {
+                let humidity_name = match route {
                     ThicknessRoute::Temperature => match self.dataset.find_role(Role::SpecificHumidity) {
-                        Some(q) if q.levels.as_ref().is_some_and(|l| *l == levels) => {
-                            let q_name = q.name.clone();
-                            Some(self.read_weighted(&q_name, &weights)?.0)
-                        }
+                        Some(q) if q.levels.as_ref().is_some_and(|l| *l == levels) => Some(q.name.clone()),
                         _ => None,
                     },
                     _ => None,
                 };
                 let factor = c.dry_air_gas_constant / c.gravity;
-                let (data, method) = match &humidity {
-                    Some(q) => (
-                        vertical::apply_weights_with(t.data.view(), Some(q.data.view()), &w, factor, vertical::virtual_temperature),
-                        format!("hypsometric integral of virtual temperature in ln p, {}", self.integration.describe()),
-                    ),
-                    None => (vertical::apply_weights(t.data.view(), &w, factor), format!("hypsometric integral of temperature in ln p, {}", self.integration.describe())),
+                // Reads the levels a rule needs and integrates over them.
+                let integrate = |weights: &vertical::LevelWeights| -> Result<(Array3<f32>, Field)> {
+                    let (t, w) = self.read_weighted(&t_name, weights)?;
+                    let data = match &humidity_name {
+                        Some(q_name) => {
+                            let q = self.read_weighted(q_name, weights)?.0;
+                            vertical::apply_weights_with(t.data.view(), Some(q.data.view()), &w, factor, vertical::virtual_temperature)
+                        }
+                        None => vertical::apply_weights(t.data.view(), &w, factor),
+                    };
+                    Ok((data, t))
                 };
+                let what = if humidity_name.is_some() { "virtual temperature" } else { "temperature" };
+                let weights = vertical::layer_integral_weights_by(&levels, layer.bottom, layer.top, self.integration)?;
+                let (mut data, t) = integrate(&weights)?;
+                let mut method = format!("hypsometric integral of {what} in ln p, {}", self.integration.describe());
+                // The quadratic rule reaches one level beyond the layer; where
+                // that level is missing (humidity not reported aloft, a gap)
+                // the trapezoid over the layer's own levels takes over, for
+                // the whole time step so that no map mixes the two rules
+                // (their small difference would show as a step).
+                if self.integration == vertical::IntegrationRule::Quadratic && data.iter().any(|x| x.is_nan()) {
+                    let (fallback, _) = integrate(&vertical::layer_integral_weights(&levels, layer.bottom, layer.top)?)?;
+                    let mut steps = 0usize;
+                    for (mut slice, other) in data.outer_iter_mut().zip(fallback.outer_iter()) {
+                        if slice.iter().zip(other.iter()).any(|(d, f)| d.is_nan() && !f.is_nan()) {
+                            slice.assign(&other);
+                            steps += 1;
+                        }
+                    }
+                    if steps > 0 {
+                        method.push_str(&format!("; the trapezoid rule at {steps} time step(s) where a level the quadratic reaches beyond the layer is missing"));
+                    }
+                }
                 (data, t, method)
             }
             ThicknessRoute::Geopotential => {

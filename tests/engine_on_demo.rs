@@ -267,3 +267,21 @@ fn a_region_reads_only_its_box() {
     let v2 = baroc::diagnostics::point_values(&full, 50.0, -30.0).unwrap();
     assert_eq!(v1, v2);
 }
+
+#[test]
+fn a_missing_level_beyond_the_layer_does_not_spoil_it() {
+    // The demo reports no humidity at 200 hPa. The 300-250 hPa layer's own
+    // levels are complete, so its thickness exists everywhere (missing data
+    // spoil only what needs them; field guide, "Grids and numerics"): the
+    // quadratic rule, which reaches to 200 hPa, gives way to the trapezoid
+    // over the layer's levels and the metadata say so. Thickness of a
+    // 50 hPa layer near 275 hPa at about 220 K: (Rd/g0) 220 ln(300/250)
+    // ~ 1174 m (hypsometric equation).
+    let case = demo_case();
+    let dz = case.thickness(Layer::new(30000.0, 25000.0).0, ThicknessRoute::Temperature).unwrap();
+    let finite = dz.data.iter().filter(|x| x.is_finite()).count();
+    assert!(finite as f64 > 0.99 * dz.data.len() as f64, "{finite} of {}", dz.data.len());
+    assert!(dz.data.iter().filter(|x| x.is_finite()).all(|&x| (1000.0..1350.0).contains(&x)));
+    let method = dz.attributes.iter().find(|(k, _)| k == "method").map(|(_, v)| v.clone()).unwrap();
+    assert!(method.contains("trapezoid rule at 5 time step(s)"), "{method}");
+}
