@@ -179,29 +179,46 @@ impl Case {
         let mut data = vertical::apply_weights(z.data.view(), &zw, 1.0);
         let mut method = plan.method.clone();
         if let (Some(weights), Some((t_name, t_levels))) = (&plan.temperature, &temperature) {
-            let (t, tw) = self.read_weighted(t_name, weights)?;
-            let humidity = match self.dataset.find_role(Role::SpecificHumidity) {
-                Some(q) if q.levels.as_ref() == Some(t_levels) => {
-                    let q_name = q.name.clone();
-                    Some(self.read_weighted(&q_name, weights)?.0)
-                }
-                _ => None,
-            };
             let c = &self.constants;
             let per_kelvin = match kind {
                 GeopotentialKind::Geopotential => c.dry_air_gas_constant,
                 GeopotentialKind::Height => c.dry_air_gas_constant / c.gravity,
             };
-            let integral = match &humidity {
-                Some(q) => vertical::apply_weights_with(t.data.view(), Some(q.data.view()), &tw, per_kelvin, vertical::virtual_temperature),
-                None => vertical::apply_weights(t.data.view(), &tw, per_kelvin),
+            let q_name = match self.dataset.find_role(Role::SpecificHumidity) {
+                Some(q) if q.levels.as_ref() == Some(t_levels) => Some(q.name.clone()),
+                _ => None,
             };
+            let integral_of = |weights: &vertical::LevelWeights| -> Result<Array3<f32>> {
+                let (t, tw) = self.read_weighted(t_name, weights)?;
+                Ok(match &q_name {
+                    Some(q_name) => {
+                        let q = self.read_weighted(q_name, weights)?.0;
+                        vertical::apply_weights_with(t.data.view(), Some(q.data.view()), &tw, per_kelvin, vertical::virtual_temperature_where_known)
+                    }
+                    None => vertical::apply_weights(t.data.view(), &tw, per_kelvin),
+                })
+            };
+            let mut integral = integral_of(weights)?;
             if integral.dim() != data.dim() {
                 return Err(DiagnosticError::Unsupported(format!("`{name}` and `{t_name}` are not on the same grid and times, so heights cannot be interpolated hydrostatically")));
             }
+            // As in `thickness`: where a level the quadratic reaches is
+            // missing, the temperature linear in ln p between the bracketing
+            // levels takes over for that time step.
+            if self.integration == vertical::IntegrationRule::Quadratic && integral.iter().any(|x| x.is_nan()) {
+                let linear = vertical::geopotential_plan(&z_levels, Some(t_levels), pressure, vertical::IntegrationRule::Trapezoid)?;
+                if let Some(linear_weights) = &linear.temperature {
+                    let fallback = integral_of(linear_weights)?;
+                    for (mut slice, other) in integral.outer_iter_mut().zip(fallback.outer_iter()) {
+                        if slice.iter().zip(other.iter()).any(|(d, f)| d.is_nan() && !f.is_nan()) {
+                            slice.assign(&other);
+                        }
+                    }
+                }
+            }
             data += &integral;
             if let vertical::GeopotentialInterpolation::Hydrostatic { virtual_temperature, .. } = &mut method {
-                *virtual_temperature = humidity.is_some();
+                *virtual_temperature = q_name.is_some();
             }
         }
         if mask_below_ground {

@@ -285,3 +285,24 @@ fn a_missing_level_beyond_the_layer_does_not_spoil_it() {
     let method = dz.attributes.iter().find(|(k, _)| k == "method").map(|(_, v)| v.clone()).unwrap();
     assert!(method.contains("trapezoid rule at 5 time step(s)"), "{method}");
 }
+
+#[test]
+fn heights_between_the_top_levels_exist_although_humidity_is_missing_aloft() {
+    // 225 hPa lies between the demo's 250 and 200 hPa levels; humidity is not
+    // reported at 200 hPa, so the hydrostatic interpolation uses the
+    // temperature itself there (humidity aloft is negligible). The height must lie
+    // between the two levels' heights (height grows as pressure falls).
+    let case = demo_case();
+    let z = case.geopotential_at(22500.0, false).unwrap();
+    let (below, above) = (case.geopotential_at(25000.0, false).unwrap(), case.geopotential_at(20000.0, false).unwrap());
+    let mut checked = 0;
+    for ((&m, &b), &a) in z.data.iter().zip(below.data.iter()).zip(above.data.iter()) {
+        // Only the demo's gap of missing temperature at 250 hPa (a dozen
+        // points) may leave a height missing.
+        if m.is_finite() {
+            assert!(m > b && m < a, "{b} < {m} < {a}");
+            checked += 1;
+        }
+    }
+    assert!(checked as f64 > 0.99 * z.data.len() as f64, "{checked} of {}", z.data.len());
+}

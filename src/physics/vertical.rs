@@ -382,6 +382,18 @@ pub fn virtual_temperature(temperature: f64, specific_humidity: f64) -> f64 {
     temperature * (1.0 + 0.608 * specific_humidity)
 }
 
+/// Virtual temperature where the humidity is known, the temperature itself
+/// where it is missing (NaN): humidity is often not reported aloft, where
+/// its effect (0.608 q T, a few hundredths of a kelvin) is negligible.
+#[inline]
+pub fn virtual_temperature_where_known(temperature: f64, specific_humidity: f64) -> f64 {
+    if specific_humidity.is_finite() {
+        virtual_temperature(temperature, specific_humidity)
+    } else {
+        temperature
+    }
+}
+
 /// Virtual temperature from mixing ratio r (kg/kg):
 /// Tv = T (1 + r/epsilon) / (1 + r)   (field guide).
 #[inline]
