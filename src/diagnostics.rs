@@ -6,7 +6,7 @@
 
 use std::sync::Arc;
 
-use ndarray::{Array3, Array4};
+use ndarray::{Array3, Array4, Zip};
 
 use crate::constants::Constants;
 use crate::grid::{Field, VectorField};
@@ -91,16 +91,19 @@ pub struct Case {
     pub equator_band: f64,
     /// Time steps and region to read; levels are chosen per diagnostic.
     pub selection: Selection,
+    /// How the hypsometric integral runs over ln p (quadratic by default;
+    /// the trapezoid for comparison with older results).
+    pub integration: vertical::IntegrationRule,
 }
 
 impl Case {
     pub fn new(dataset: Arc<Dataset>) -> Self {
-        Self { dataset, constants: Constants::default(), equator_band: DEFAULT_EQUATOR_BAND, selection: Selection::default() }
+        Self { dataset, constants: Constants::default(), equator_band: DEFAULT_EQUATOR_BAND, selection: Selection::default(), integration: vertical::IntegrationRule::default() }
     }
 
     /// The same case restricted to other times or another region.
     pub fn with_selection(&self, selection: Selection) -> Case {
-        Case { dataset: self.dataset.clone(), constants: self.constants, equator_band: self.equator_band, selection }
+        Case { dataset: self.dataset.clone(), constants: self.constants, equator_band: self.equator_band, selection, integration: self.integration }
     }
 
     fn selection_with_levels(&self, levels: Option<Vec<f64>>) -> Selection {
@@ -137,6 +140,11 @@ impl Case {
     /// points are NaN when the data hold surface pressure and
     /// `mask_below_ground` is set.
     pub fn at_pressure(&self, name: &str, pressure: f64, mask_below_ground: bool) -> Result<Field> {
+        if let Ok((geopotential, _)) = self.geopotential_source() {
+            if self.dataset.resolve(name)?.name == geopotential {
+                return self.geopotential_at(pressure, mask_below_ground);
+            }
+        }
         let levels = self.levels_of(name)?;
         let weights = vertical::interpolation_weights(&levels, pressure)?;
         let (field, weights) = self.read_weighted(name, &weights)?;
@@ -150,6 +158,79 @@ impl Case {
         out.long_name = field.long_name.clone();
         out.standard_name = field.standard_name.clone();
         out.attributes.push(("pressure_level".into(), format!("{} hPa", trim(pressure / 100.0))));
+        Ok(out)
+    }
+
+    /// Geopotential (or geopotential height, whichever the data hold) at a
+    /// pressure, interpolated hydrostatically between data levels: the
+    /// hypsometric integral of (virtual) temperature from the nearest data
+    /// level (field guide, "Formulas": dPhi/d(ln p) = -Rd Tv), or, without
+    /// temperature on levels covering the pressure, the piecewise quadratic
+    /// in ln p. The result's `vertical_interpolation` attribute says which.
+    pub fn geopotential_at(&self, pressure: f64, mask_below_ground: bool) -> Result<Field> {
+        let (name, kind) = self.geopotential_source()?;
+        let z_levels = self.levels_of(&name)?;
+        let temperature = match self.dataset.find_role(Role::Temperature) {
+            Some(t) => t.levels.clone().map(|l| (t.name.clone(), l)),
+            None => None,
+        };
+        let plan = vertical::geopotential_plan(&z_levels, temperature.as_ref().map(|t| t.1.as_slice()), pressure, self.integration)?;
+        let (z, zw) = self.read_weighted(&name, &plan.geopotential)?;
+        let mut data = vertical::apply_weights(z.data.view(), &zw, 1.0);
+        let mut method = plan.method.clone();
+        if let (Some(weights), Some((t_name, t_levels))) = (&plan.temperature, &temperature) {
+            let c = &self.constants;
+            let per_kelvin = match kind {
+                GeopotentialKind::Geopotential => c.dry_air_gas_constant,
+                GeopotentialKind::Height => c.dry_air_gas_constant / c.gravity,
+            };
+            let q_name = match self.dataset.find_role(Role::SpecificHumidity) {
+                Some(q) if q.levels.as_ref() == Some(t_levels) => Some(q.name.clone()),
+                _ => None,
+            };
+            let integral_of = |weights: &vertical::LevelWeights| -> Result<Array3<f32>> {
+                let (t, tw) = self.read_weighted(t_name, weights)?;
+                Ok(match &q_name {
+                    Some(q_name) => {
+                        let q = self.read_weighted(q_name, weights)?.0;
+                        vertical::apply_weights_with(t.data.view(), Some(q.data.view()), &tw, per_kelvin, vertical::virtual_temperature_where_known)
+                    }
+                    None => vertical::apply_weights(t.data.view(), &tw, per_kelvin),
+                })
+            };
+            let mut integral = integral_of(weights)?;
+            if integral.dim() != data.dim() {
+                return Err(DiagnosticError::Unsupported(format!("`{name}` and `{t_name}` are not on the same grid and times, so heights cannot be interpolated hydrostatically")));
+            }
+            // As in `thickness`: where a level the quadratic reaches is
+            // missing, the temperature linear in ln p between the bracketing
+            // levels takes over for that time step.
+            if self.integration == vertical::IntegrationRule::Quadratic && integral.iter().any(|x| x.is_nan()) {
+                let linear = vertical::geopotential_plan(&z_levels, Some(t_levels), pressure, vertical::IntegrationRule::Trapezoid)?;
+                if let Some(linear_weights) = &linear.temperature {
+                    let fallback = integral_of(linear_weights)?;
+                    for (mut slice, other) in integral.outer_iter_mut().zip(fallback.outer_iter()) {
+                        if slice.iter().zip(other.iter()).any(|(d, f)| d.is_nan() && !f.is_nan()) {
+                            slice.assign(&other);
+                        }
+                    }
+                }
+            }
+            data += &integral;
+            if let vertical::GeopotentialInterpolation::Hydrostatic { virtual_temperature, .. } = &mut method {
+                *virtual_temperature = q_name.is_some();
+            }
+        }
+        if mask_below_ground {
+            if let Some(ps) = self.surface_pressure()? {
+                vertical::mask_below_ground(&mut data, ps.data.index_axis(ndarray::Axis(1), 0), pressure);
+            }
+        }
+        let mut out = z.derived_without_levels(&z.name, &z.units, expand(data)).map_err(DiagnosticError::Unsupported)?;
+        out.long_name = z.long_name.clone();
+        out.standard_name = z.standard_name.clone();
+        out.attributes.push(("pressure_level".into(), format!("{} hPa", trim(pressure / 100.0))));
+        out.attributes.push(("vertical_interpolation".into(), method.describe()));
         Ok(out)
     }
 
@@ -224,41 +305,63 @@ impl Case {
             ThicknessRoute::Temperature | ThicknessRoute::DryTemperature => {
                 let t_name = self.role_name(Role::Temperature)?;
                 let levels = self.levels_of(&t_name)?;
-                let weights = vertical::layer_integral_weights(&levels, layer.bottom, layer.top)?;
-                let (t, w) = self.read_weighted(&t_name, &weights)?;
-                let humidity = match route {
+                let humidity_name = match route {
                     ThicknessRoute::Temperature => match self.dataset.find_role(Role::SpecificHumidity) {
-                        Some(q) if q.levels.as_ref().is_some_and(|l| *l == levels) => {
-                            let q_name = q.name.clone();
-                            Some(self.read_weighted(&q_name, &weights)?.0)
-                        }
+                        Some(q) if q.levels.as_ref().is_some_and(|l| *l == levels) => Some(q.name.clone()),
                         _ => None,
                     },
                     _ => None,
                 };
                 let factor = c.dry_air_gas_constant / c.gravity;
-                let (data, method) = match &humidity {
-                    Some(q) => (
-                        vertical::apply_weights_with(t.data.view(), Some(q.data.view()), &w, factor, vertical::virtual_temperature),
-                        "hypsometric integral of virtual temperature in ln p",
-                    ),
-                    None => (vertical::apply_weights(t.data.view(), &w, factor), "hypsometric integral of temperature in ln p"),
+                // Reads the levels a rule needs and integrates over them.
+                let integrate = |weights: &vertical::LevelWeights| -> Result<(Array3<f32>, Field)> {
+                    let (t, w) = self.read_weighted(&t_name, weights)?;
+                    let data = match &humidity_name {
+                        Some(q_name) => {
+                            let q = self.read_weighted(q_name, weights)?.0;
+                            vertical::apply_weights_with(t.data.view(), Some(q.data.view()), &w, factor, vertical::virtual_temperature)
+                        }
+                        None => vertical::apply_weights(t.data.view(), &w, factor),
+                    };
+                    Ok((data, t))
                 };
+                let what = if humidity_name.is_some() { "virtual temperature" } else { "temperature" };
+                let weights = vertical::layer_integral_weights_by(&levels, layer.bottom, layer.top, self.integration)?;
+                let (mut data, t) = integrate(&weights)?;
+                let mut method = format!("hypsometric integral of {what} in ln p, {}", self.integration.describe());
+                // The quadratic rule reaches one level beyond the layer; where
+                // that level is missing (humidity not reported aloft, a gap)
+                // the trapezoid over the layer's own levels takes over, for
+                // the whole time step so that no map mixes the two rules
+                // (their small difference would show as a step).
+                if self.integration == vertical::IntegrationRule::Quadratic && data.iter().any(|x| x.is_nan()) {
+                    let (fallback, _) = integrate(&vertical::layer_integral_weights(&levels, layer.bottom, layer.top)?)?;
+                    let mut steps = 0usize;
+                    for (mut slice, other) in data.outer_iter_mut().zip(fallback.outer_iter()) {
+                        if slice.iter().zip(other.iter()).any(|(d, f)| d.is_nan() && !f.is_nan()) {
+                            slice.assign(&other);
+                            steps += 1;
+                        }
+                    }
+                    if steps > 0 {
+                        method.push_str(&format!("; the trapezoid rule at {steps} time step(s) where a level the quadratic reaches beyond the layer is missing"));
+                    }
+                }
                 (data, t, method)
             }
             ThicknessRoute::Geopotential => {
-                let (name, kind) = self.geopotential_source()?;
-                let levels = self.levels_of(&name)?;
-                let mut weights = vertical::interpolation_weights(&levels, layer.top)?;
-                for (k, w) in vertical::interpolation_weights(&levels, layer.bottom)?.terms {
-                    weights.terms.push((k, -w));
-                }
-                let (z, w) = self.read_weighted(&name, &weights)?;
+                let (_, kind) = self.geopotential_source()?;
+                let (top, bottom) = (self.geopotential_at(layer.top, false)?, self.geopotential_at(layer.bottom, false)?);
                 let to_metres = match kind {
                     GeopotentialKind::Geopotential => 1.0 / c.gravity,
                     GeopotentialKind::Height => 1.0,
                 };
-                (vertical::apply_weights(z.data.view(), &w, to_metres), z, "difference of geopotential height at the layer boundaries")
+                let data = Zip::from(top.horizontal_slices()).and(bottom.horizontal_slices()).map_collect(|&a, &b| ((a as f64 - b as f64) * to_metres) as f32);
+                let how = |f: &Field| f.attributes.iter().find(|(k, _)| k == "vertical_interpolation").map(|(_, v)| v.clone()).unwrap_or_default();
+                let method = format!("difference of geopotential height at the layer boundaries (top: {}; bottom: {})", how(&top), how(&bottom));
+                let mut template = top;
+                template.attributes.retain(|(k, _)| k != "vertical_interpolation" && k != "pressure_level");
+                (data, template, method)
             }
         };
         Ok(template

@@ -74,6 +74,12 @@ pub fn draw(request: &FigureRequest) -> Result<MimeBundle, Diagnostic> {
         }
         FigureContent::Section { field, wind, from, to } => section(field, wind.as_deref(), *from, *to, &figure_size(options, FigureSize::new(900, 520))?).map_err(failed),
         FigureContent::TimeSeries { series } => time_series(series, &figure_size(options, FigureSize::new(800, 420))?).map_err(failed),
+        FigureContent::Audit { case, settings } => {
+            let report = crate::audit::present::audit_case(case, settings).map_err(|e| Diagnostic::error(e.to_string(), request.span))?;
+            let mut bundle = MimeBundle::plain(crate::audit::present::format(&report, crate::audit::present::AuditFormat::Text));
+            bundle.insert_text("application/json", crate::audit::present::format(&report, crate::audit::present::AuditFormat::Json));
+            Ok(bundle)
+        }
         FigureContent::Panels { figures } => {
             allow(operator, options, &["columns"])?;
             let columns = match options.iter().find(|o| o.name == "columns") {

@@ -7,6 +7,7 @@
 //! of the language; `diagnostics` applies it to fields read through `io`.
 
 pub mod atomic;
+pub mod audit;
 pub mod calendar;
 pub mod constants;
 pub mod demo;

@@ -32,6 +32,12 @@ enum Format {
     Json,
 }
 
+#[derive(Clone, Copy, ValueEnum)]
+enum Integration {
+    Quadratic,
+    Trapezoid,
+}
+
 #[derive(Subcommand)]
 enum Command {
     /// Write the built-in demonstration case, print its thermal-wind summary and write its report.
@@ -100,6 +106,33 @@ enum Command {
         regions: Vec<String>,
         #[arg(long, value_enum, default_value = "text")]
         format: Format,
+    },
+    /// Audit a dataset's balance: hydrostatic residual per layer, thermal-wind residual by latitude band, geostrophic departure per level, plausibility, and a verdict naming likely causes.
+    #[command(after_help = "Examples (on the demo case):\n  baroc audit baroc-demo/marrowind-wave-2026-10-14.nc\n  baroc audit --strict --max-hydrostatic-rms 2 --report audit.html baroc-demo/marrowind-wave-2026-10-14.nc\n\nWith --strict the exit status is 1 when any check passes its limit.")]
+    Audit {
+        /// One or more NetCDF files, combined into one dataset.
+        #[arg(required = true)]
+        files: Vec<PathBuf>,
+        #[arg(long, value_enum, default_value = "text")]
+        format: Format,
+        /// Exit with status 1 when any check passes its limit.
+        #[arg(long)]
+        strict: bool,
+        /// Limit of the RMS hydrostatic residual of any layer (m).
+        #[arg(long, value_name = "METRES", default_value_t = baroc::audit::Thresholds::default().hydrostatic_rms_metres)]
+        max_hydrostatic_rms: f64,
+        /// Limit of the RMS thermal-wind residual of any layer and latitude band (m/s).
+        #[arg(long, value_name = "M/S", default_value_t = baroc::audit::Thresholds::default().thermal_wind_rms)]
+        max_thermal_wind_rms: f64,
+        /// Limit of the RMS geostrophic departure at any level (m/s).
+        #[arg(long, value_name = "M/S", default_value_t = baroc::audit::Thresholds::default().geostrophic_rms)]
+        max_geostrophic_rms: f64,
+        /// Integrate temperature over ln p by the trapezoid (default: each layer's residual depends on its two levels only) or the piecewise quadratic.
+        #[arg(long, value_enum, default_value = "trapezoid")]
+        integration: Integration,
+        /// Also write a self-contained HTML audit report.
+        #[arg(long, value_name = "FILE.html")]
+        report: Option<PathBuf>,
     },
     /// The Jupyter kernel: run it (Jupyter does, from kernel.json), install or uninstall its kernelspec.
     #[command(after_help = "Examples:\n  baroc kernel install --user\n  jupyter lab   # then pick the Baroc kernel\n  baroc kernel uninstall --user")]
@@ -213,6 +246,16 @@ fn main() -> ExitCode {
         Command::Merge { output, shards, accept_gaps_and_overlaps } => merge(output, shards, accept_gaps_and_overlaps),
         Command::Table { program, points, regions, format } => table(program, points, regions, format),
         Command::Kernel { connection_file, action } => kernel(connection_file, action),
+        Command::Audit { files, format, strict, max_hydrostatic_rms, max_thermal_wind_rms, max_geostrophic_rms, integration, report } => {
+            let thresholds = baroc::audit::Thresholds { hydrostatic_rms_metres: max_hydrostatic_rms, thermal_wind_rms: max_thermal_wind_rms, geostrophic_rms: max_geostrophic_rms };
+            match audit(&files, format, thresholds, integration, report.as_deref()) {
+                Ok(passed) if strict && !passed => {
+                    eprintln!("the audit failed (--strict): see the verdict");
+                    return ExitCode::FAILURE;
+                }
+                other => other.map(|_| ()),
+            }
+        }
     };
     match result {
         Ok(()) => ExitCode::SUCCESS,
@@ -377,4 +420,37 @@ fn demo(output: &Path, time_step: Option<usize>) -> Result<(), String> {
     }
     out(&format!("\n{CAUTION}\n"));
     Ok(())
+}
+
+/// `baroc audit`: reads, audits, prints, optionally writes the HTML report;
+/// returns whether every check passed.
+fn audit(files: &[PathBuf], format: Format, thresholds: baroc::audit::Thresholds, integration: Integration, report: Option<&Path>) -> Result<bool, String> {
+    use baroc::audit::present::{self, AuditFormat};
+    for limit in [thresholds.hydrostatic_rms_metres, thresholds.thermal_wind_rms, thresholds.geostrophic_rms] {
+        if !(limit.is_finite() && limit > 0.0) {
+            return Err(format!("error: a limit must be a positive number, got {limit}"));
+        }
+    }
+    let dataset = Arc::new(Dataset::open(files).map_err(|e| format!("error: {e}"))?);
+    let settings = baroc::audit::AuditSettings {
+        thresholds,
+        integration: match integration {
+            Integration::Quadratic => baroc::physics::vertical::IntegrationRule::Quadratic,
+            Integration::Trapezoid => baroc::physics::vertical::IntegrationRule::Trapezoid,
+        },
+        ..baroc::audit::AuditSettings::default()
+    };
+    let result = present::audit_case(&Case::new(dataset), &settings).map_err(|e| format!("error: {e}"))?;
+    let format = match format {
+        Format::Text => AuditFormat::Text,
+        Format::Csv => AuditFormat::Csv,
+        Format::Json => AuditFormat::Json,
+    };
+    out(&present::format(&result, format));
+    if let Some(path) = report {
+        let names: Vec<String> = files.iter().map(|f| f.display().to_string()).collect();
+        present::write_html_report(&result, &names, &settings, path).map_err(|e| format!("error: {e}"))?;
+        eprintln!("wrote the audit report to {}", path.display());
+    }
+    Ok(result.passed())
 }

@@ -36,9 +36,12 @@ fn max_abs_difference(a: &ndarray::Array4<f32>, b: &ndarray::Array4<f32>) -> (f3
 #[test]
 fn both_thermal_wind_routes_agree_on_a_hydrostatic_case() {
     // The demo's geopotential is the hydrostatic integral of its virtual
-    // temperature (trapezoid in ln p, as Baroc integrates), so the thickness
-    // route and the mean-temperature route must agree up to the packing of
-    // geopotential into shorts (scale ~ 2 m2 s-2, about 0.1 m of height).
+    // temperature (trapezoid in ln p), so the thickness route and the
+    // mean-temperature route must agree up to the packing of geopotential
+    // into shorts (scale ~ 2 m2 s-2, about 0.1 m of height) and the
+    // difference between the trapezoid and Baroc's default quadratic rule
+    // (a metre or so of thickness, smooth in the horizontal, so well under
+    // the tolerances below: they were not changed).
     let case = demo_case();
     for (bottom, top) in [(100000.0, 50000.0), (85000.0, 30000.0), (92500.0, 70000.0)] {
         let layer = Layer::new(bottom, top).0;
@@ -323,4 +326,43 @@ fn the_summary_says_weak_wind_where_the_turning_is_not_defined() {
         }
     }
     assert!(weak_rows >= 1, "the demo has a site of weak wind:\n{text}");
+}
+
+#[test]
+fn a_missing_level_beyond_the_layer_does_not_spoil_it() {
+    // The demo reports no humidity at 200 hPa. The 300-250 hPa layer's own
+    // levels are complete, so its thickness exists everywhere (missing data
+    // spoil only what needs them; field guide, "Grids and numerics"): the
+    // quadratic rule, which reaches to 200 hPa, gives way to the trapezoid
+    // over the layer's levels and the metadata say so. Thickness of a
+    // 50 hPa layer near 275 hPa at about 220 K: (Rd/g0) 220 ln(300/250)
+    // ~ 1174 m (hypsometric equation).
+    let case = demo_case();
+    let dz = case.thickness(Layer::new(30000.0, 25000.0).0, ThicknessRoute::Temperature).unwrap();
+    let finite = dz.data.iter().filter(|x| x.is_finite()).count();
+    assert!(finite as f64 > 0.99 * dz.data.len() as f64, "{finite} of {}", dz.data.len());
+    assert!(dz.data.iter().filter(|x| x.is_finite()).all(|&x| (1000.0..1350.0).contains(&x)));
+    let method = dz.attributes.iter().find(|(k, _)| k == "method").map(|(_, v)| v.clone()).unwrap();
+    assert!(method.contains("trapezoid rule at 5 time step(s)"), "{method}");
+}
+
+#[test]
+fn heights_between_the_top_levels_exist_although_humidity_is_missing_aloft() {
+    // 225 hPa lies between the demo's 250 and 200 hPa levels; humidity is not
+    // reported at 200 hPa, so the hydrostatic interpolation uses the
+    // temperature itself there (humidity aloft is negligible). The height must lie
+    // between the two levels' heights (height grows as pressure falls).
+    let case = demo_case();
+    let z = case.geopotential_at(22500.0, false).unwrap();
+    let (below, above) = (case.geopotential_at(25000.0, false).unwrap(), case.geopotential_at(20000.0, false).unwrap());
+    let mut checked = 0;
+    for ((&m, &b), &a) in z.data.iter().zip(below.data.iter()).zip(above.data.iter()) {
+        // Only the demo's gap of missing temperature at 250 hPa (a dozen
+        // points) may leave a height missing.
+        if m.is_finite() {
+            assert!(m > b && m < a, "{b} < {m} < {a}");
+            checked += 1;
+        }
+    }
+    assert!(checked as f64 > 0.99 * z.data.len() as f64, "{checked} of {}", z.data.len());
 }

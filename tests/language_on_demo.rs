@@ -259,3 +259,22 @@ fn map_options_reach_the_picture_and_bad_ones_say_what_is_valid() {
     let band = s.run("map(temperature_advection(1000 hPa to 500 hPa)) with neutral_band 0.9", None).unwrap_err();
     assert!(band.rendered.contains("from 0 to 0.5"), "{}", band.rendered);
 }
+
+#[test]
+fn audit_in_the_language_gives_the_commands_verdict() {
+    // The demo's heights are the hydrostatic integral of its virtual
+    // temperature (hypsometric equation, field guide), so the audit passes;
+    // a selection in time restricts what is audited.
+    // The language asks for the audit; the session carries it out.
+    let mut s = session();
+    assert!(matches!(value(&mut s, "audit()"), Value::Figure(_)));
+    let shown = |s: &mut baroc::session::Session, code: &str| s.run(code, None).unwrap().result.expect("a result").plain_text().to_string();
+    let text = shown(&mut s, "audit()");
+    assert!(text.contains("pass: heights and temperature agree hydrostatically"), "{text}");
+    assert!(text.contains("not a warning service"));
+    assert!(text.contains("2026-10-15T00:00:00"));
+    let text = shown(&mut s, "audit() at time(0)");
+    assert!(!text.contains("2026-10-15T00:00:00") && text.contains("2026-10-14T00:00:00"), "{text}");
+    let err = s.run("audit() with integration simpson", None).unwrap_err();
+    assert!(err.rendered.contains("trapezoid"), "{}", err.rendered);
+}

@@ -208,6 +208,14 @@ const EQUATOR_BAND: OptionSpec = OptionSpec {
     documentation: "half-width of the band around the equator where the Coriolis parameter is too small and results are left missing",
 };
 
+/// How the hypsometric integral runs over ln p (see
+/// `physics::vertical::IntegrationRule`).
+const INTEGRATION: OptionSpec = OptionSpec {
+    name: "integration",
+    kind: OptionKind::Words(&["quadratic", "trapezoid"]),
+    documentation: "integrate temperature over ln p through the piecewise-quadratic interpolant (the default) or by the trapezoid rule, as older results did",
+};
+
 const HEIGHTS: &[&str] = &["geopotential", "geopotential_height"];
 const HEIGHTS_OR_TEMPERATURE: &[&str] = &["geopotential", "geopotential_height", "temperature"];
 const TEMPERATURE: &[&str] = &["temperature"];
@@ -236,7 +244,7 @@ pub static BUILTINS: &[Builtin] = &[
             name: "route",
             kind: O::Words(&["temperature", "virtual_temperature", "geopotential"]),
             documentation: "integrate the hypsometric equation over temperature or virtual temperature, or difference the geopotential",
-        }],
+        }, INTEGRATION],
         result_kind: ResultKind::ScalarField,
         result_unit: ResultUnit::Fixed("m"),
         result_shape: ResultShape::Horizontal,
@@ -252,7 +260,7 @@ pub static BUILTINS: &[Builtin] = &[
     Builtin {
         name: "layer_mean_temperature",
         parameters: &[parameter("layer", P::Layer)],
-        options: &[],
+        options: &[INTEGRATION],
         result_kind: ResultKind::ScalarField,
         result_unit: ResultUnit::Fixed("K"),
         result_shape: ResultShape::Horizontal,
@@ -269,6 +277,7 @@ pub static BUILTINS: &[Builtin] = &[
                 documentation: "from the gradient of the layer's thickness or of its mean temperature",
             },
             EQUATOR_BAND,
+            INTEGRATION,
         ],
         result_kind: ResultKind::VectorField,
         result_unit: ResultUnit::Fixed("m/s"),
@@ -690,7 +699,7 @@ mod tests {
     fn signature_lists_options() {
         assert_eq!(
             find("thickness").unwrap().signature(),
-            "thickness(layer) with route (temperature | virtual_temperature | geopotential)"
+            "thickness(layer) with route (temperature | virtual_temperature | geopotential), integration (quadratic | trapezoid)"
         );
     }
 }
@@ -700,4 +709,4 @@ mod tests {
 /// table of operators (`BUILTINS`): they accept values of many kinds and
 /// check them when they run; pictures and reports become requests that the
 /// drawing side and the front ends carry out.
-pub const PRESENTATION: &[&str] = &["recipes", "save_recipe", "map", "hodograph", "profile", "section", "time_series", "panels", "write_report", "print", "clear_output"];
+pub const PRESENTATION: &[&str] = &["recipes", "save_recipe", "map", "hodograph", "profile", "section", "time_series", "panels", "write_report", "print", "clear_output", "audit"];

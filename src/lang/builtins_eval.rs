@@ -61,6 +61,7 @@ pub const NAMES: &[&str] = &[
     "write_report",
     "print",
     "clear_output",
+    "audit",
 ];
 
 pub use super::builtins::PRESENTATION;
@@ -211,13 +212,20 @@ pub fn call_builtin(
             wrap_vector(case.geostrophic_wind_of(&f, kind, &at))
         }
         "thickness" | "layer_mean_temperature" | "thermal_wind" | "ageostrophic_shear" => {
-            let allowed: &[&str] = if name == "thermal_wind" || name == "ageostrophic_shear" { &["route", "equator_band"] } else { &["route"] };
+            let allowed: &[&str] = if name == "thermal_wind" || name == "ageostrophic_shear" { &["route", "equator_band", "integration"] } else { &["route", "integration"] };
             options.allow(name, allowed)?;
             args.count(1, "1000 hPa to 500 hPa")?;
             let layer = args.layer(0)?;
             let (word, word_span) = options.word("route").map_or((None, span), |(w, s)| (Some(w), s));
             let route = thickness_route(word, word_span)?;
-            let case = case_of(ev, options.equator_band()?)?;
+            let mut case = case_of(ev, options.equator_band()?)?;
+            case.integration = match options.word("integration") {
+                None | Some(("quadratic", _)) => crate::physics::vertical::IntegrationRule::Quadratic,
+                Some(("trapezoid", _)) => crate::physics::vertical::IntegrationRule::Trapezoid,
+                Some((other, word_span)) => {
+                    return Err(error(format!("`{other}` is not an integration rule"), word_span).with_help("integration rules: quadratic (the default), trapezoid"))
+                }
+            };
             match name {
                 "thickness" => wrap(case.thickness(layer, route)),
                 "layer_mean_temperature" => wrap(case.layer_mean_temperature(layer, route)),
@@ -421,6 +429,23 @@ pub fn call_builtin(
                 labels,
                 rows: stats.iter().map(|s| vec![s.weighted_mean, s.minimum, s.maximum, s.valid_points as f64, s.missing_points as f64]).collect(),
             }))
+        }
+        "audit" => {
+            // The balance audit of the open dataset (times and region as
+            // selected); the work and its presentation live in `crate::audit`.
+            options.allow(name, &["integration"])?;
+            args.count(0, "")?;
+            let case = case_of(ev, None)?;
+            let mut settings = crate::audit::AuditSettings { equator_band: case.equator_band, constants: case.constants, ..crate::audit::AuditSettings::default() };
+            match options.word("integration") {
+                None | Some(("trapezoid", _)) => {}
+                Some(("quadratic", _)) => settings.integration = crate::physics::vertical::IntegrationRule::Quadratic,
+                Some((other, word_span)) => return Err(error(format!("`{other}` is not an integration rule"), word_span).with_help("integration rules: trapezoid (the audit's default), quadratic")),
+            }
+            // A request: the front end computes and tabulates it (the
+            // audit's tables are drawn by the renderers).
+            let content = FigureContent::Audit { case: Arc::new(case), settings };
+            Ok(Value::Figure(FigureRequest { operator: name.to_string(), content, options: Vec::new(), span, dataset: evaluator.current_dataset().cloned() }))
         }
         "recipes" => {
             options.allow(name, &[])?;

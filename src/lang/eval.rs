@@ -589,7 +589,7 @@ impl Evaluator {
     }
 
     fn is_option_word(&self, function: &str, option: &str) -> bool {
-        matches!((function, option), (_, "route") | ("map", "speed_unit"))
+        matches!((function, option), (_, "route") | (_, "integration") | ("map", "speed_unit"))
     }
 
     // ----- arithmetic -------------------------------------------------------

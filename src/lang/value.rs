@@ -76,6 +76,9 @@ pub enum FigureContent {
     TimeSeries { series: Series },
     /// Several figures side by side.
     Panels { figures: Vec<FigureRequest> },
+    /// The balance audit of the case (its times and region as selected):
+    /// computed and tabulated by the front end, like a picture.
+    Audit { case: Arc<Case>, settings: crate::audit::AuditSettings },
 }
 
 /// An option as written after `with`: its name and evaluated value, with

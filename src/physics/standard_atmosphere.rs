@@ -92,7 +92,7 @@ mod tests {
 mod hydrostatic_tests {
     use super::*;
     use crate::constants::{DRY_AIR_GAS_CONSTANT as RD, STANDARD_GRAVITY as G0};
-    use crate::physics::vertical::thickness_from_temperature;
+    use crate::physics::vertical::{thickness_from_temperature, thickness_from_temperature_by, IntegrationRule};
 
     #[test]
     fn hydrostatic_integration_reproduces_standard_heights() {
@@ -115,6 +115,15 @@ mod hydrostatic_tests {
             assert!((height - expected).abs() < tolerance, "{} hPa: {height:.1} m vs {expected} m", p / 100.0);
             // And against the standard's own exact height of that pressure.
             assert!((height - height_of_pressure(p).unwrap()).abs() < tolerance);
+            // The higher-order rule (the default) does at least as well below
+            // the tropopause; across the kink (a profile no polynomial in
+            // ln p follows) it is held to the same 10 m as the trapezoid.
+            let quadratic = base + thickness_from_temperature_by(&levels, t.view(), None, 100000.0, p, RD, G0, IntegrationRule::Quadratic).unwrap()[[0, 0, 0]] as f64;
+            let exact = height_of_pressure(p).unwrap();
+            assert!((quadratic - exact).abs() < tolerance, "{} hPa quadratic: {quadratic:.1} m vs {exact:.1} m", p / 100.0);
+            if p >= 25000.0 {
+                assert!((quadratic - exact).abs() <= (height - exact).abs() + 0.05, "{} hPa: quadratic {quadratic:.2} worse than trapezoid {height:.2} (exact {exact:.2})", p / 100.0);
+            }
         }
     }
 }

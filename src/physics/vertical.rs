@@ -112,6 +112,226 @@ pub fn layer_integral_weights(levels: &[f64], bottom: f64, top: f64) -> Result<L
     Ok(LevelWeights { terms: weights.into_iter().enumerate().filter(|(_, w)| *w != 0.0).collect() })
 }
 
+/// How a column is integrated over ln p between data levels.
+///
+/// `Quadratic` (the default) integrates the piecewise-quadratic interpolant
+/// in ln p described at `curved_interpolation_weights`: on each interval
+/// between data levels the mean of the two parabolas through that interval's
+/// levels and one neighbour each side (one parabola at the ends of the
+/// column, a straight line when there are only two levels). It is exact for
+/// a profile quadratic in ln p on unevenly spaced levels, the Simpson-like
+/// order the hypsometric integral wants (field guide, "Formulas": "integrate
+/// in ln p (trapezoid at least)"). `Trapezoid` is the straight line between
+/// neighbouring levels, kept to compare with older results.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, serde::Serialize, serde::Deserialize)]
+pub enum IntegrationRule {
+    #[default]
+    Quadratic,
+    Trapezoid,
+}
+
+impl IntegrationRule {
+    /// The word the language uses: `with integration trapezoid`.
+    pub fn word(self) -> &'static str {
+        match self {
+            IntegrationRule::Quadratic => "quadratic",
+            IntegrationRule::Trapezoid => "trapezoid",
+        }
+    }
+
+    /// What the rule does, for a result's metadata.
+    pub fn describe(self) -> &'static str {
+        match self {
+            IntegrationRule::Quadratic => "piecewise-quadratic interpolant in ln p (exact for a profile quadratic in ln p)",
+            IntegrationRule::Trapezoid => "trapezoid rule in ln p",
+        }
+    }
+}
+
+/// Three-point Gauss-Legendre nodes (in units of the half-interval) and
+/// weights: exact for polynomials up to degree 5, so exact for the integral
+/// of any quadratic interpolant (Abramowitz and Stegun 1964, table 25.4).
+const GAUSS_NODES: [f64; 3] = [-0.774_596_669_241_483_4, 0.0, 0.774_596_669_241_483_4];
+const GAUSS_WEIGHTS: [f64; 3] = [5.0 / 9.0, 8.0 / 9.0, 5.0 / 9.0];
+
+/// Lagrange basis of the nodes `xs` at `x`: the weights of the node values
+/// in the polynomial through them (textbook Lagrange interpolation).
+fn lagrange(xs: &[f64], x: f64) -> Vec<f64> {
+    (0..xs.len())
+        .map(|i| (0..xs.len()).filter(|&j| j != i).map(|j| (x - xs[j]) / (xs[i] - xs[j])).product())
+        .collect()
+}
+
+/// Weights (on sorted positions) of the piecewise-quadratic interpolant in
+/// ln p at `x` = ln p inside sorted interval `s` (between sorted levels s
+/// and s+1, pressures decreasing): the mean of the parabolas through
+/// (s-1, s, s+1) and (s, s+1, s+2) where both exist, the one that exists at
+/// the ends of the column, and the straight line with only two levels.
+fn curved_on_interval(log_pressures: &[f64], s: usize, x: f64) -> Vec<(usize, f64)> {
+    let n = log_pressures.len();
+    let mut stencils: Vec<usize> = Vec::with_capacity(2);
+    if s >= 1 && s + 1 < n {
+        stencils.push(s - 1);
+    }
+    if s + 2 < n {
+        stencils.push(s);
+    }
+    if stencils.is_empty() {
+        let w = (log_pressures[s] - x) / (log_pressures[s] - log_pressures[s + 1]);
+        return vec![(s, 1.0 - w), (s + 1, w)];
+    }
+    let share = 1.0 / stencils.len() as f64;
+    let mut out: Vec<(usize, f64)> = Vec::with_capacity(4);
+    for first in stencils {
+        let xs = [log_pressures[first], log_pressures[first + 1], log_pressures[first + 2]];
+        for (offset, w) in lagrange(&xs, x).into_iter().enumerate() {
+            let k = first + offset;
+            match out.iter_mut().find(|(kk, _)| *kk == k) {
+                Some(entry) => entry.1 += share * w,
+                None => out.push((k, share * w)),
+            }
+        }
+    }
+    out
+}
+
+/// Weights for the value at `pressure` from the piecewise-quadratic
+/// interpolant in ln p (see `IntegrationRule::Quadratic`): honours the
+/// curvature of a profile such as geopotential height, which a straight
+/// line in ln p would cut across (it treats each layer as isothermal).
+/// Exactly the level's value on a data level; fails outside the levels.
+pub fn curved_interpolation_weights(levels: &[f64], pressure: f64) -> Result<LevelWeights, VerticalError> {
+    check_pressure(levels, pressure)?;
+    let sorted = sorted_levels(levels);
+    if let Some(&(k, _)) = sorted.iter().find(|(_, p)| (p - pressure).abs() <= 1e-9 * pressure) {
+        return Ok(LevelWeights { terms: vec![(k, 1.0)] });
+    }
+    let log_pressures: Vec<f64> = sorted.iter().map(|(_, p)| p.ln()).collect();
+    for s in 0..sorted.len().saturating_sub(1) {
+        if pressure <= sorted[s].1 && pressure >= sorted[s + 1].1 {
+            let terms = curved_on_interval(&log_pressures, s, pressure.ln()).into_iter().map(|(position, w)| (sorted[position].0, w)).collect();
+            return Ok(LevelWeights { terms });
+        }
+    }
+    let (lo, hi) = (sorted[sorted.len() - 1].1, sorted[0].1);
+    Err(VerticalError::OutsideLevels { pressure: hpa(pressure), lowest: hpa(lo), highest: hpa(hi) })
+}
+
+/// Weights of the integral of a column over ln p from `top` to `bottom`
+/// (Pa, either order) by the chosen rule. With `IntegrationRule::Trapezoid`
+/// this is `layer_integral_weights`; with `Quadratic` each interval between
+/// data levels (or the part of it inside the layer) is integrated exactly
+/// over the piecewise-quadratic interpolant by three-point Gauss-Legendre
+/// quadrature. Fails as `layer_integral_weights` does.
+pub fn layer_integral_weights_by(levels: &[f64], bottom: f64, top: f64, rule: IntegrationRule) -> Result<LevelWeights, VerticalError> {
+    if rule == IntegrationRule::Trapezoid {
+        return layer_integral_weights(levels, bottom, top);
+    }
+    if (bottom - top).abs() <= 1e-9 * bottom.max(top) {
+        return Err(VerticalError::EmptyLayer { bottom: hpa(bottom), top: hpa(top) });
+    }
+    let (bottom, top) = if bottom > top { (bottom, top) } else { (top, bottom) };
+    check_pressure(levels, bottom)?;
+    check_pressure(levels, top)?;
+    let sorted = sorted_levels(levels);
+    let log_pressures: Vec<f64> = sorted.iter().map(|(_, p)| p.ln()).collect();
+    let (x_bottom, x_top) = (bottom.ln(), top.ln());
+    let mut weights = vec![0.0; levels.len()];
+    for s in 0..sorted.len().saturating_sub(1) {
+        // The part of interval s inside the layer, in ln p.
+        let hi = log_pressures[s].min(x_bottom);
+        let lo = log_pressures[s + 1].max(x_top);
+        if hi - lo <= 1e-12 {
+            continue;
+        }
+        let (middle, half) = (0.5 * (hi + lo), 0.5 * (hi - lo));
+        for (node, gauss) in GAUSS_NODES.iter().zip(GAUSS_WEIGHTS) {
+            for (position, w) in curved_on_interval(&log_pressures, s, middle + half * node) {
+                weights[sorted[position].0] += half * gauss * w;
+            }
+        }
+    }
+    Ok(LevelWeights { terms: weights.into_iter().enumerate().filter(|(_, w)| *w != 0.0).collect() })
+}
+
+/// How geopotential at a pressure between data levels was obtained, for a
+/// result's metadata.
+#[derive(Debug, Clone, PartialEq)]
+pub enum GeopotentialInterpolation {
+    /// The pressure is a data level: no interpolation.
+    DataLevel,
+    /// Hypsometric integral of (virtual) temperature from the nearest data
+    /// level of geopotential (pressure in Pa).
+    Hydrostatic { from_level: f64, rule: IntegrationRule, virtual_temperature: bool },
+    /// Heights only: the piecewise-quadratic interpolant in ln p.
+    Curved,
+}
+
+impl GeopotentialInterpolation {
+    pub fn describe(&self) -> String {
+        match self {
+            GeopotentialInterpolation::DataLevel => "data level (no interpolation)".into(),
+            GeopotentialInterpolation::Hydrostatic { from_level, rule, virtual_temperature } => format!(
+                "hydrostatic: hypsometric integral of {} from the {} hPa level ({})",
+                if *virtual_temperature { "virtual temperature" } else { "temperature" },
+                hpa(*from_level),
+                rule.describe()
+            ),
+            GeopotentialInterpolation::Curved => "quadratic in ln p through the neighbouring levels (no temperature to integrate)".into(),
+        }
+    }
+}
+
+/// The plan for geopotential (or height) at `pressure`: weights on the
+/// geopotential's levels and, for the hydrostatic route, weights on the
+/// temperature's levels of the hypsometric integral, in geopotential units
+/// per kelvin times `gas_constant_per_unit` (Rd for geopotential, Rd/g0 for
+/// height).
+#[derive(Debug, Clone, PartialEq)]
+pub struct GeopotentialPlan {
+    pub geopotential: LevelWeights,
+    pub temperature: Option<LevelWeights>,
+    pub method: GeopotentialInterpolation,
+}
+
+/// Plans geopotential at `pressure` the way the trade does (hydrostatic
+/// balance, dPhi/d(ln p) = -Rd Tv; field guide, "Formulas"):
+/// Phi(p) = Phi(p_k) + Rd * integral from ln p to ln p_k of Tv d ln p, p_k
+/// the nearest geopotential level in ln p, when temperature levels
+/// (`temperature_levels`) cover p and p_k. Otherwise the heights-only
+/// piecewise-quadratic interpolant. The temperature weights returned are
+/// those of the integral in K (ln p units); the caller multiplies by Rd (or
+/// Rd/g0 for heights). Fails when the pressure is outside the geopotential's
+/// levels.
+pub fn geopotential_plan(geopotential_levels: &[f64], temperature_levels: Option<&[f64]>, pressure: f64, rule: IntegrationRule) -> Result<GeopotentialPlan, VerticalError> {
+    check_pressure(geopotential_levels, pressure)?;
+    let sorted = sorted_levels(geopotential_levels);
+    if let Some(&(k, _)) = sorted.iter().find(|(_, p)| (p - pressure).abs() <= 1e-9 * pressure) {
+        return Ok(GeopotentialPlan { geopotential: LevelWeights { terms: vec![(k, 1.0)] }, temperature: None, method: GeopotentialInterpolation::DataLevel });
+    }
+    let &(k, p_k) = sorted
+        .iter()
+        .min_by(|a, b| (a.1.ln() - pressure.ln()).abs().total_cmp(&(b.1.ln() - pressure.ln()).abs()))
+        .ok_or(VerticalError::NoLevels)?;
+    if let Some(t_levels) = temperature_levels {
+        if check_pressure(t_levels, pressure).is_ok() && check_pressure(t_levels, p_k).is_ok() {
+            let mut integral = layer_integral_weights_by(t_levels, p_k, pressure, rule)?;
+            // Above the anchor (p < p_k) the geopotential is larger.
+            if pressure > p_k {
+                for term in &mut integral.terms {
+                    term.1 = -term.1;
+                }
+            }
+            return Ok(GeopotentialPlan {
+                geopotential: LevelWeights { terms: vec![(k, 1.0)] },
+                temperature: Some(integral),
+                method: GeopotentialInterpolation::Hydrostatic { from_level: p_k, rule, virtual_temperature: false },
+            });
+        }
+    }
+    Ok(GeopotentialPlan { geopotential: curved_interpolation_weights(geopotential_levels, pressure)?, temperature: None, method: GeopotentialInterpolation::Curved })
+}
+
 /// Applies level weights to every column of a [time, level, lat, lon] array,
 /// giving [time, lat, lon]; `factor` multiplies the result and `transform`
 /// maps each level value first (identity for most uses). Sums in f64. A NaN
@@ -162,6 +382,18 @@ pub fn virtual_temperature(temperature: f64, specific_humidity: f64) -> f64 {
     temperature * (1.0 + 0.608 * specific_humidity)
 }
 
+/// Virtual temperature where the humidity is known, the temperature itself
+/// where it is missing (NaN): humidity is often not reported aloft, where
+/// its effect (0.608 q T, a few hundredths of a kelvin) is negligible.
+#[inline]
+pub fn virtual_temperature_where_known(temperature: f64, specific_humidity: f64) -> f64 {
+    if specific_humidity.is_finite() {
+        virtual_temperature(temperature, specific_humidity)
+    } else {
+        temperature
+    }
+}
+
 /// Virtual temperature from mixing ratio r (kg/kg):
 /// Tv = T (1 + r/epsilon) / (1 + r)   (field guide).
 #[inline]
@@ -188,6 +420,59 @@ pub fn thickness_from_temperature(
         None => apply_weights(temperature, &weights, factor),
         Some(q) => apply_weights_with(temperature, Some(q), &weights, factor, virtual_temperature),
     })
+}
+
+/// As `thickness_from_temperature` (which keeps the trapezoid rule, for
+/// comparison with older results), by the chosen integration rule.
+#[allow(clippy::too_many_arguments)]
+pub fn thickness_from_temperature_by(
+    levels: &[f64],
+    temperature: ArrayView4<f32>,
+    specific_humidity: Option<ArrayView4<f32>>,
+    bottom: f64,
+    top: f64,
+    dry_air_gas_constant: f64,
+    gravity: f64,
+    rule: IntegrationRule,
+) -> Result<Array3<f32>, VerticalError> {
+    let weights = layer_integral_weights_by(levels, bottom, top, rule)?;
+    let factor = dry_air_gas_constant / gravity;
+    Ok(match specific_humidity {
+        None => apply_weights(temperature, &weights, factor),
+        Some(q) => apply_weights_with(temperature, Some(q), &weights, factor, virtual_temperature),
+    })
+}
+
+/// Geopotential (or height) at `pressure` by `geopotential_plan`, on whole
+/// [time, level, lat, lon] arrays -> [time, lat, lon]. `per_kelvin` turns
+/// the temperature integral (K) into the geopotential's units: Rd for
+/// geopotential (m2 s-2), Rd/g0 for geopotential height (m). Temperature
+/// (with optional specific humidity on the same levels, for virtual
+/// temperature) is used only when the plan asks for it; a NaN on any level
+/// used makes the point NaN. Returns the values and how they were obtained.
+#[allow(clippy::too_many_arguments)]
+pub fn geopotential_at_pressure(
+    geopotential_levels: &[f64],
+    geopotential: ArrayView4<f32>,
+    temperature: Option<(&[f64], ArrayView4<f32>, Option<ArrayView4<f32>>)>,
+    pressure: f64,
+    per_kelvin: f64,
+    rule: IntegrationRule,
+) -> Result<(Array3<f32>, GeopotentialInterpolation), VerticalError> {
+    let plan = geopotential_plan(geopotential_levels, temperature.as_ref().map(|t| t.0), pressure, rule)?;
+    let mut out = apply_weights(geopotential, &plan.geopotential, 1.0);
+    let mut method = plan.method;
+    if let (Some(weights), Some((_, t, q))) = (&plan.temperature, temperature) {
+        let integral = match q {
+            None => apply_weights(t, weights, per_kelvin),
+            Some(q) => apply_weights_with(t, Some(q), weights, per_kelvin, virtual_temperature),
+        };
+        out += &integral;
+        if let GeopotentialInterpolation::Hydrostatic { virtual_temperature, .. } = &mut method {
+            *virtual_temperature = q.is_some();
+        }
+    }
+    Ok((out, method))
 }
 
 /// Latitude rows per parallel task of `adjacent_layer_thickness`: two levels
@@ -419,5 +704,106 @@ mod tests {
         let out = interpolate_to_pressure(&LEVELS, data.view(), 100000.0, Some(ps.view())).unwrap();
         assert!(out[[0, 0, 0]].is_nan());
         assert_eq!(out[[0, 0, 1]], 5.0);
+    }
+
+    /// The analytic, exactly hydrostatic column used below (the project's
+    /// own construction): temperature a power law in pressure plus a wave
+    /// part decaying upward, T(p) = T0 (p/p0)^a + W (p/p0)^b, and height its
+    /// exact hypsometric integral (dZ/d(ln p) = -(Rd/g0) T, field guide):
+    /// Z(p) = Z0 + (Rd/g0) [T0 (1 - (p/p0)^a)/a + W (1 - (p/p0)^b)/b].
+    /// a = 0.19 is about Rd * 6.5 K/km / g0, the standard tropospheric lapse.
+    fn analytic_temperature(p: f64, wave: f64) -> f64 {
+        288.0 * (p / 100000.0).powf(0.19) + wave * (p / 100000.0)
+    }
+    fn analytic_height(p: f64, wave: f64) -> f64 {
+        let x = p / 100000.0;
+        120.0 + RD / G0 * (288.0 * (1.0 - x.powf(0.19)) / 0.19 + wave * (1.0 - x))
+    }
+    const ANALYTIC_LEVELS: [f64; 7] = [100000.0, 85000.0, 70000.0, 50000.0, 30000.0, 25000.0, 20000.0];
+
+    fn analytic_columns() -> (Array4<f32>, Array4<f32>, Vec<f64>) {
+        let waves = vec![-12.0, 0.0, 7.5, 12.0];
+        let t = Array4::from_shape_fn((1, 7, 1, waves.len()), |(_, k, _, i)| analytic_temperature(ANALYTIC_LEVELS[k], waves[i]) as f32);
+        let z = Array4::from_shape_fn((1, 7, 1, waves.len()), |(_, k, _, i)| analytic_height(ANALYTIC_LEVELS[k], waves[i]) as f32);
+        (t, z, waves)
+    }
+
+    #[test]
+    fn quadratic_rule_is_exact_for_a_profile_quadratic_in_ln_p() {
+        // Integral of c0 + c1 x + c2 x^2 over x = ln p in closed form
+        // (elementary calculus), on uneven levels, boundaries on and off them.
+        let f = |x: f64| 3.0 + 2.0 * x - 0.7 * x * x;
+        let big_f = |x: f64| 3.0 * x + x * x - 0.7 * x * x * x / 3.0;
+        let column = Array4::from_shape_fn((1, 6, 1, 1), |(_, k, _, _)| f(LEVELS[k].ln()) as f32);
+        for (bottom, top) in [(100000.0, 20000.0), (92000.0, 41000.0), (85000.0, 70000.0), (60000.0, 55000.0)] {
+            let w = layer_integral_weights_by(&LEVELS, bottom, top, IntegrationRule::Quadratic).unwrap();
+            let got = apply_weights(column.view(), &w, 1.0)[[0, 0, 0]] as f64;
+            let exact = big_f(f64::ln(bottom)) - big_f(f64::ln(top));
+            assert!((got - exact).abs() < 1e-5 * exact.abs().max(1.0), "{bottom}-{top}: {got} vs {exact}");
+        }
+        // And the interpolant reproduces the quadratic between levels.
+        let w = curved_interpolation_weights(&LEVELS, 40000.0).unwrap();
+        let got = apply_weights(column.view(), &w, 1.0)[[0, 0, 0]] as f64;
+        assert!((got - f(40000.0f64.ln())).abs() < 1e-4, "{got}");
+    }
+
+    #[test]
+    fn analytic_atmosphere_thickness_by_both_routes_within_half_a_metre() {
+        // On the analytic hydrostatic column above, levels 1000/850/700/500/
+        // 300/250/200 hPa: thickness of layers on and off the data levels by
+        // the temperature route (quadratic rule) and by the geopotential route
+        // (hydrostatic interpolation of height to off-level boundaries) must
+        // both be within 0.5 m of the exact hypsometric value.
+        let (t, z, waves) = analytic_columns();
+        for (bottom, top) in [(100000.0, 50000.0), (90000.0, 40000.0), (85000.0, 30000.0), (95000.0, 22000.0), (70000.0, 60000.0)] {
+            let by_temperature = thickness_from_temperature_by(&ANALYTIC_LEVELS, t.view(), None, bottom, top, RD, G0, IntegrationRule::Quadratic).unwrap();
+            let height = |p: f64| {
+                geopotential_at_pressure(&ANALYTIC_LEVELS, z.view(), Some((&ANALYTIC_LEVELS, t.view(), None)), p, RD / G0, IntegrationRule::Quadratic).unwrap().0
+            };
+            let by_heights = height(top) - height(bottom);
+            for (i, &wave) in waves.iter().enumerate() {
+                let exact = analytic_height(top, wave) - analytic_height(bottom, wave);
+                let a = by_temperature[[0, 0, i]] as f64;
+                let b = by_heights[[0, 0, i]] as f64;
+                assert!((a - exact).abs() < 0.5, "{bottom}-{top} temperature route {a} vs {exact}");
+                assert!((b - exact).abs() < 0.5, "{bottom}-{top} geopotential route {b} vs {exact}");
+            }
+        }
+    }
+
+    #[test]
+    fn quadratic_rule_beats_the_trapezoid_on_the_analytic_atmosphere() {
+        // The trapezoid treats T as linear in ln p; this T is convex in ln p,
+        // so over 1000-500 hPa (four levels) it is off by about a metre, and
+        // the quadratic rule by a few centimetres (hypsometric equation).
+        let (t, _, waves) = analytic_columns();
+        let exact = analytic_height(50000.0, waves[1]) - analytic_height(100000.0, waves[1]);
+        let by = |rule| thickness_from_temperature_by(&ANALYTIC_LEVELS, t.view(), None, 100000.0, 50000.0, RD, G0, rule).unwrap()[[0, 0, 1]] as f64;
+        let (trapezoid, quadratic) = ((by(IntegrationRule::Trapezoid) - exact).abs(), (by(IntegrationRule::Quadratic) - exact).abs());
+        assert!(trapezoid > 0.5, "trapezoid error {trapezoid}");
+        assert!(quadratic < 0.2 && quadratic < trapezoid / 4.0, "quadratic error {quadratic} vs trapezoid {trapezoid}");
+    }
+
+    #[test]
+    fn heights_only_interpolation_honours_curvature_and_says_so() {
+        // Without temperature, height at 400 hPa from the piecewise quadratic
+        // in ln p: much closer to the analytic value than the straight line
+        // in ln p (which treats the layer as isothermal).
+        let (t, z, waves) = analytic_columns();
+        let exact = analytic_height(40000.0, waves[0]);
+        let (curved, method) = geopotential_at_pressure(&ANALYTIC_LEVELS, z.view(), None, 40000.0, RD / G0, IntegrationRule::Quadratic).unwrap();
+        assert_eq!(method, GeopotentialInterpolation::Curved);
+        let linear = interpolate_to_pressure(&ANALYTIC_LEVELS, z.view(), 40000.0, None).unwrap();
+        let (curved_error, linear_error) = ((curved[[0, 0, 0]] as f64 - exact).abs(), (linear[[0, 0, 0]] as f64 - exact).abs());
+        assert!(linear_error > 10.0, "linear error {linear_error}");
+        assert!(curved_error < linear_error / 5.0, "curved {curved_error} vs linear {linear_error}");
+        // With temperature the method is hydrostatic from the nearest level
+        // in ln p (500 hPa is nearer 400 hPa than 300 hPa is).
+        let (_, method) = geopotential_at_pressure(&ANALYTIC_LEVELS, z.view(), Some((&ANALYTIC_LEVELS, t.view(), None)), 40000.0, RD / G0, IntegrationRule::Trapezoid).unwrap();
+        assert_eq!(method, GeopotentialInterpolation::Hydrostatic { from_level: 50000.0, rule: IntegrationRule::Trapezoid, virtual_temperature: false });
+        assert!(method.describe().contains("from the 500 hPa level"), "{}", method.describe());
+        // On a data level nothing is interpolated.
+        let (_, method) = geopotential_at_pressure(&ANALYTIC_LEVELS, z.view(), None, 50000.0, RD / G0, IntegrationRule::Quadratic).unwrap();
+        assert_eq!(method, GeopotentialInterpolation::DataLevel);
     }
 }

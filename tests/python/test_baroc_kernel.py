@@ -161,6 +161,12 @@ def test_first_look_notebook(case_dir):
     png = base64.b64decode([o for o in code[5]["outputs"] if "image/png" in o.get("data", {})][0]["data"]["image/png"])
     width = int.from_bytes(png[16:20], "big")
     assert width >= 1000, width
+    # The balance audit of the first time step: the demo's heights are the
+    # hydrostatic integral of its virtual temperature (hypsometric equation,
+    # field guide), so it passes, and it says it is not a warning service.
+    audit = " ".join(o.get("data", {}).get("text/plain", "") + o.get("text", "") for o in code[6]["outputs"])
+    assert "pass: heights and temperature agree hydrostatically" in audit, audit[-2000:]
+    assert "not a warning service" in audit
 
 
 def test_shear_budget_notebook(case_dir):

@@ -49,7 +49,9 @@ def test_thickness_and_thermal_wind_match_an_independent_numpy_computation(baroc
         dz += RD / G0 * 0.5 * (tv[:, k] + tv[:, k + 1]) * (lnp[k] - lnp[k + 1])
     out = tmp_path / "layer.nc"
     script = tmp_path / "layer.baroc"
-    script.write_text("let dz = thickness(1000 hPa to 500 hPa)\nlet vt = thermal_wind(1000 hPa to 500 hPa)\n")
+    # The reference integrates by the trapezoid, so Baroc is asked for the
+    # same rule (its default is the higher-order quadratic in ln p).
+    script.write_text("let dz = thickness(1000 hPa to 500 hPa) with integration trapezoid\nlet vt = thermal_wind(1000 hPa to 500 hPa) with integration trapezoid\n")
     run(baroc, "run", script, "-o", out, demo_case)
     got = xr.open_dataset(out)
     np.testing.assert_allclose(got["dz"].values, dz, rtol=0, atol=0.02)
