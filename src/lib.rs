@@ -19,6 +19,7 @@ pub mod lang;
 pub mod kernel;
 pub mod mime;
 pub mod physics;
+pub mod projection;
 pub mod session;
 pub mod units;
 pub mod render;
