@@ -13,6 +13,7 @@
 pub mod cf;
 pub mod dataset;
 pub mod netcdf_source;
+pub mod model_levels;
 pub mod netcdf_thread;
 pub mod projected;
 pub mod writer;
