@@ -226,3 +226,21 @@ fn a_projection_with_a_missing_parameter_is_a_clear_error_naming_the_file() {
     let err = Dataset::open(&[&path]).unwrap_err().to_string();
     assert!(err.contains("lambert-incomplete.nc") && err.contains("longitude_of_central_meridian"), "{err}");
 }
+
+#[test]
+fn a_point_given_in_latitude_longitude_samples_the_right_cells() {
+    // Bilinear interpolation in the grid's own coordinates at the point's
+    // forward projection: close to the analytic field there (25 km cells,
+    // smooth field).
+    let path = scratch("lambert-point.nc");
+    write_lambert(&path, true);
+    let dataset = Dataset::open(&[&path]).unwrap();
+    let z = dataset.read("zg", &Selection::default()).unwrap();
+    let slice = z.data.index_axis(ndarray::Axis(0), 0).index_axis(ndarray::Axis(0), 1).to_owned();
+    for (lat, lon) in [(45.0, -10.0), (47.3, -3.2), (41.2, -16.8)] {
+        let value = baroc::physics::sampling::bilinear(&z.grid, slice.view(), lat, lon).unwrap() as f64;
+        let expected = height(lat, lon, 50_000.0);
+        assert!((value - expected).abs() < 1.0, "{lat}, {lon}: {value} vs {expected}");
+    }
+    assert!(baroc::physics::sampling::bilinear(&z.grid, slice.view(), 10.0, 60.0).is_err(), "a point off the grid is an error");
+}
