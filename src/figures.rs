@@ -34,9 +34,23 @@ fn habitual_interval(f: &Field) -> Option<f64> {
     (length && (f.name.starts_with("thickness") || f.standard_name.as_deref() == Some("geopotential_height"))).then_some(60.0)
 }
 
+/// Maps are drawn on latitude-longitude axes; a projected grid's x and y
+/// would be drawn as if they were degrees, so it is refused until the
+/// projected map (in the data's own projection, with a graticule) exists.
+fn refuse_projected(grid: &crate::grid::Grid) -> Result<(), RenderError> {
+    match &grid.projection {
+        Some(p) => Err(RenderError::input(
+            "map grid",
+            format!("maps of {} grids are not drawn yet; tables, points, profiles and the written results work on them", p.projection.cf_name()),
+        )),
+        None => Ok(()),
+    }
+}
+
 /// A map of a scalar field: shaded, with labelled contour lines, and
 /// optional vectors on top.
 pub fn field_map_with(f: &Field, vectors: Option<&VectorField>, size: &FigureSize) -> Result<MimeBundle, RenderError> {
+    refuse_projected(&f.grid)?;
     let (values, note) = first_slice(f);
     let mut spec = MapSpec::new(format!("{} ({})", f.long_name, f.units), &f.grid.latitudes, &f.grid.longitudes).subtitle(note);
     let shaded = ShadedLayer::new(values, f.name.clone(), f.units.clone());
@@ -66,6 +80,7 @@ pub fn field_map(f: &Field, vectors: Option<&VectorField>) -> Option<MimeBundle>
 /// A map of a vector field: speed shaded, barbs for winds, arrows for other
 /// vectors (gradients, shears).
 pub fn vector_map_with(w: &VectorField, size: &FigureSize) -> Result<MimeBundle, RenderError> {
+    refuse_projected(&w.eastward.grid)?;
     let speed = w.speed();
     let (values, note) = first_slice(&speed);
     let (u, _) = first_slice(&w.eastward);

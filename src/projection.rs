@@ -434,6 +434,35 @@ impl Projection {
         dy.atan2(dx)
     }
 
+    /// The CF grid-mapping attributes that describe this projection (the
+    /// inverse of `from_cf`), for writing results on the same grid.
+    pub fn cf_attributes(&self) -> Vec<(&'static str, Vec<f64>)> {
+        match self {
+            Projection::LambertConformal(p) => vec![
+                ("standard_parallel", vec![p.standard_parallels.0, p.standard_parallels.1]),
+                ("longitude_of_central_meridian", vec![p.central_meridian]),
+                ("latitude_of_projection_origin", vec![p.origin_latitude]),
+                ("false_easting", vec![p.false_easting]),
+                ("false_northing", vec![p.false_northing]),
+                ("earth_radius", vec![p.radius]),
+            ],
+            Projection::PolarStereographic(p) => vec![
+                ("latitude_of_projection_origin", vec![if p.pole == Pole::North { 90.0 } else { -90.0 }]),
+                ("straight_vertical_longitude_from_pole", vec![p.straight_vertical_longitude]),
+                ("scale_factor_at_projection_origin", vec![p.scale_factor]),
+                ("false_easting", vec![p.false_easting]),
+                ("false_northing", vec![p.false_northing]),
+                ("earth_radius", vec![p.radius]),
+            ],
+            Projection::RotatedPole(p) => vec![
+                ("grid_north_pole_latitude", vec![p.pole_latitude]),
+                ("grid_north_pole_longitude", vec![p.pole_longitude]),
+                ("north_pole_grid_longitude", vec![p.north_pole_grid_longitude]),
+                ("earth_radius", vec![p.radius]),
+            ],
+        }
+    }
+
     /// Builds a projection from a CF grid mapping. `number(name)` returns a
     /// numeric attribute of the grid-mapping variable (all its values) and
     /// `default_radius` is used when the mapping names no sphere. Returns
@@ -859,6 +888,13 @@ mod tests {
         .unwrap();
         assert_eq!(p.radius(), R);
         assert_eq!(notes.len(), 1);
+        // cf_attributes is the inverse of from_cf.
+        for q in all() {
+            let a = q.cf_attributes();
+            let look = |name: &str| a.iter().find(|(n, _)| *n == name).map(|(_, v)| v.clone());
+            let (back, _) = Projection::from_cf(q.cf_name(), &look, 1.0e6).unwrap();
+            assert_eq!(back, q);
+        }
     }
 
     #[test]

@@ -244,3 +244,18 @@ fn a_point_given_in_latitude_longitude_samples_the_right_cells() {
     }
     assert!(baroc::physics::sampling::bilinear(&z.grid, slice.view(), 10.0, 60.0).is_err(), "a point off the grid is an error");
 }
+
+#[test]
+fn results_on_a_projected_grid_are_written_with_their_grid_mapping_and_read_back() {
+    let path = scratch("lambert-source.nc");
+    write_lambert(&path, true);
+    let case = Case::new(Arc::new(Dataset::open(&[&path]).unwrap()));
+    let wind = case.geostrophic_wind(50_000.0).unwrap();
+    let out = scratch("lambert-result.nc");
+    baroc::io::writer::write_fields(&out, &[&wind.eastward], &baroc::io::writer::WriteOptions::default()).unwrap();
+    let back = Dataset::open(&[&out]).unwrap();
+    let field = back.read(&wind.eastward.name, &Selection::default()).unwrap();
+    let (a, b) = (wind.eastward.grid.projection.clone().unwrap(), field.grid.projection.clone().expect("read back as projected"));
+    assert_eq!(a.projection, b.projection);
+    assert_eq!((a.x.clone(), a.y.clone()), (b.x.clone(), b.y.clone()));
+}
