@@ -527,6 +527,10 @@ impl Case {
     /// Maximum Eady growth rate (s-1) of a layer.
     pub fn eady_growth_rate(&self, layer: Layer) -> Result<Field> {
         let n2 = self.static_stability(layer)?;
+        if n2.grid.projection.is_some() {
+            // stability::eady_growth_rate takes f per latitude row.
+            return Err(DiagnosticError::Unsupported("the Eady growth rate is not yet available on projected grids (Coriolis per point)".into()));
+        }
         let vt = self.thermal_wind(layer, ThicknessRoute::Temperature)?;
         let dz = self.thickness(layer, ThicknessRoute::Temperature)?;
         let sigma = stability::eady_growth_rate(
@@ -623,6 +627,10 @@ pub fn laplacian(field: &Field, constants: &Constants) -> Result<Field> {
 
 /// Gaussian smoothing with standard deviation `sigma_metres`.
 pub fn smooth(field: &Field, constants: &Constants, sigma_metres: f64) -> Result<Field> {
+    if field.grid.projection.is_some() {
+        // smoothing::smooth sizes its kernel from latitude-longitude spacing.
+        return Err(DiagnosticError::Unsupported("smoothing is not yet available on projected grids".into()));
+    }
     let s = smoothing::smooth(&field.grid, constants.earth_radius, field.horizontal_slices(), sigma_metres);
     let mut out = field.derived(&field.name, &field.units, reshape_like(s, field)).map_err(DiagnosticError::Unsupported)?;
     out.long_name = format!("{} smoothed over {} km", field.long_name, trim(sigma_metres / 1000.0));

@@ -272,6 +272,19 @@ pub fn land_mask_on(dataset: &crate::io::Dataset, latitudes: &[f64], longitudes:
     (land && sea).then_some(out)
 }
 
+/// Maps are drawn on latitude-longitude axes; a projected grid's x and y
+/// would be drawn as if they were degrees, so it is refused until the
+/// projected map (in the data's own projection, with a graticule) exists.
+fn refuse_projected(grid: &crate::grid::Grid) -> Result<(), RenderError> {
+    match &grid.projection {
+        Some(p) => Err(RenderError::input(
+            "map grid",
+            format!("maps of {} grids are not drawn yet; tables, points, profiles and the written results work on them", p.projection.cf_name()),
+        )),
+        None => Ok(()),
+    }
+}
+
 /// A map of a scalar field: shaded, with labelled contour lines, and
 /// optional vectors on top.
 pub fn field_map_with(f: &Field, vectors: Option<&VectorField>, size: &FigureSize) -> Result<MimeBundle, RenderError> {
@@ -284,6 +297,7 @@ pub fn field_map_with(f: &Field, vectors: Option<&VectorField>, size: &FigureSiz
 /// weak-wind areas hatched; signed fields with a neutral band around zero;
 /// coastlines from the dataset's land-sea mask when it has one.
 pub fn field_map_on(f: &Field, vectors: Option<&VectorField>, size: &FigureSize, dataset: Option<&crate::io::Dataset>, options: &MapOptions) -> Result<MimeBundle, RenderError> {
+    refuse_projected(&f.grid)?;
     let (values, note) = first_slice(f);
     let thickness = is_thickness(f);
     let dam;
@@ -357,6 +371,7 @@ pub fn vector_map_with(w: &VectorField, size: &FigureSize) -> Result<MimeBundle,
 /// so colours and barbs read on one scale; coastlines from the dataset's
 /// land-sea mask when it has one.
 pub fn vector_map_on(w: &VectorField, size: &FigureSize, dataset: Option<&crate::io::Dataset>, options: &MapOptions) -> Result<MimeBundle, RenderError> {
+    refuse_projected(&w.eastward.grid)?;
     let speed = w.speed();
     let (values, note) = first_slice(&speed);
     let (u, _) = first_slice(&w.eastward);

@@ -28,6 +28,14 @@ pub struct Grid {
     /// True when the longitudes cover the whole circle: the grid is then
     /// periodic in longitude and has no edge there.
     pub global: bool,
+    /// A projected grid (Lambert conformal, polar stereographic, rotated
+    /// pole). Then `latitudes` holds the grid's y coordinates and
+    /// `longitudes` its x coordinates (metres, or rotated degrees), and the
+    /// true latitude, longitude, map factor and wind rotation of every
+    /// point live here. The physics entry points (`physics::differences`,
+    /// `physics::geostrophic`) take this branch themselves; every vector
+    /// they return is eastward/northward.
+    pub projection: Option<Arc<crate::projection::ProjectedGrid>>,
 }
 
 impl Grid {
@@ -36,7 +44,20 @@ impl Grid {
     /// degrees within a tenth of a spacing). Common practice, no source.
     pub fn new(latitudes: Vec<f64>, longitudes: Vec<f64>) -> Self {
         let global = closes_circle(&longitudes);
-        Self { latitudes, longitudes, global }
+        Self { latitudes, longitudes, global, projection: None }
+    }
+
+    /// A projected grid: the 1-D coordinates are the projection's y and x.
+    pub fn projected(projected: crate::projection::ProjectedGrid) -> Self {
+        Self { latitudes: projected.y.clone(), longitudes: projected.x.clone(), global: false, projection: Some(Arc::new(projected)) }
+    }
+
+    /// True latitude of the point at (row, column), in degrees.
+    pub fn latitude_at(&self, row: usize, column: usize) -> f64 {
+        match &self.projection {
+            Some(p) => p.latitude[row * p.x.len() + column],
+            None => self.latitudes[row],
+        }
     }
 
     pub fn shape(&self) -> (usize, usize) {
@@ -60,6 +81,11 @@ impl Grid {
 
     /// (south, north, west, east) edges of the grid's points, in degrees.
     pub fn extent(&self) -> (f64, f64, f64, f64) {
+        if let Some(p) = &self.projection {
+            let (south, north) = min_max(&p.latitude);
+            let (west, east) = min_max(&p.longitude);
+            return (south, north, west, east);
+        }
         let (south, north) = min_max(&self.latitudes);
         let (west, east) = min_max(&self.longitudes);
         (south, north, west, east)
@@ -68,6 +94,19 @@ impl Grid {
     /// One-line description for tables and errors.
     pub fn describe(&self) -> String {
         let (s, n, w, e) = self.extent();
+        if let Some(p) = &self.projection {
+            return format!(
+                "{} x {} points on a {} grid, latitude {:.2} to {:.2}, longitude {:.2} to {:.2} ({})",
+                self.latitudes.len(),
+                self.longitudes.len(),
+                p.projection.cf_name(),
+                s,
+                n,
+                w,
+                e,
+                p.projection.describe()
+            );
+        }
         format!(
             "{} x {} points, latitude {:.2} to {:.2} ({}), longitude {:.2} to {:.2}{}, spacing {:.3} x {:.3} degrees",
             self.latitudes.len(),

@@ -20,6 +20,7 @@ pub mod lang;
 pub mod kernel;
 pub mod mime;
 pub mod physics;
+pub mod projection;
 pub mod session;
 pub mod units;
 pub mod render;

@@ -230,7 +230,7 @@ fn pictures_and_reports_are_requests_the_session_carries_out() {
     // the cell with a caret under the option.
     let err = s.run("map(temperature at 500 hPa) with colour 3", None).unwrap_err();
     assert!(err.message.contains("`map` has no option `colour`"), "{}", err.rendered);
-    assert!(err.rendered.contains("its options are `width`, `height` and `dpi`"), "{}", err.rendered);
+    assert!(err.rendered.contains("its options are `width`, `height`, `dpi`, `speed_unit`, `reference` and `neutral_band`"), "{}", err.rendered);
     let err = s.run("panels(map(temperature at 500 hPa)) with columns \"two\"", None).unwrap_err();
     assert!(err.message.contains("`columns` takes a whole number"), "{}", err.rendered);
     // A report with no outputs is refused where it is asked for.

@@ -114,6 +114,9 @@ pub fn classify_coordinate(variable: &netcdf::Variable) -> Option<Axis> {
     match standard_name.as_str() {
         "latitude" => return Some(Axis::Latitude),
         "longitude" => return Some(Axis::Longitude),
+        // Projected grids (io::projected): y and x play latitude and longitude.
+        "projection_y_coordinate" | "grid_latitude" => return Some(Axis::Latitude),
+        "projection_x_coordinate" | "grid_longitude" => return Some(Axis::Longitude),
         "air_pressure" => return Some(Axis::Pressure),
         "time" => return Some(Axis::Time),
         _ => {}

@@ -59,8 +59,10 @@ impl Role {
             Role::Temperature => &["air_temperature"],
             Role::Geopotential => &["geopotential"],
             Role::GeopotentialHeight => &["geopotential_height"],
-            Role::EastwardWind => &["eastward_wind"],
-            Role::NorthwardWind => &["northward_wind"],
+            // Grid-relative components of a projected grid are turned to
+            // earth-relative when read (io::projected).
+            Role::EastwardWind => &["eastward_wind", "x_wind", "grid_eastward_wind"],
+            Role::NorthwardWind => &["northward_wind", "y_wind", "grid_northward_wind"],
             Role::SpecificHumidity => &["specific_humidity"],
             Role::SurfacePressure => &["surface_air_pressure", "surface_pressure"],
         }
@@ -285,6 +287,32 @@ impl Dataset {
     /// Reads a selection of a variable (by name or role), joining the parts
     /// of a variable split across files along time.
     pub fn read(&self, name: &str, selection: &Selection) -> Result<Field, DataError> {
+        let field = self.read_as_stored(name, selection)?;
+        self.to_earth_relative(field, selection)
+    }
+
+    /// A grid-relative wind component (x_wind, y_wind, grid_eastward_wind,
+    /// grid_northward_wind) on a projected grid becomes the eastward or
+    /// northward component, using its partner; anything else is unchanged.
+    fn to_earth_relative(&self, field: Field, selection: &Selection) -> Result<Field, DataError> {
+        use super::projected::{rotate_component, GRID_RELATIVE_X, GRID_RELATIVE_Y};
+        let Some(standard_name) = field.standard_name.clone() else { return Ok(field) };
+        let along_x = match (GRID_RELATIVE_X.iter().position(|s| *s == standard_name), GRID_RELATIVE_Y.iter().position(|s| *s == standard_name)) {
+            (Some(k), _) => (true, GRID_RELATIVE_Y[k]),
+            (_, Some(k)) => (false, GRID_RELATIVE_X[k]),
+            _ => return Ok(field),
+        };
+        if field.grid.projection.is_none() {
+            return Ok(field);
+        }
+        let partner = self.variables().find(|v| v.standard_name.as_deref() == Some(along_x.1)).map(|v| v.name.clone()).ok_or_else(|| {
+            DataError::Invalid(format!("{} is a grid-relative wind component ({standard_name}); turning it to earth-relative needs its partner ({}), which is not in the data", field.name, along_x.1))
+        })?;
+        let partner = self.read_as_stored(&partner, selection)?;
+        rotate_component(field, &partner, along_x.0).map_err(DataError::Invalid)
+    }
+
+    fn read_as_stored(&self, name: &str, selection: &Selection) -> Result<Field, DataError> {
         let info = self.resolve(name)?.clone();
         let entry = self.entries.iter().find(|e| e.info.name == info.name).expect("resolved names exist");
         if entry.parts.len() == 1 {

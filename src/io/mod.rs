@@ -16,7 +16,9 @@ pub mod grib2;
 pub mod grib2_source;
 pub mod grib2_writer;
 pub mod netcdf_source;
+pub mod model_levels;
 pub mod netcdf_thread;
+pub mod projected;
 pub mod writer;
 
 pub use dataset::{Dataset, Role};
@@ -88,6 +90,8 @@ pub trait DataSource: Send + Sync {
 pub enum DataError {
     #[error("cannot open {path}: {message}")]
     Open { path: String, message: String },
+    #[error("{path}: variable `{variable}`: {message}")]
+    GridMapping { path: String, variable: String, message: String },
     #[error("{path}: variable `{name}` not found{suggestion}; available variables: {}", available.join(", "))]
     MissingVariable { path: String, name: String, available: Vec<String>, suggestion: String },
     #[error("no variable plays the role `{role}` in {sources}; roles found: {}", if found.is_empty() { "none".to_string() } else { found.join(", ") })]

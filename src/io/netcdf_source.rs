@@ -85,6 +85,11 @@ impl NetcdfSource {
                     })?;
                     raw.iter().map(|p| p * factor).collect()
                 }
+                // Projection coordinates in km become metres (io::projected).
+                Axis::Latitude | Axis::Longitude if cf::attribute_text(&variable, "standard_name").is_some_and(|s| s.starts_with("projection_")) => {
+                    let factor = super::projected::length_factor(&units);
+                    raw.iter().map(|v| v * factor).collect()
+                }
                 _ => raw,
             };
             let calendar = cf::attribute_text(&variable, "calendar").unwrap_or_else(|| "standard".into());
@@ -96,6 +101,7 @@ impl NetcdfSource {
         let mut layouts = Vec::new();
         let mut packings = Vec::new();
         let mut rejected: Vec<String> = Vec::new();
+        let mut projected_grids = Vec::new();
         for variable in file.variables() {
             let name = variable.name();
             if coordinates.iter().any(|(n, _)| *n == name) || variable.dimensions().len() < 2 {
@@ -126,7 +132,10 @@ impl NetcdfSource {
                 rejected.push(format!("{name}({})", variable.dimensions().iter().map(|d| d.name()).collect::<Vec<_>>().join(", ")));
                 continue;
             };
-            let grid = Arc::new(Grid::new(lat.values.clone(), lon.values.clone()));
+            let grid = match super::projected::grid_for(&file, &variable, &lat.values, &lon.values, &path, &mut projected_grids)? {
+                Some(grid) => grid,
+                None => Arc::new(Grid::new(lat.values.clone(), lon.values.clone())),
+            };
             let packing = Packing {
                 scale_factor: cf::attribute_number(&variable, "scale_factor").and_then(|v| v.first().copied()),
                 add_offset: cf::attribute_number(&variable, "add_offset").and_then(|v| v.first().copied()),
@@ -290,6 +299,17 @@ impl NetcdfSource {
         };
         let grid = &info.grid;
         let (lat_indices, lon_indices, out_lons) = match &selection.region {
+            // A latitude-longitude box on a projected grid: the block of rows
+            // and columns holding the cells inside it (inverse projection).
+            Some(region) if grid.projection.is_some() => {
+                let projected = grid.projection.as_ref().expect("checked");
+                let (south, north, west, east) = (region.south, region.north, region.west, region.east);
+                let (rows, cols) = super::projected::block_in_box(projected, south, north, west, east)
+                    .ok_or_else(|| DataError::EmptyRegion { variable: name.into(), south, north, west, east, grid: grid.describe() })?;
+                let cols: Vec<usize> = cols.collect();
+                let xs = cols.iter().map(|&i| grid.longitudes[i]).collect();
+                (rows.collect(), cols, xs)
+            }
             Some(region) => {
                 let lat: Vec<usize> = (0..grid.latitudes.len())
                     .filter(|&j| grid.latitudes[j] >= region.south - 1e-9 && grid.latitudes[j] <= region.north + 1e-9)
@@ -391,7 +411,9 @@ impl NetcdfSource {
 
         let times = info.times.as_ref().map(|t| t.select(&time_indices));
         let levels = info.levels.as_ref().map(|l| level_indices.iter().map(|&i| l[i]).collect());
-        let out_grid = if selection.region.is_some() {
+        let out_grid = if let (Some(_), Some(projected)) = (&selection.region, &grid.projection) {
+            Arc::new(super::projected::sub_grid(projected, &lat_indices, &lon_indices))
+        } else if selection.region.is_some() {
             Arc::new(Grid::new(lat_indices.iter().map(|&j| grid.latitudes[j]).collect(), out_lons))
         } else {
             grid.clone()

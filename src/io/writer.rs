@@ -110,19 +110,39 @@ fn write_into(path: &Path, fields: &[&Field], options: &WriteOptions) -> Result<
         file.add_dimension(&suffixed("time", i), t.values.len())?;
     }
 
-    {
-        let mut v = file.add_variable::<f64>("latitude", &["latitude"])?;
-        v.put_attribute("units", "degrees_north")?;
-        v.put_attribute("standard_name", "latitude")?;
-        v.put_attribute("long_name", "latitude")?;
-        v.put_attribute("axis", "Y")?;
-    }
-    {
-        let mut v = file.add_variable::<f64>("longitude", &["longitude"])?;
-        v.put_attribute("units", "degrees_east")?;
-        v.put_attribute("standard_name", "longitude")?;
-        v.put_attribute("long_name", "longitude")?;
-        v.put_attribute("axis", "X")?;
+    if let Some(projected) = &grid.projection {
+        // A projected grid: its own y/x coordinates and a CF grid mapping
+        // (io::projected reads them back). The dimensions keep their names.
+        let angular = projected.projection.is_angular();
+        for (name, standard_name, axis) in [
+            ("latitude", if angular { "grid_latitude" } else { "projection_y_coordinate" }, "Y"),
+            ("longitude", if angular { "grid_longitude" } else { "projection_x_coordinate" }, "X"),
+        ] {
+            let mut v = file.add_variable::<f64>(name, &[name])?;
+            v.put_attribute("units", if angular { "degrees" } else { "m" })?;
+            v.put_attribute("standard_name", standard_name)?;
+            v.put_attribute("axis", axis)?;
+        }
+        let mut m = file.add_variable::<i32>("grid_mapping", &[])?;
+        m.put_attribute("grid_mapping_name", projected.projection.cf_name())?;
+        for (name, values) in projected.projection.cf_attributes() {
+            m.put_attribute(name, values)?;
+        }
+    } else {
+        {
+            let mut v = file.add_variable::<f64>("latitude", &["latitude"])?;
+            v.put_attribute("units", "degrees_north")?;
+            v.put_attribute("standard_name", "latitude")?;
+            v.put_attribute("long_name", "latitude")?;
+            v.put_attribute("axis", "Y")?;
+        }
+        {
+            let mut v = file.add_variable::<f64>("longitude", &["longitude"])?;
+            v.put_attribute("units", "degrees_east")?;
+            v.put_attribute("standard_name", "longitude")?;
+            v.put_attribute("long_name", "longitude")?;
+            v.put_attribute("axis", "X")?;
+        }
     }
     for i in 0..level_sets.len() {
         let name = suffixed("pressure", i);
@@ -160,6 +180,9 @@ fn write_into(path: &Path, fields: &[&Field], options: &WriteOptions) -> Result<
         v.put_attribute("long_name", f.long_name.as_str())?;
         if let Some(s) = &f.standard_name {
             v.put_attribute("standard_name", s.as_str())?;
+        }
+        if grid.projection.is_some() {
+            v.put_attribute("grid_mapping", "grid_mapping")?;
         }
         for (k, value) in &f.attributes {
             v.put_attribute(k, value.as_str())?;

@@ -41,8 +41,8 @@ pub fn advection_from_turning(
     let log_ratio = (bottom_pressure / top_pressure).ln().abs();
     let (ns, ny, nx) = bottom.0.dim();
     let mut out = Array3::<f32>::zeros((ns, ny, nx));
-    Zip::indexed(&mut out).and(bottom.0).and(bottom.1).and(top.0).and(top.1).par_for_each(|(_, j, _), o, &ub, &vb, &ut, &vt| {
-        let f = constants.coriolis(grid.latitudes[j]);
+    Zip::indexed(&mut out).and(bottom.0).and(bottom.1).and(top.0).and(top.1).par_for_each(|(_, j, i), o, &ub, &vb, &ut, &vt| {
+        let f = constants.coriolis(grid.latitude_at(j, i));
         let cross = ub as f64 * vt as f64 - vb as f64 * ut as f64;
         *o = (-(f / (constants.dry_air_gas_constant * log_ratio)) * cross) as f32;
     });

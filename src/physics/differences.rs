@@ -12,6 +12,10 @@
 //! angles in radians. At the poles cos(lat) = 0: x-derivatives are NaN there,
 //! never a division by zero.
 //!
+//! Projected grids (`Grid::projection`) branch to `physics::projected`,
+//! which applies the map factor; the results mean the same (per metre,
+//! eastward/northward).
+//!
 //! Layout: horizontal operators take `[slice, latitude, longitude]` arrays
 //! (slices are time x level flattened) and run in parallel over slices and
 //! rows with rayon.
@@ -291,6 +295,9 @@ where
 
 /// Horizontal gradient (d/dx, d/dy) of a scalar, per metre.
 pub fn gradient(grid: &Grid, radius: f64, scalar: ArrayView3<f32>) -> (Array3<f32>, Array3<f32>) {
+    if let Some(projected) = &grid.projection {
+        return super::projected::gradient(projected, scalar);
+    }
     let metric = SphericalMetric::new(grid, radius);
     let nx = grid.longitudes.len();
     map_rows_pair(scalar, |_, slice, j, dx, dy| {
@@ -303,6 +310,9 @@ pub fn gradient(grid: &Grid, radius: f64, scalar: ArrayView3<f32>) -> (Array3<f3
 /// Divergence of a horizontal vector field on the sphere:
 /// div = (1/(a cos lat)) (du/dlon + d(v cos lat)/dlat)   (field guide).
 pub fn divergence(grid: &Grid, radius: f64, eastward: ArrayView3<f32>, northward: ArrayView3<f32>) -> Array3<f32> {
+    if let Some(projected) = &grid.projection {
+        return super::projected::divergence(projected, eastward, northward);
+    }
     let metric = SphericalMetric::new(grid, radius);
     let v_cos = weighted_by_cos(&metric, northward);
     let nx = grid.longitudes.len();
@@ -322,6 +332,9 @@ pub fn divergence(grid: &Grid, radius: f64, eastward: ArrayView3<f32>, northward
 /// Relative vorticity on the sphere:
 /// zeta = (1/(a cos lat)) (dv/dlon - d(u cos lat)/dlat)   (field guide).
 pub fn vorticity(grid: &Grid, radius: f64, eastward: ArrayView3<f32>, northward: ArrayView3<f32>) -> Array3<f32> {
+    if let Some(projected) = &grid.projection {
+        return super::projected::vorticity(projected, eastward, northward);
+    }
     let metric = SphericalMetric::new(grid, radius);
     let u_cos = weighted_by_cos(&metric, eastward);
     let nx = grid.longitudes.len();

@@ -30,6 +30,10 @@ pub fn balanced_wind(
     scale: f64,
     equator_band: f64,
 ) -> (Array3<f32>, Array3<f32>) {
+    if let Some(projected) = &grid.projection {
+        // Map factor and Coriolis at each point (physics::projected).
+        return super::projected::balanced_wind(projected, constants, field, scale, equator_band);
+    }
     let metric = SphericalMetric::new(grid, constants.earth_radius);
     let nx = grid.longitudes.len();
     // scale / f per row, NaN inside the equatorial band.

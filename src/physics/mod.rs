@@ -9,6 +9,8 @@ pub mod advection;
 pub mod allocation;
 pub mod differences;
 pub mod geostrophic;
+pub mod model_levels;
+pub mod projected;
 pub mod sampling;
 pub mod smoothing;
 pub mod stability;

@@ -50,6 +50,16 @@ fn bracket(coordinate: &[f64], x: f64) -> Option<(usize, f64)> {
 pub fn bilinear(grid: &Grid, values: ArrayView2<f32>, latitude: f64, longitude: f64) -> Result<f32, SamplingError> {
     let (south, north, west, east) = grid.extent();
     let outside = || SamplingError::OutsideGrid { latitude, longitude, south, north, west, east };
+    if let Some(projected) = &grid.projection {
+        // Projected grid: the point's grid coordinates (forward projection),
+        // bilinear in them.
+        let (x, y) = projected.projection.forward(latitude, longitude);
+        let (j, ty) = bracket(&grid.latitudes, y).ok_or_else(outside)?;
+        let (i, tx) = bracket(&grid.longitudes, x).ok_or_else(outside)?;
+        let (j1, i1) = ((j + 1).min(grid.latitudes.len() - 1), (i + 1).min(grid.longitudes.len() - 1));
+        let v = |jj: usize, ii: usize| values[[jj, ii]] as f64;
+        return Ok(((1.0 - ty) * ((1.0 - tx) * v(j, i) + tx * v(j, i1)) + ty * ((1.0 - tx) * v(j1, i) + tx * v(j1, i1))) as f32);
+    }
     let lon = longitude_in_grid(grid, longitude);
     let (j, ty) = bracket(&grid.latitudes, latitude).ok_or_else(outside)?;
     let nx = grid.longitudes.len();
