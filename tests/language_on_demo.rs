@@ -278,3 +278,24 @@ fn audit_in_the_language_gives_the_commands_verdict() {
     let err = s.run("audit() with integration simpson", None).unwrap_err();
     assert!(err.rendered.contains("trapezoid"), "{}", err.rendered);
 }
+
+#[test]
+fn turning_takes_its_weak_wind_threshold_as_an_option() {
+    // An angle between two winds is defined only where both winds and their
+    // difference are strong enough (common practice, no single source; the
+    // default 2.5 m s-1 is physics::thermal_wind::DEFAULT_WEAK_WIND). A
+    // higher threshold can only leave more points missing, zero the fewest,
+    // and the field records the threshold it used.
+    let mut s = session();
+    let missing = |s: &mut Session, code: &str| match value(s, code) {
+        Value::Scalar(f) => (f.data.iter().filter(|x| x.is_nan()).count(), f.attributes.iter().find(|(k, _)| k == "weak_wind_threshold").map(|(_, v)| v.clone())),
+        other => panic!("expected a field, found {}", other.kind()),
+    };
+    let (none, _) = missing(&mut s, "turning(1000 hPa to 500 hPa) with weak_wind 0 m s-1");
+    let (default, recorded) = missing(&mut s, "turning(1000 hPa to 500 hPa)");
+    let (strict, _) = missing(&mut s, "turning(1000 hPa to 500 hPa) with weak_wind 10 kt");
+    assert!(none < default && default < strict, "{none} {default} {strict}");
+    assert!(recorded.expect("the threshold is recorded").contains("2.5"));
+    let err = s.run("turning(1000 hPa to 500 hPa) with weak_wind 3 K", None).unwrap_err();
+    assert!(err.rendered.contains("must be a speed such as 2.5 m s-1"), "{}", err.rendered);
+}

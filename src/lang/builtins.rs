@@ -82,6 +82,8 @@ pub enum OptionKind {
     Angle,
     /// A length: `250 km`.
     Length,
+    /// A speed: `4 m s-1`, `5 kt`.
+    Speed,
 }
 
 #[derive(Debug, Clone, Copy)]
@@ -184,6 +186,7 @@ impl Builtin {
                 }
                 OptionKind::Angle => text.push_str(" ANGLE"),
                 OptionKind::Length => text.push_str(" LENGTH"),
+                OptionKind::Speed => text.push_str(" SPEED"),
             }
         }
         text
@@ -206,6 +209,14 @@ const EQUATOR_BAND: OptionSpec = OptionSpec {
     name: "equator_band",
     kind: OptionKind::Angle,
     documentation: "half-width of the band around the equator where the Coriolis parameter is too small and results are left missing",
+};
+
+/// Below what speed an angle between two winds is not reported (see
+/// `physics::thermal_wind::DEFAULT_WEAK_WIND`).
+const WEAK_WIND: OptionSpec = OptionSpec {
+    name: "weak_wind",
+    kind: OptionKind::Speed,
+    documentation: "leave the turning missing (\"weak wind\") where either wind or the shear between them is slower than this (default 2.5 m s-1; 0 reports every angle)",
 };
 
 /// How the hypsometric integral runs over ln p (see
@@ -363,7 +374,7 @@ pub static BUILTINS: &[Builtin] = &[
     Builtin {
         name: "turning",
         parameters: &[parameter("layer", P::Layer)],
-        options: &[],
+        options: &[EQUATOR_BAND, WEAK_WIND],
         result_kind: ResultKind::ScalarField,
         result_unit: ResultUnit::Fixed("degrees"),
         result_shape: ResultShape::Horizontal,

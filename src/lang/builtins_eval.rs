@@ -145,6 +145,23 @@ impl Options {
         })
     }
 
+    /// The weak-wind threshold of `turning` in m s-1 (`with weak_wind 4 m s-1`),
+    /// else the default.
+    fn weak_wind(&self) -> Result<f64> {
+        match self.values.iter().find(|o| o.0 == "weak_wind") {
+            None => Ok(crate::physics::thermal_wind::DEFAULT_WEAK_WIND),
+            Some((_, _, Value::Number { value, unit }, span)) => {
+                let metres_per_second = Unit::parse("m s-1").expect("m s-1");
+                match unit.convert(*value, &metres_per_second) {
+                    Ok(speed) if speed >= 0.0 && speed.is_finite() => Ok(speed),
+                    Ok(_) => Err(error("the weak-wind threshold cannot be negative", *span).with_help("2.5 m s-1 is the default; 0 reports every angle")),
+                    Err(_) => Err(error(format!("`weak_wind` takes a speed such as 2.5 m s-1, found a number in {unit}"), *span)),
+                }
+            }
+            Some((_, _, other, span)) => Err(error(format!("`weak_wind` takes a speed such as 2.5 m s-1, found {}", other.kind()), *span)),
+        }
+    }
+
     fn equator_band(&self) -> Result<Option<f64>> {
         match self.values.iter().find(|o| o.0 == "equator_band") {
             None => Ok(None),
@@ -245,13 +262,20 @@ pub fn call_builtin(
             }
         }
         "wind_shear" | "turning" | "static_stability" | "eady_growth_rate" => {
-            options.allow(name, if name == "wind_shear" || name == "static_stability" { &[] } else { &["equator_band"] })?;
+            options.allow(
+                name,
+                match name {
+                    "wind_shear" | "static_stability" => &[],
+                    "turning" => &["equator_band", "weak_wind"],
+                    _ => &["equator_band"],
+                },
+            )?;
             args.count(1, "1000 hPa to 500 hPa")?;
             let layer = args.layer(0)?;
             let case = case_of(ev, options.equator_band()?)?;
             match name {
                 "wind_shear" => wrap_vector(case.wind_shear(layer)),
-                "turning" => wrap(case.turning(layer)),
+                "turning" => wrap(case.turning_with(layer, options.weak_wind()?)),
                 "static_stability" => wrap(case.static_stability(layer)),
                 _ => wrap(case.eady_growth_rate(layer)),
             }

@@ -290,6 +290,7 @@ static DIMENSIONS: LazyLock<Vec<NamedDimension>> = LazyLock::new(|| {
 
 static PASCAL: LazyLock<Option<Unit>> = LazyLock::new(|| Unit::parse("Pa").ok());
 static METRE: LazyLock<Option<Unit>> = LazyLock::new(|| Unit::parse("m").ok());
+static METRE_PER_SECOND: LazyLock<Option<Unit>> = LazyLock::new(|| Unit::parse("m s-1").ok());
 static SECOND: LazyLock<Option<Unit>> = LazyLock::new(|| Unit::parse("s").ok());
 static DEGREE: LazyLock<Option<Unit>> = LazyLock::new(|| Unit::parse("degrees").ok());
 static DIMENSIONLESS: LazyLock<Option<Unit>> = LazyLock::new(|| Unit::parse("m/m").ok());

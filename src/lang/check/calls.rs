@@ -416,6 +416,22 @@ impl<'e> Checker<'e> {
                         .help = Some(spec.documentation.to_string());
                     }
                 }
+                OptionKind::Speed => {
+                    let kind = evaluated.clone();
+                    let ok = match &kind {
+                        Type::Unknown => true,
+                        Type::Number { unit, .. } => is_dimension(unit, &METRE_PER_SECOND),
+                        _ => false,
+                    };
+                    if !ok {
+                        self.error(
+                            format!("the option `{name}` must be a speed such as 2.5 m s-1"),
+                            option.value.span,
+                            format!("this is {}", kind.describe()),
+                        )
+                        .help = Some(spec.documentation.to_string());
+                    }
+                }
             }
         }
         chosen
