@@ -400,36 +400,20 @@ impl<'e> Checker<'e> {
                         .help = Some(spec.documentation.to_string());
                     }
                 }
-                OptionKind::Length => {
+                OptionKind::Length | OptionKind::Speed => {
+                    let (reference, example) = match spec.kind {
+                        OptionKind::Length => (&METRE, "a length such as 250 km"),
+                        _ => (&METRE_PER_SECOND, "a speed such as 2.5 m s-1"),
+                    };
                     let kind = evaluated.clone();
                     let ok = match &kind {
                         Type::Unknown => true,
-                        Type::Number { unit, .. } => is_dimension(unit, &METRE),
+                        Type::Number { unit, .. } => is_dimension(unit, reference),
                         _ => false,
                     };
                     if !ok {
-                        self.error(
-                            format!("the option `{name}` must be a length such as 250 km"),
-                            option.value.span,
-                            format!("this is {}", kind.describe()),
-                        )
-                        .help = Some(spec.documentation.to_string());
-                    }
-                }
-                OptionKind::Speed => {
-                    let kind = evaluated.clone();
-                    let ok = match &kind {
-                        Type::Unknown => true,
-                        Type::Number { unit, .. } => is_dimension(unit, &METRE_PER_SECOND),
-                        _ => false,
-                    };
-                    if !ok {
-                        self.error(
-                            format!("the option `{name}` must be a speed such as 2.5 m s-1"),
-                            option.value.span,
-                            format!("this is {}", kind.describe()),
-                        )
-                        .help = Some(spec.documentation.to_string());
+                        self.error(format!("the option `{name}` must be {example}"), option.value.span, format!("this is {}", kind.describe()))
+                            .help = Some(spec.documentation.to_string());
                     }
                 }
             }
