@@ -71,7 +71,7 @@ def test_the_demo_case_passes_with_small_residuals(baroc, demo_case, tmp_path):
 
 def with_heights(change):
     def apply(arrays):
-        arrays["z"] = change(arrays["z"].astype("f8"), arrays)
+        arrays["geopotential"] = change(arrays["geopotential"].astype("f8"), arrays)
         return arrays
     return apply
 
@@ -84,8 +84,8 @@ def one_step_later(z, arrays):
 
 def dry_heights(z, arrays):
     # Re-integrate from the 1000 hPa geopotential with dry temperature.
-    t = arrays["t"].astype("f8")
-    p = arrays["level"].astype("f8") * 100.0
+    t = arrays["temperature"].astype("f8")
+    p = arrays["pressure"].astype("f8") * 100.0
     out = z.copy()
     for k in range(1, len(p)):
         out[:, k] = out[:, k - 1] + RD * 0.5 * (t[:, k - 1] + t[:, k]) * np.log(p[k - 1] / p[k])
@@ -93,16 +93,16 @@ def dry_heights(z, arrays):
 
 
 def swap_700_600(arrays):
-    levels = list(arrays["level"])
+    levels = list(arrays["pressure"])
     a, b = levels.index(700.0), levels.index(600.0)
-    t = arrays["t"].copy()
+    t = arrays["temperature"].copy()
     t[:, [a, b]] = t[:, [b, a]]
-    arrays["t"] = t
+    arrays["temperature"] = t
     return arrays
 
 
 def celsius(arrays):
-    arrays["t"] = arrays["t"] - 273.15  # still labelled K
+    arrays["temperature"] = arrays["temperature"] - 273.15  # still labelled K
     return arrays
 
 
