@@ -293,9 +293,14 @@ fn virtual_or_dry(temperature: f64, specific_humidity: f64) -> f64 {
 
 /// Minimum, maximum and count outside [low, high] of the finite values.
 fn range_of(values: &[f32], low: f64, high: f64) -> (f64, f64, usize) {
+    range_of_iter(values.iter().copied(), low, high)
+}
+
+/// `range_of` over values computed on the fly (no temporary array).
+fn range_of_iter(values: impl Iterator<Item = f32>, low: f64, high: f64) -> (f64, f64, usize) {
     let (mut lo, mut hi, mut outside) = (f32::INFINITY, f32::NEG_INFINITY, 0usize);
     let (low, high) = (low as f32, high as f32);
-    for &x in values.iter().filter(|x| x.is_finite()) {
+    for x in values.filter(|x| x.is_finite()) {
         lo = lo.min(x);
         hi = hi.max(x);
         outside += usize::from(x < low || x > high);
@@ -451,19 +456,21 @@ pub fn audit(inputs: &AuditInputs, settings: &AuditSettings) -> Result<AuditRepo
     let mut geostrophic_rows = Vec::new();
     if let Some((u, v)) = &inputs.wind {
         let (u, v) = (u.as_standard_layout(), v.as_standard_layout());
-        let (ut, vt) = thermal_wind_from_thickness(inputs.grid, c, thickness.view(), settings.equator_band);
+        // One layer's thermal wind at a time inside its task: no full-size
+        // [time x layer] intermediates, each layer's pair dropped after use.
         let per_task: Vec<Vec<ThermalWindRow>> = (0..nt * layers)
             .into_par_iter()
             .map(|task| {
                 let (t, l) = (task / layers, task % layers);
                 let plan = &plans[l];
+                let (ut, vt) = thermal_wind_from_thickness(inputs.grid, c, thickness.slice(ndarray::s![task..task + 1, .., ..]), settings.equator_band);
                 let mut sums = vec![Moments::default(); bands.len()];
                 for j in 0..ny {
                     let lat = inputs.grid.latitudes[j];
                     let Some(b) = bands.iter().position(|band| band.contains(lat)) else { continue };
                     let (u_top, u_bottom) = (u.slice(ndarray::s![t, plan.top, j, ..]), u.slice(ndarray::s![t, plan.bottom, j, ..]));
                     let (v_top, v_bottom) = (v.slice(ndarray::s![t, plan.top, j, ..]), v.slice(ndarray::s![t, plan.bottom, j, ..]));
-                    let (u_thermal, v_thermal) = (ut.slice(ndarray::s![task, j, ..]), vt.slice(ndarray::s![task, j, ..]));
+                    let (u_thermal, v_thermal) = (ut.slice(ndarray::s![0, j, ..]), vt.slice(ndarray::s![0, j, ..]));
                     let rows = [u_top, u_bottom, v_top, v_bottom, u_thermal, v_thermal].map(|r| r.to_slice().expect("contiguous rows"));
                     for i in 0..nx {
                         let du = rows[0][i] as f64 - rows[1][i] as f64 - rows[4][i] as f64;
@@ -493,14 +500,15 @@ pub fn audit(inputs: &AuditInputs, settings: &AuditSettings) -> Result<AuditRepo
 
         // Geostrophic departure at each level.
         let slices = heights.view().into_shape_with_order((nt * nz, ny, nx)).map_err(|e| AuditError::Inconsistent(e.to_string()))?;
-        let (ug, vg) = geostrophic_wind(inputs.grid, c, slices, GeopotentialKind::Height, settings.equator_band);
         geostrophic_rows = (0..nt * nz)
             .into_par_iter()
             .map(|task| {
                 let (t, k) = (task / nz, task % nz);
+                // This level's geostrophic wind only, dropped after use.
+                let (ug, vg) = geostrophic_wind(inputs.grid, c, slices.slice(ndarray::s![task..task + 1, .., ..]), GeopotentialKind::Height, settings.equator_band);
                 let mut m = Moments::default();
                 for j in 0..ny {
-                    let rows = [u.slice(ndarray::s![t, k, j, ..]), v.slice(ndarray::s![t, k, j, ..]), ug.slice(ndarray::s![task, j, ..]), vg.slice(ndarray::s![task, j, ..])]
+                    let rows = [u.slice(ndarray::s![t, k, j, ..]), v.slice(ndarray::s![t, k, j, ..]), ug.slice(ndarray::s![0, j, ..]), vg.slice(ndarray::s![0, j, ..])]
                         .map(|r| r.to_slice().expect("contiguous rows"));
                     for i in 0..nx {
                         let (du, dv) = (rows[0][i] as f64 - rows[2][i] as f64, rows[1][i] as f64 - rows[3][i] as f64);
@@ -526,31 +534,31 @@ pub fn audit(inputs: &AuditInputs, settings: &AuditSettings) -> Result<AuditRepo
             let mut rows = Vec::new();
             let standard_t = standard_atmosphere::temperature_at_pressure(p);
             let standard_z = standard_atmosphere::height_of_pressure(p);
-            let level_slice = |a: &ndarray::ArrayView4<'_, f32>| {
-                let (_, _, ny, nx) = a.dim();
+            // The level's values borrowed in place (standard layout): no copy.
+            fn level_slice<'v>(a: &ndarray::ArrayView4<'v, f32>, t: usize, k: usize) -> &'v [f32] {
+                let (_, nz, ny, nx) = a.dim();
                 let flat = a.to_slice().expect("standard layout");
                 let start = (t * nz + k) * ny * nx;
-                flat[start..start + ny * nx].to_vec()
-            };
+                &flat[start..start + ny * nx]
+            }
             if let Some(ts) = standard_t {
                 let (low, high) = (ts - TEMPERATURE_MARGIN_KELVIN, ts + TEMPERATURE_MARGIN_KELVIN);
-                let (lo, hi, outside) = range_of(&level_slice(&temperature_view), low, high);
+                let (lo, hi, outside) = range_of(level_slice(&temperature_view, t, k), low, high);
                 rows.push(PlausibilityRow { time: label(t), level_hpa: hpa(p), quantity: "temperature".into(), units: "K".into(), minimum: lo, maximum: hi, allowed_low: low, allowed_high: high, outside });
             }
             if let Some(zs) = standard_z {
                 let margin = HEIGHT_MARGIN_METRES + HEIGHT_MARGIN_FRACTION * zs.abs();
                 let (low, high) = (zs - margin, zs + margin);
-                let (lo, hi, outside) = range_of(&level_slice(&heights_view), low, high);
+                let (lo, hi, outside) = range_of(level_slice(&heights_view, t, k), low, high);
                 rows.push(PlausibilityRow { time: label(t), level_hpa: hpa(p), quantity: "geopotential height".into(), units: "m".into(), minimum: lo, maximum: hi, allowed_low: low, allowed_high: high, outside });
             }
             if let Some((u, v)) = &wind_views {
                 // Squared speeds against the squared limit: no square root per point.
-                let (us, vs) = (level_slice(u), level_slice(v));
-                let squared: Vec<f32> = us.iter().zip(&vs).map(|(&a, &b)| a * a + b * b).collect();
-                let (lo, hi, outside) = range_of(&squared, 0.0, MAXIMUM_WIND_SPEED * MAXIMUM_WIND_SPEED);
+                let (us, vs) = (level_slice(u, t, k), level_slice(v, t, k));
+                let (lo, hi, outside) = range_of_iter(us.iter().zip(vs).map(|(&a, &b)| a * a + b * b), 0.0, MAXIMUM_WIND_SPEED * MAXIMUM_WIND_SPEED);
                 rows.push(PlausibilityRow { time: label(t), level_hpa: hpa(p), quantity: "wind speed".into(), units: "m/s".into(), minimum: lo.sqrt(), maximum: hi.sqrt(), allowed_low: 0.0, allowed_high: MAXIMUM_WIND_SPEED, outside });
             }
-            let negative = humidity_view.as_ref().map_or(0, |q| level_slice(q).iter().filter(|&&x| x < 0.0).count());
+            let negative = humidity_view.as_ref().map_or(0, |q| level_slice(q, t, k).iter().filter(|&&x| x < 0.0).count());
             // Heights must increase upward: checked once per layer, by the
             // task of the layer's bottom level.
             let mut non_monotone = 0;

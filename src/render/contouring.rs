@@ -500,6 +500,60 @@ mod tests {
         assert_eq!(lines[0].lines.len(), 2, "the line is cut in two by the gap");
     }
 
+    /// Even-odd point-in-rings test (the rule the painter fills by).
+    fn inside(rings: &[Path], (px, py): (f64, f64)) -> bool {
+        let mut odd = false;
+        for ring in rings {
+            let n = ring.len();
+            for i in 0..n {
+                let (a, b) = (ring[i], ring[(i + 1) % n]);
+                if (a.1 > py) != (b.1 > py) && px < a.0 + (py - a.1) * (b.0 - a.0) / (b.1 - a.1) {
+                    odd = !odd;
+                }
+            }
+        }
+        odd
+    }
+
+    #[test]
+    fn interior_missing_hole_beside_a_border_gap_is_inside_the_missing_area() {
+        // The demo's turning map shape: a disc of missing nodes (radius 3)
+        // wholly surrounded by valid values, and a missing bay touching the
+        // southern border. Both must lie inside the hatched (missing) area
+        // by the even-odd rule, and valid ground between them must not.
+        let x = grid(21, 1.0);
+        let y = grid(21, 1.0);
+        let mut values: Vec<f64> = y.iter().flat_map(|&yv| x.iter().map(move |&xv| xv - yv)).collect();
+        for iy in 0..21 {
+            for ix in 0..21 {
+                let (dx, dy) = (ix as f64 - 10.0, iy as f64 - 12.0);
+                let in_hole = dx * dx + dy * dy <= 9.0;
+                let in_bay = iy <= 2 && (6..=14).contains(&ix);
+                if in_hole || in_bay {
+                    values[iy * 21 + ix] = f64::NAN;
+                }
+            }
+        }
+        let field = GridField::new(&values, &x, &y).unwrap();
+        let filled = field.filled(&[-5.0, 0.0, 5.0]).unwrap();
+        let missing = &filled.missing_area;
+        assert!(inside(missing, (10.0, 12.0)), "hole centre not hatched");
+        assert!(inside(missing, (12.0, 13.0)), "hole off-centre not hatched");
+        assert!(inside(missing, (10.0, 0.5)), "border bay not hatched");
+        assert!(!inside(missing, (10.0, 6.0)), "valid ground between them hatched");
+        assert!(!inside(missing, (2.0, 18.0)), "valid corner hatched");
+        // The hole's boundary runs halfway between missing and valid nodes:
+        // its area lies between the discs of radius 3 and 4 (analytic bounds).
+        let hole: Vec<Path> = missing
+            .iter()
+            .filter(|r| inside(&[(*r).clone()], (10.0, 12.0)))
+            .cloned()
+            .collect();
+        let area = region_area(&hole);
+        let pi = std::f64::consts::PI;
+        assert!(area > 9.0 * pi && area < 16.0 * pi, "hole area {area}");
+    }
+
     #[test]
     fn inconsistent_shapes_are_reported_not_panicked_on() {
         let x = grid(3, 1.0);
