@@ -262,13 +262,14 @@ def baroc_fields(path):
 # thickness ~5500 m -> f32 spacing 5e-4 m; winds from differences of f32
 # fields divided by f, where f32 rounding of the thickness (~5e-4 m over
 # 28 km, times g/f ~ 1e5 s) gives ~2e-3 m s-1; advection ~1e-3 K/day.
-# The turning angle is ill-conditioned where the winds are near the weak-wind
-# threshold (the two sides may mask a point differently) or nearly
-# antiparallel; it is compared where both define it, to 1e-2 degree.
+# The turning angle is ill-conditioned near the weak-wind threshold: a wind
+# difference of 1e-2 m s-1 on a 2.5 m s-1 wind turns it by up to
+# 1e-2/2.5 rad = 0.23 degree; it is compared where both define it, to 0.5
+# degree (and at most 1 point in 10,000 may be masked by one side only).
 TOLERANCES = {
     "layer_thickness": 5e-3, "thermal_u": 2e-2, "thermal_v": 2e-2,
     "thermal_from_heights_u": 2e-2, "thermal_from_heights_v": 2e-2,
-    "ageostrophic_u": 2e-2, "ageostrophic_v": 2e-2, "warming": 1e-2, "veering": 1e-2,
+    "ageostrophic_u": 2e-2, "ageostrophic_v": 2e-2, "warming": 1e-2, "veering": 0.5,
 }
 
 
@@ -350,6 +351,8 @@ def main():
         print(f"  thickness path: general layer integral ({method})")
         print(f"{'netCDF4-python + numpy':<34}{plain_seconds:>9.2f}")
         print(f"  read {split['read']:.2f} s, compute {split['compute']:.2f} s, write {split['write']:.2f} s (interpreter start and imports excluded)")
+        if args.area == "recipe":
+            print("  note: the plain script reads and computes the whole globe and then crops to the box, while Baroc reads only the box; --area global is the like-for-like comparison")
         ratio = plain_seconds / baroc_seconds
         print(f"end to end: baroc is {ratio:.2f}x the plain script (goal >= 5x: {'met' if ratio >= 5 else 'not met'})")
         print("cross-check of the two outputs:")
