@@ -328,10 +328,21 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
         ));
         return Ok(());
     }
+    // BAROC_TIMINGS=1 prints the split of the run on stderr, for
+    // benches/end_to_end.py (reading is lazy, so it falls inside evaluate).
+    let timings = std::env::var_os("BAROC_TIMINGS").is_some_and(|v| !v.is_empty() && v != "0");
+    let started = std::time::Instant::now();
     let outcome = baroc::runner::run(&request).map_err(|e| e.0)?;
+    if timings {
+        eprintln!("timings: evaluate (read + compute) {:.3} s", started.elapsed().as_secs_f64());
+    }
     if let Some(path) = &output {
         let attributes = shard_plan.as_ref().map(|p| p.attributes()).unwrap_or_default();
+        let started = std::time::Instant::now();
         let names = baroc::runner::write_results_with(path, &outcome, &request, attributes).map_err(|e| e.0)?;
+        if timings {
+            eprintln!("timings: write {:.3} s", started.elapsed().as_secs_f64());
+        }
         out(&format!("wrote {} to {}\n", names.join(", "), path.display()));
     }
     if let Some(path) = &report {
