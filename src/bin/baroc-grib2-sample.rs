@@ -16,6 +16,12 @@
 //!   2 E), vertical coordinate values a = 0, 5000, 10000, 0 Pa and
 //!   b = 1, 0.7, 0.3, 0; value = 290 - 10 * level + 0.5 * k for the k-th
 //!   point in scan order; and surface pressure (type 1) = 100000 + 10 * k Pa.
+//! - `lambert-isobaric.grib2`: geopotential height and u, v at 500 hPa on a
+//!   Lambert conformal grid (template 3.30: 40 x 30 points, first point
+//!   50 N 32 W scanning from the south-west corner, 40 km spacing, standard
+//!   parallels 35 and 55 N, orientation 10 W, winds flagged grid-relative);
+//!   height = 5570 - 900 sin(lat) + 360 cos(lat) sin(3 lon) m, u = 12 + k /
+//!   1000, v = -3 + k / 2000 m/s for the k-th point in scan order.
 
 use baroc::io::grib2::{days_from_civil, Earth, GridDefinition, LambertConformal, LatLonGrid};
 use baroc::io::grib2_writer::{write_file, Level, Message};
@@ -122,6 +128,62 @@ fn main() {
         bits: 16,
     });
     if let Err(e) = write_file(&directory.join("lambert-hybrid.grib2"), &messages) {
+        eprintln!("{e}");
+        std::process::exit(1);
+    }
+
+    // The point positions come from the reader of the file (the test asks
+    // ecCodes for them); only the height needs each point's latitude and
+    // longitude, computed here with Baroc's own projection.
+    let (nx, ny, spacing) = (40usize, 30usize, 40_000.0);
+    let projection = baroc::projection::Projection::LambertConformal(
+        baroc::projection::LambertConformal::new((35.0, 55.0), -10.0, 45.0, 0.0, 0.0, 6_371_229.0).expect("valid parallels"),
+    );
+    let (first_latitude, first_longitude) = (50.0, -32.0);
+    let (x0, y0) = projection.forward(first_latitude, first_longitude);
+    let lambert = GridDefinition::LambertConformal(LambertConformal {
+        nx,
+        ny,
+        first_latitude,
+        first_longitude,
+        true_scale_latitude: 45.0,
+        orientation_longitude: -10.0,
+        dx_metres: spacing,
+        dy_metres: spacing,
+        projection_centre_flag: 0,
+        resolution_flags: 0x08,
+        scanning_mode: 0x40,
+        first_standard_parallel: 35.0,
+        second_standard_parallel: 55.0,
+        south_pole_latitude: -90.0,
+        south_pole_longitude: 0.0,
+        earth: Earth { shape: 6, radius: None, major_axis: None, minor_axis: None },
+    });
+    let mut height = Vec::new();
+    for j in 0..ny {
+        for i in 0..nx {
+            let (lat, lon) = projection.inverse(x0 + spacing * i as f64, y0 + spacing * j as f64);
+            let (phi, lambda) = (lat.to_radians(), lon.to_radians());
+            height.push((5570.0 - 900.0 * phi.sin() + 360.0 * phi.cos() * (3.0 * lambda).sin()) as f32);
+        }
+    }
+    let u: Vec<f32> = (0..nx * ny).map(|k| 12.0 + k as f32 / 1000.0).collect();
+    let v: Vec<f32> = (0..nx * ny).map(|k| -3.0 + k as f32 / 2000.0).collect();
+    let messages: Vec<Message> = [(3u8, 5u8, &height), (2, 2, &u), (2, 3, &v)]
+        .into_iter()
+        .map(|(category, number, values)| Message {
+            discipline: 0,
+            category,
+            number,
+            reference_time,
+            forecast_hours: 0,
+            level: Level::Isobaric(50_000.0),
+            grid: &lambert,
+            values,
+            bits: 24,
+        })
+        .collect();
+    if let Err(e) = write_file(&directory.join("lambert-isobaric.grib2"), &messages) {
         eprintln!("{e}");
         std::process::exit(1);
     }

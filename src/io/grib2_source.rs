@@ -10,9 +10,13 @@
 //!
 //! Grids: template 3.0 (latitude-longitude, any scan direction) maps onto
 //! `grid::Grid`, rows in the file's latitude order and columns always west
-//! to east. Rotated and projected grids (3.1, 3.20, 3.30) are parsed but
-//! refused with a message naming the file, never read as if they were
-//! latitude-longitude. Hybrid levels (type 105) are indexed with their
+//! to east. Polar stereographic (3.20) and Lambert conformal (3.30) grids
+//! become projected grids (`projection::ProjectedGrid`) with x and y
+//! ascending, from the first point and the increments; winds flagged
+//! grid-relative (flag table 3.3 bit 5) are named x_wind / y_wind so the
+//! dataset turns them to earth-relative on read. Rotated latitude-longitude
+//! (3.1) is parsed but refused with a message naming the file, never read
+//! as if it were latitude-longitude. Hybrid levels (type 105) are indexed with their
 //! level numbers and vertical coordinate values, which the variable's
 //! attributes and `GribSource::hybrid_levels` carry; reading them as
 //! pressure levels is refused.
@@ -67,6 +71,9 @@ struct Layout {
     reverse_columns: bool,
     /// Adjacent points run along a meridian (flag table 3.4 bit 3).
     column_major: bool,
+    /// Projected grids only: the file scans from the top row down (flag
+    /// table 3.4 bit 2 clear), so rows are reversed to put y ascending.
+    reverse_rows: bool,
 }
 
 pub struct GribSource {
@@ -158,7 +165,105 @@ fn latlon_grid(g: &LatLonGrid) -> Result<(Grid, Layout), String> {
         east -= 360.0;
     }
     let longitudes = spread(west, east, g.ni);
-    Ok((Grid::new(latitudes, longitudes), Layout { ni: g.ni, nj: g.nj, reverse_columns, column_major }))
+    Ok((Grid::new(latitudes, longitudes), Layout { ni: g.ni, nj: g.nj, reverse_columns, column_major, reverse_rows: false }))
+}
+
+/// The radius of a spherical earth of code table 3.2, in m. Baroc's
+/// projections are spherical, so oblate shapes are refused rather than read
+/// on a sphere (which would shift points by up to some 20 km).
+fn sphere_radius(earth: &grib2::Earth) -> Result<f64, String> {
+    match earth.shape {
+        0 => Ok(6_367_470.0),
+        1 => match earth.radius {
+            Some(r) if r.is_finite() && r > 1e6 => Ok(r),
+            other => Err(format!(
+                "its earth shape is 1 (a sphere of radius given in the message, code table 3.2) but the radius is {}",
+                other.map_or("missing".to_string(), |r| format!("{r} m"))
+            )),
+        },
+        6 => Ok(6_371_229.0),
+        8 => Ok(6_371_200.0),
+        other => Err(format!(
+            "its earth shape {other} (code table 3.2) is an oblate spheroid or unknown; Baroc's projections are spherical and read shapes 0 (radius 6,367,470 m), 1 (radius given), 6 (6,371,229 m) and 8 (6,371,200 m)"
+        )),
+    }
+}
+
+/// The grid's coordinates along one axis in ascending order from the first
+/// point's coordinate, the spacing and the scan direction: a file scanning
+/// negatively starts at the largest coordinate.
+fn ascending_axis(first: f64, spacing: f64, n: usize, positive: bool) -> Vec<f64> {
+    (0..n).map(|k| if positive { first + spacing * k as f64 } else { first - spacing * (n - 1 - k) as f64 }).collect()
+}
+
+/// A projected grid (templates 3.20 and 3.30) as a `Grid` with its
+/// `ProjectedGrid`: x and y in metres from the projection of the first
+/// point (La1, Lo1) and the increments Dx, Dy (metres in the projection
+/// plane), ascending whatever the scan direction, and the layout that maps
+/// scan order onto it. Fails on an oblate earth, a bipolar projection,
+/// alternating row scans and parameters the projection refuses.
+fn projected_grid(definition: &GridDefinition) -> Result<(Grid, Layout), String> {
+    use crate::projection::{LambertConformal, PolarStereographic, Pole, ProjectedGrid, Projection};
+    let (nx, ny, first_latitude, first_longitude, dx, dy, centre, mode, earth) = match definition {
+        GridDefinition::LambertConformal(g) => {
+            (g.nx, g.ny, g.first_latitude, g.first_longitude, g.dx_metres, g.dy_metres, g.projection_centre_flag, g.scanning_mode, &g.earth)
+        }
+        GridDefinition::PolarStereographic(g) => {
+            (g.nx, g.ny, g.first_latitude, g.first_longitude, g.dx_metres, g.dy_metres, g.projection_centre_flag, g.scanning_mode, &g.earth)
+        }
+        other => return Err(format!("its grid (template 3.{}) is not a projected grid", other.template())),
+    };
+    if mode & 0x10 != 0 {
+        return Err(format!("its scanning mode {mode:#04x} reverses every other row (flag table 3.4 bit 4), which Baroc does not read"));
+    }
+    if nx == 0 || ny == 0 || !(dx > 0.0 && dy > 0.0) {
+        return Err(format!("its grid has {nx} x {ny} points spaced {dx} m by {dy} m"));
+    }
+    // Flag table 3.5: bit 1 (0x80) the south pole is on the projection
+    // plane; bit 2 (0x40) bipolar and symmetric.
+    if centre & 0x40 != 0 {
+        return Err(format!("its projection centre flag {centre:#04x} asks for a bipolar projection (flag table 3.5 bit 2), which Baroc does not read"));
+    }
+    let south = centre & 0x80 != 0;
+    let radius = sphere_radius(earth)?;
+    let projection = match definition {
+        GridDefinition::LambertConformal(g) => {
+            let parallels = (g.first_standard_parallel, g.second_standard_parallel);
+            if south != (parallels.0 < 0.0) {
+                return Err(format!(
+                    "its projection centre flag says the {} pole is on the projection plane, but its standard parallels {} and {} are in the other hemisphere",
+                    if south { "south" } else { "north" },
+                    parallels.0,
+                    parallels.1
+                ));
+            }
+            // The origin latitude only shifts y; LaD is where GRIB2 gives Dx
+            // and Dy, so it is the natural origin.
+            let origin = if g.true_scale_latitude.abs() < 90.0 { g.true_scale_latitude } else { parallels.0 };
+            Projection::LambertConformal(
+                LambertConformal::new(parallels, g.orientation_longitude, origin, 0.0, 0.0, radius).map_err(|e| format!("its Lambert conformal grid: {e}"))?,
+            )
+        }
+        GridDefinition::PolarStereographic(g) => Projection::PolarStereographic(
+            PolarStereographic::with_standard_parallel(
+                if south { Pole::South } else { Pole::North },
+                g.orientation_longitude,
+                g.true_scale_latitude,
+                0.0,
+                0.0,
+                radius,
+            )
+            .map_err(|e| format!("its polar stereographic grid: {e}"))?,
+        ),
+        _ => unreachable!("matched above"),
+    };
+    let (x0, y0) = projection.forward(first_latitude, first_longitude);
+    let reverse_columns = mode & 0x80 != 0;
+    let reverse_rows = mode & 0x40 == 0;
+    let x = ascending_axis(x0, dx, nx, !reverse_columns);
+    let y = ascending_axis(y0, dy, ny, !reverse_rows);
+    let layout = Layout { ni: nx, nj: ny, reverse_columns, column_major: mode & 0x20 != 0, reverse_rows };
+    Ok((Grid::projected(ProjectedGrid::new(projection, x, y)), layout))
 }
 
 impl GribSource {
@@ -181,9 +286,11 @@ impl GribSource {
             GridDefinition::LatLon(g) => {
                 latlon_grid(g).map_err(|e| DataError::Invalid(format!("{}: {e}", where_is(&paths, &first))))?
             }
+            projected @ (GridDefinition::LambertConformal(_) | GridDefinition::PolarStereographic(_)) => projected_grid(projected)
+                .map_err(|e| DataError::Invalid(format!("{}: {e}. Grid parameters: {}", where_is(&paths, &first), projected.parameters())))?,
             other => {
                 return Err(DataError::Invalid(format!(
-                    "{}: projected grid (template 3.{}, {}) is not supported yet; Baroc reads latitude-longitude grids (template 3.0). Grid parameters: {}",
+                    "{}: projected grid (template 3.{}, {}) is not supported yet; Baroc reads latitude-longitude (template 3.0), polar stereographic (3.20) and Lambert conformal (3.30) grids. Grid parameters: {}",
                     where_is(&paths, &first),
                     other.template(),
                     other.name(),
@@ -192,6 +299,15 @@ impl GribSource {
             }
         };
         let grid = Arc::new(grid);
+        // Flag table 3.3 bit 5 (0x08): u and v are along the grid's x and y
+        // rather than east and north. Only projected grids turn them; on a
+        // latitude-longitude grid the two are the same directions.
+        let resolution_flags = match &first.field.grid {
+            GridDefinition::LambertConformal(g) => g.resolution_flags,
+            GridDefinition::PolarStereographic(g) => g.resolution_flags,
+            _ => 0,
+        };
+        let grid_relative_winds = grid.projection.is_some() && resolution_flags & 0x08 != 0;
 
         // Check every message before grouping: the same grid, a packing
         // the decoder knows, a readable valid time.
@@ -313,6 +429,9 @@ impl GribSource {
                 ("GRIB2_fixed_surface_type".to_string(), surface_kind.to_string()),
                 ("GRIB2_packing".to_string(), packings.join(", ")),
             ];
+            if grid_relative_winds && matches!(parameter.and_then(|p| p.standard_name), Some("eastward_wind" | "northward_wind")) {
+                attributes.push(("GRIB2_wind_components".into(), "grid-relative (flag table 3.3 bit 5 set)".into()));
+            }
             if let Some(h) = &hybrid {
                 attributes.push(("GRIB2_hybrid_level_numbers".into(), join_numbers(&h.levels)));
                 attributes.push(("GRIB2_hybrid_coefficients".into(), join_numbers(&h.pv)));
@@ -320,6 +439,14 @@ impl GribSource {
             // Only isobaric and hybrid fields and the named surface fields
             // carry a standard name, so roles never pick a 2 m temperature.
             let standard_name = match surface_kind {
+                // Grid-relative components carry the CF names of components
+                // along x and y, so the dataset turns them to east and north
+                // on read (`projected::rotate_component`), as for NetCDF.
+                grib2::SURFACE_ISOBARIC | grib2::SURFACE_HYBRID if grid_relative_winds => parameter.and_then(|p| match p.standard_name {
+                    Some("eastward_wind") => Some("x_wind"),
+                    Some("northward_wind") => Some("y_wind"),
+                    other => other,
+                }),
                 grib2::SURFACE_ISOBARIC | grib2::SURFACE_HYBRID => parameter.and_then(|p| p.standard_name),
                 grib2::SURFACE_GROUND if name == "sp" => Some("surface_air_pressure"),
                 grib2::SURFACE_MEAN_SEA_LEVEL if name == "prmsl" => Some("air_pressure_at_mean_sea_level"),
@@ -389,7 +516,7 @@ impl GribSource {
                 field.packing
             ))
         };
-        let Layout { ni, nj, reverse_columns, column_major } = self.layout;
+        let Layout { ni, nj, reverse_columns, column_major, reverse_rows } = self.layout;
         let points = ni * nj;
         let mut section5 = self.read_span(located.file, field.section5)?;
         let section7 = self.read_span(located.file, field.section7)?;
@@ -400,7 +527,7 @@ impl GribSource {
             .map_err(|e| fail(e.to_string()))?;
         let values = decoder.dispatch().map_err(|e| fail(e.to_string()))?;
         let mut count = 0usize;
-        if !reverse_columns && !column_major {
+        if !reverse_columns && !column_major && !reverse_rows {
             for (slot, v) in out.iter_mut().zip(values) {
                 *slot = v;
                 count += 1;
@@ -409,7 +536,8 @@ impl GribSource {
             for (p, v) in values.take(points).enumerate() {
                 let (j, i) = if column_major { (p % nj, p / nj) } else { (p / ni, p % ni) };
                 let column = if reverse_columns { ni - 1 - i } else { i };
-                out[j * ni + column] = v;
+                let row = if reverse_rows { nj - 1 - j } else { j };
+                out[row * ni + column] = v;
                 count += 1;
             }
         }
@@ -544,7 +672,16 @@ impl DataSource for GribSource {
         slices.par_chunks_mut(nj * ni).zip(wanted.par_iter()).try_for_each(|(out, located)| self.decode_into(located, out))?;
 
         let mut grid = self.grid.clone();
-        if let Some(region) = &selection.region {
+        if let (Some(region), Some(projected)) = (&selection.region, &self.grid.projection) {
+            // A latitude-longitude box on a projected grid: the block of rows
+            // and columns holding the cells inside it (inverse projection).
+            let (south, north, west, east) = (region.south, region.north, region.west, region.east);
+            let (rows, cols) = super::projected::block_in_box(projected, south, north, west, east)
+                .ok_or_else(|| DataError::EmptyRegion { variable: name.into(), south, north, west, east, grid: grid.describe() })?;
+            let (rows, cols): (Vec<usize>, Vec<usize>) = (rows.collect(), cols.collect());
+            data = data.select(Axis(2), &rows).select(Axis(3), &cols);
+            grid = Arc::new(super::projected::sub_grid(projected, &rows, &cols));
+        } else if let Some(region) = &selection.region {
             let lat: Vec<usize> = (0..grid.latitudes.len())
                 .filter(|&j| grid.latitudes[j] >= region.south - 1e-9 && grid.latitudes[j] <= region.north + 1e-9)
                 .collect();

@@ -369,9 +369,10 @@ mod tests {
         assert_eq!(LambertConformal { first_longitude: -8.25, ..back.clone() }, sent.clone());
         assert_eq!(fields[0].product.first_surface, grib2::Surface { kind: 105, value: Some(2.0) });
         assert_eq!(fields[0].product.pv, pv);
-        let err = GribSource::open(&[&path]).unwrap_err().to_string();
-        assert!(err.contains("projected grid (template 3.30, Lambert conformal) is not supported yet"), "{err}");
-        assert!(err.contains("lcc.grib2 message 1"), "{err}");
+        // The grid is read as a projected grid of 4 x 3 points.
+        let source = GribSource::open(&[&path]).unwrap();
+        let grid = &source.variables()[0].grid;
+        assert_eq!(grid.projection.as_ref().expect("projected").shape(), (3, 4));
     }
 
     #[test]
