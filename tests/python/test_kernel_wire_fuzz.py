@@ -306,7 +306,13 @@ def test_junk_on_iopub_heartbeat_and_raw_tcp_is_ignored(kernel):
         for channel in ("shell", "control", "stdin", "iopub", "hb"):
             for _ in range(5):
                 with tcp.create_connection((info["ip"], info[channel + "_port"]), timeout=5) as raw:
-                    raw.sendall(bytes(rng.getrandbits(8) for _ in range(rng.randrange(1, 4096))))
-                    raw.sendall(b"\xff" + b"\x00" * 8 + b"\x7f" + b"\x03\x00" + b"NULL" + b"\x00" * 48)
+                    try:
+                        raw.sendall(bytes(rng.getrandbits(8) for _ in range(rng.randrange(1, 4096))))
+                        raw.sendall(b"\xff" + b"\x00" * 8 + b"\x7f" + b"\x03\x00" + b"NULL" + b"\x00" * 48)
+                    except (ConnectionResetError, BrokenPipeError):
+                        # The kernel hanging up on bytes that are not ZeroMQ
+                        # is the right answer; what matters is that it then
+                        # goes on serving (checked below).
+                        pass
     assert_serving(km, kc)
     assert not any(MARKER in m["content"].get("text", "") for m in drain_iopub(kc, 0.5) if m["msg_type"] == "stream")
