@@ -18,7 +18,7 @@ const CAUTION: &str = "Baroc is an analysis tool, not a warning service. For for
     name = "baroc",
     version,
     about = "Thermal-wind and balance diagnostics on CF-NetCDF pressure-level grids.",
-    long_about = "Baroc diagnoses how the wind changes with height: geostrophic wind, hydrostatic thickness, layer-mean temperature, thermal wind, temperature advection, ageostrophic shear, stability and baroclinicity, on CF-NetCDF grids.\n\nBaroc is an analysis tool, not a warning service. For forecasts and warnings, defer to your national meteorological service and local practice."
+    long_about = "Baroc diagnoses how the wind changes with height: geostrophic wind, hydrostatic thickness, layer-mean temperature, thermal wind, temperature advection, ageostrophic shear, stability and baroclinicity, on CF-NetCDF and GRIB2 grids.\n\nBaroc is an analysis tool, not a warning service. For forecasts and warnings, defer to your national meteorological service and local practice."
 )]
 struct Cli {
     #[command(subcommand)]

@@ -52,8 +52,6 @@ pub struct HybridLevels {
 /// How a variable's messages fill its table.
 #[derive(Debug, Clone)]
 struct Table {
-    /// Valid times, seconds since 1970, ascending.
-    times: Vec<i64>,
     /// Level values (Pa for isobaric levels, level numbers for hybrid
     /// levels); one `None` for a single-level variable.
     levels: Vec<Option<f64>>,
@@ -476,7 +474,7 @@ impl GribSource {
                 attributes,
                 packed: true,
             });
-            tables.push(Table { times, levels, messages, hybrid });
+            tables.push(Table { levels, messages, hybrid });
         }
         Ok(Self { paths, files, variables, tables, layout, grid })
     }
@@ -637,32 +635,9 @@ impl DataSource for GribSource {
         if table.hybrid.is_some() {
             return Err(no_pressure_levels(info));
         }
-        let time_count = table.times.len();
-        let time_indices: Vec<usize> = match &selection.times {
-            Some(wanted) => {
-                for &i in wanted {
-                    if i >= time_count {
-                        return Err(DataError::TimeOutOfRange { variable: name.into(), index: i, last: time_count - 1 });
-                    }
-                }
-                wanted.clone()
-            }
-            None => (0..time_count).collect(),
-        };
-        let level_indices: Vec<usize> = match (&selection.levels, &info.levels) {
-            (Some(wanted), Some(levels)) => wanted
-                .iter()
-                .map(|&p| {
-                    levels.iter().position(|&l| (l - p).abs() <= 1e-6 * p.abs().max(1.0)).ok_or_else(|| DataError::LevelNotInData {
-                        variable: name.into(),
-                        requested: p / 100.0,
-                        available: levels.iter().map(|l| l / 100.0).collect(),
-                    })
-                })
-                .collect::<Result<_, _>>()?,
-            (Some(_), None) => return Err(DataError::NoLevels { variable: name.into() }),
-            (None, _) => (0..table.levels.len()).collect(),
-        };
+        // Every GRIB2 variable has a time axis (valid times) and, unless
+        // isobaric, one level, so the shared rule applies as it is.
+        let (time_indices, level_indices) = super::selected_indices(name, info, selection)?;
 
         let (nj, ni) = (self.layout.nj, self.layout.ni);
         let wanted: Vec<&Located> =

@@ -118,6 +118,41 @@ pub enum DataError {
 
 /// A plain-text description of a dataset: sources, variables with roles,
 /// units and dimensions, grid, levels and times.
+/// The time and level indices a selection asks of a variable, in the
+/// variable's own order: every time and level when the selection names
+/// none; a variable without a time axis has the one index 0 whatever is
+/// asked. Levels match within a relative 1e-6 (a pressure read as hPa and
+/// compared in Pa). Errors name the variable and what is available.
+pub(crate) fn selected_indices(name: &str, info: &VariableInfo, selection: &Selection) -> Result<(Vec<usize>, Vec<usize>), DataError> {
+    let time_count = info.times.as_ref().map_or(1, |t| t.values.len());
+    let time_indices: Vec<usize> = match &selection.times {
+        Some(wanted) if info.times.is_some() => {
+            for &i in wanted {
+                if i >= time_count {
+                    return Err(DataError::TimeOutOfRange { variable: name.into(), index: i, last: time_count - 1 });
+                }
+            }
+            wanted.clone()
+        }
+        _ => (0..time_count).collect(),
+    };
+    let level_indices: Vec<usize> = match (&selection.levels, &info.levels) {
+        (Some(wanted), Some(levels)) => wanted
+            .iter()
+            .map(|&p| {
+                levels.iter().position(|&l| (l - p).abs() <= 1e-6 * p.abs().max(1.0)).ok_or_else(|| DataError::LevelNotInData {
+                    variable: name.into(),
+                    requested: p / 100.0,
+                    available: levels.iter().map(|l| l / 100.0).collect(),
+                })
+            })
+            .collect::<Result<_, _>>()?,
+        (Some(_), None) => return Err(DataError::NoLevels { variable: name.into() }),
+        (None, levels) => (0..levels.as_ref().map_or(1, |l| l.len())).collect(),
+    };
+    Ok((time_indices, level_indices))
+}
+
 pub fn describe(dataset: &Dataset) -> String {
     let mut out = String::new();
     out.push_str(&format!("sources: {}\n", dataset.labels().join(", ")));

@@ -271,32 +271,7 @@ impl NetcdfSource {
         let packing = self.packings[k];
 
         // Indices wanted along each canonical axis.
-        let time_count = info.times.as_ref().map_or(1, |t| t.values.len());
-        let time_indices: Vec<usize> = match &selection.times {
-            Some(wanted) if info.times.is_some() => {
-                for &i in wanted {
-                    if i >= time_count {
-                        return Err(DataError::TimeOutOfRange { variable: name.into(), index: i, last: time_count - 1 });
-                    }
-                }
-                wanted.clone()
-            }
-            _ => (0..time_count).collect(),
-        };
-        let level_indices: Vec<usize> = match (&selection.levels, &info.levels) {
-            (Some(wanted), Some(levels)) => wanted
-                .iter()
-                .map(|&p| {
-                    levels.iter().position(|&l| (l - p).abs() <= 1e-6 * p.abs().max(1.0)).ok_or_else(|| DataError::LevelNotInData {
-                        variable: name.into(),
-                        requested: p / 100.0,
-                        available: levels.iter().map(|l| l / 100.0).collect(),
-                    })
-                })
-                .collect::<Result<_, _>>()?,
-            (Some(_), None) => return Err(DataError::NoLevels { variable: name.into() }),
-            (None, levels) => (0..levels.as_ref().map_or(1, |l| l.len())).collect(),
-        };
+        let (time_indices, level_indices) = super::selected_indices(name, info, selection)?;
         let grid = &info.grid;
         let (lat_indices, lon_indices, out_lons) = match &selection.region {
             // A latitude-longitude box on a projected grid: the block of rows
