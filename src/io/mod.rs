@@ -160,11 +160,12 @@ pub fn describe(dataset: &Dataset) -> String {
     out.push_str("variables:\n");
     for v in dataset.variables() {
         let role = roles.iter().find(|(_, name)| *name == v.name).map(|(r, _)| format!(" [{}]", r.name())).unwrap_or_default();
+        let long_name = v.long_name.as_deref().map(str::trim).filter(|l| !l.is_empty()).map(|l| format!("{l} ")).unwrap_or_default();
         out.push_str(&format!(
-            "  {}{}: {} ({}){}; {}\n",
+            "  {}{}: {}({}){}; {}\n",
             v.name,
             role,
-            v.long_name.clone().unwrap_or_default(),
+            long_name,
             v.units,
             if v.packed { ", packed" } else { "" },
             v.describe_dimensions()
@@ -178,7 +179,7 @@ pub fn describe(dataset: &Dataset) -> String {
     }
     if let Some(times) = dataset.variables().find_map(|v| v.times.clone()) {
         let labels = times.labels();
-        out.push_str(&format!("times: {} steps, {} to {}\n", labels.len(), labels.first().cloned().unwrap_or_default(), labels.last().cloned().unwrap_or_default()));
+        out.push_str(&format!("times: {} step{}, {} to {}\n", labels.len(), if labels.len() == 1 { "" } else { "s" }, labels.first().cloned().unwrap_or_default(), labels.last().cloned().unwrap_or_default()));
     }
     out
 }
