@@ -112,6 +112,11 @@ pub enum DataError {
     GridMismatch { first: String, first_grid: String, second: String, second_grid: String },
     #[error("{path}: {message}")]
     Netcdf { path: String, message: String },
+    /// A file Baroc understands but cannot use, with the reason in the
+    /// trade's words (a vertical coordinate other than pressure, a
+    /// dimension with no coordinate).
+    #[error("{path}: {message}")]
+    Refused { path: String, message: String },
     #[error("{0}")]
     Invalid(String),
 }
