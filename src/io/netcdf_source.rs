@@ -65,7 +65,13 @@ impl NetcdfSource {
     }
 
     fn open_here(path: PathBuf) -> Result<Self, DataError> {
-        let file = netcdf::open(&path).map_err(|e| DataError::Open { path: path.display().to_string(), message: e.to_string() })?;
+        // A truncated classic file opens, and reads its missing part as
+        // zeros: refused before the library sees it. Other failures are
+        // explained from the file's bytes (io::file_check).
+        if let Some(finding) = super::file_check::before_open(&path) {
+            return Err(DataError::Open { path: path.display().to_string(), message: finding.explain() });
+        }
+        let file = netcdf::open(&path).map_err(|e| DataError::Open { path: path.display().to_string(), message: super::file_check::explain_open_failure(&path, &e.to_string()) })?;
         // Coordinate variables: one-dimensional, named like their dimension.
         let mut coordinates: Vec<(String, Coordinate)> = Vec::new();
         let mut refused_verticals: Vec<(String, String)> = Vec::new();
