@@ -2,15 +2,85 @@
 //! temporary name in the target's directory, then rename (atomic on one
 //! file system). Temporary files are created private (0600); the published
 //! file is made readable like any other output (0644).
+//!
+//! A run with several outputs (a NetCDF file and a report) checks every
+//! output's folder before it computes anything (`check_writable`), writes
+//! each output under a temporary name (`Outputs::stage`) and renames them
+//! only when all were written (`Outputs::publish`): a run that fails leaves
+//! none of them. Messages name the paths the user gave, never the
+//! temporary names.
 
-use std::path::Path;
+use std::path::{Path, PathBuf};
 
 use tempfile::TempPath;
 
+/// The folder a target is written into, as the user wrote it ("." for a
+/// bare file name).
+fn folder_of(target: &Path) -> &Path {
+    target.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."))
+}
+
+/// The folder in words: "the current folder" or "the folder /a/b".
+fn folder_words(folder: &Path) -> String {
+    if folder == Path::new(".") {
+        "the current folder".into()
+    } else {
+        format!("the folder {}", folder.display())
+    }
+}
+
+/// Why a file cannot be created in `folder`, in the user's words, from the
+/// error the system gave (or from a look at the folder).
+fn why_not_writable(folder: &Path, error: &std::io::Error) -> String {
+    let words = folder_words(folder);
+    match std::fs::metadata(folder) {
+        Err(e) if e.kind() == std::io::ErrorKind::NotFound => format!("{words} does not exist"),
+        Ok(m) if !m.is_dir() => format!("{} is not a folder", folder.display()),
+        _ => match error.kind() {
+            std::io::ErrorKind::PermissionDenied => format!("{words} is not writable"),
+            std::io::ErrorKind::ReadOnlyFilesystem => format!("{words} is on a read-only file system"),
+            std::io::ErrorKind::StorageFull => format!("the disk holding {} is full", folder.display()),
+            _ => format!("cannot create a file in {} ({})", folder.display(), plain_os_error(error)),
+        },
+    }
+}
+
+/// An OS error without Rust's "(os error N)" suffix, for messages.
+pub fn plain_os_error(error: &std::io::Error) -> String {
+    let text = error.to_string();
+    match text.find(" (os error ") {
+        Some(i) => text[..i].to_string(),
+        None => text,
+    }
+}
+
+/// Checks, before any work is done, that `target` can be written: its
+/// folder exists, is a folder and takes a new file, and `target` itself is
+/// not a folder. The error says what is wrong with the path the user gave
+/// ("the folder /data/nodir does not exist").
+pub fn check_writable(target: &Path) -> Result<(), String> {
+    if target.as_os_str().is_empty() {
+        return Err("the output path is empty".into());
+    }
+    if target.is_dir() {
+        return Err(format!("{} is a folder; give a file name inside it", target.display()));
+    }
+    let folder = folder_of(target);
+    // Creating (and at once removing) a file is the only test that holds
+    // for every kind of permission, mount and file system.
+    tempfile::Builder::new().prefix(".baroc-check-").tempfile_in(folder).map(drop).map_err(|e| why_not_writable(folder, &e))
+}
+
 /// A temporary path beside `target`, removed again if dropped unpublished.
+/// Its error names the target's folder as the user gave it.
 pub fn temporary_beside(target: &Path) -> std::io::Result<TempPath> {
-    let directory = target.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
-    Ok(tempfile::Builder::new().prefix(".baroc-").suffix(".partial").tempfile_in(directory)?.into_temp_path())
+    let directory = folder_of(target);
+    tempfile::Builder::new()
+        .prefix(".baroc-")
+        .suffix(".partial")
+        .tempfile_in(directory)
+        .map(|f| f.into_temp_path())
+        .map_err(|e| std::io::Error::new(e.kind(), why_not_writable(directory, &e)))
 }
 
 /// Gives the finished temporary file its final name and ordinary permissions.
@@ -20,7 +90,7 @@ pub fn publish(temporary: TempPath, target: &Path) -> std::io::Result<()> {
         use std::os::unix::fs::PermissionsExt;
         std::fs::set_permissions(&temporary, std::fs::Permissions::from_mode(0o644))?;
     }
-    temporary.persist(target).map_err(|e| e.error)
+    temporary.persist(target).map_err(|e| std::io::Error::new(e.error.kind(), plain_os_error(&e.error)))
 }
 
 /// Writes bytes to `target` atomically.
@@ -33,4 +103,136 @@ pub fn write(target: &Path, bytes: &[u8]) -> std::io::Result<()> {
         file.sync_all()?;
     }
     publish(temporary, target)
+}
+
+/// The outputs of one run, published together: each is written under a
+/// temporary name beside its target, and all are renamed only when every
+/// one was written. Dropped unpublished (an error, a panic), the temporary
+/// files are removed and no target is touched.
+#[derive(Default)]
+pub struct Outputs {
+    staged: Vec<(TempPath, PathBuf)>,
+}
+
+impl Outputs {
+    /// Checks every target before anything is computed: each folder can
+    /// take a file (`check_writable`), and no two outputs share a path.
+    /// `targets` pairs what each output is ("the NetCDF output", "the
+    /// report") with its path.
+    pub fn check(targets: &[(&str, &Path)]) -> Result<(), String> {
+        for (i, (what, path)) in targets.iter().enumerate() {
+            check_writable(path).map_err(|why| format!("cannot write {what} {}: {why}", path.display()))?;
+            if let Some((other, _)) = targets[..i].iter().find(|(_, p)| same_path(p, path)) {
+                return Err(format!("{other} and {what} are both {}: give each its own file", path.display()));
+            }
+        }
+        Ok(())
+    }
+
+    pub fn new() -> Self {
+        Self::default()
+    }
+
+    /// A temporary path to write `target`'s content into; it becomes
+    /// `target` at `publish`.
+    pub fn stage(&mut self, target: &Path) -> std::io::Result<PathBuf> {
+        let temporary = temporary_beside(target)?;
+        let path = temporary.to_path_buf();
+        self.staged.push((temporary, target.to_path_buf()));
+        Ok(path)
+    }
+
+    /// Renames every staged file to its target. Should a rename fail (a
+    /// folder removed meanwhile), the targets already renamed are removed
+    /// again, so the run still leaves none of its outputs.
+    pub fn publish(self) -> Result<(), String> {
+        let mut done: Vec<PathBuf> = Vec::new();
+        let mut staged = self.staged.into_iter();
+        for (temporary, target) in staged.by_ref() {
+            if let Err(e) = publish(temporary, &target) {
+                for path in &done {
+                    let _ = std::fs::remove_file(path);
+                }
+                return Err(format!("cannot write {}: {e}", target.display()));
+            }
+            done.push(target);
+        }
+        Ok(())
+    }
+}
+
+/// Whether two paths name one file (also when it does not exist yet).
+fn same_path(a: &Path, b: &Path) -> bool {
+    let resolve = |p: &Path| -> PathBuf {
+        let folder = std::fs::canonicalize(folder_of(p)).unwrap_or_else(|_| folder_of(p).to_path_buf());
+        folder.join(p.file_name().unwrap_or_default())
+    };
+    resolve(a) == resolve(b)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn scratch() -> tempfile::TempDir {
+        tempfile::tempdir().unwrap()
+    }
+
+    #[test]
+    fn a_missing_folder_is_named_as_given() {
+        let dir = scratch();
+        let target = dir.path().join("nodir").join("out.nc");
+        let message = check_writable(&target).unwrap_err();
+        assert_eq!(message, format!("the folder {} does not exist", dir.path().join("nodir").display()));
+        let error = temporary_beside(&target).unwrap_err().to_string();
+        assert_eq!(error, message);
+        assert!(!error.contains(".partial") && !error.contains("os error"));
+    }
+
+    #[test]
+    fn a_file_in_place_of_a_folder_and_a_folder_in_place_of_a_file_are_named() {
+        let dir = scratch();
+        let file = dir.path().join("plain");
+        std::fs::write(&file, b"x").unwrap();
+        assert_eq!(check_writable(&file.join("out.nc")).unwrap_err(), format!("{} is not a folder", file.display()));
+        assert!(check_writable(dir.path()).unwrap_err().ends_with("is a folder; give a file name inside it"));
+        assert!(check_writable(&dir.path().join("fine.nc")).is_ok());
+        // The check leaves nothing behind.
+        assert_eq!(std::fs::read_dir(dir.path()).unwrap().count(), 1);
+    }
+
+    #[test]
+    fn outputs_are_published_together_or_not_at_all() {
+        let dir = scratch();
+        let (a, b) = (dir.path().join("a.nc"), dir.path().join("b.html"));
+        let mut outputs = Outputs::new();
+        std::fs::write(outputs.stage(&a).unwrap(), b"netcdf").unwrap();
+        std::fs::write(outputs.stage(&b).unwrap(), b"html").unwrap();
+        assert!(!a.exists() && !b.exists(), "nothing is visible before publish");
+        outputs.publish().unwrap();
+        assert_eq!(std::fs::read(&a).unwrap(), b"netcdf");
+        assert_eq!(std::fs::read(&b).unwrap(), b"html");
+        // Dropped before publishing (the second output failed): no file.
+        let (c, d) = (dir.path().join("c.nc"), dir.path().join("d.html"));
+        {
+            let mut outputs = Outputs::new();
+            std::fs::write(outputs.stage(&c).unwrap(), b"netcdf").unwrap();
+            let _ = outputs.stage(&d);
+        }
+        assert!(!c.exists() && !d.exists());
+        let names: Vec<String> = std::fs::read_dir(dir.path()).unwrap().map(|e| e.unwrap().file_name().to_string_lossy().into_owned()).collect();
+        assert!(names.iter().all(|n| !n.ends_with(".partial")), "{names:?}");
+    }
+
+    #[test]
+    fn two_outputs_on_one_path_are_refused() {
+        let dir = scratch();
+        let a = dir.path().join("same.nc");
+        let b = dir.path().join(".").join("same.nc");
+        let message = Outputs::check(&[("the NetCDF output", &a), ("the report", &b)]).unwrap_err();
+        assert!(message.starts_with("the NetCDF output and the report are both"), "{message}");
+        let missing = dir.path().join("nodir").join("r.html");
+        let message = Outputs::check(&[("the NetCDF output", &a), ("the report", &missing)]).unwrap_err();
+        assert_eq!(message, format!("cannot write the report {}: the folder {} does not exist", missing.display(), dir.path().join("nodir").display()));
+    }
 }

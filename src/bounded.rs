@@ -117,7 +117,7 @@ pub fn run_to_file(request: &RunRequest, output: &Path, limit: u64, attributes: 
         let mut part = request.clone();
         part.time_steps = Some(steps[block].to_vec());
         let outcome = crate::runner::run(&part)?;
-        let temporary = crate::atomic::temporary_beside(output).map_err(|e| RunError(format!("error: cannot write beside {}: {e}", output.display())))?;
+        let temporary = crate::atomic::temporary_beside(output).map_err(|e| RunError(format!("error: cannot write {}: {e}", output.display())))?;
         // Written under the request's own text, so every piece says the same
         // recipe, as merge checks.
         names = crate::runner::write_results_with(&temporary, &outcome, request, plan.attributes())?;

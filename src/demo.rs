@@ -246,7 +246,11 @@ fn demo_error(path: &Path, e: impl std::fmt::Display) -> crate::io::DataError {
 pub fn write(directory: &Path) -> Result<PathBuf, crate::io::DataError> {
     let path = directory.join(FILE_NAME);
     let fields = generate();
-    std::fs::create_dir_all(directory).map_err(|e| demo_error(&path, e))?;
+    std::fs::create_dir_all(directory).map_err(|e| {
+        let why = if directory.exists() && !directory.is_dir() { "it is a file, not a folder".to_string() } else { crate::atomic::plain_os_error(&e).to_lowercase() };
+        crate::io::DataError::Invalid(format!("cannot create the folder {}: {why}", directory.display()))
+    })?;
+    crate::atomic::check_writable(&path).map_err(|why| crate::io::DataError::Invalid(format!("cannot write the demonstration case into {}: {why}", directory.display())))?;
     let temporary = crate::atomic::temporary_beside(&path).map_err(|e| demo_error(&path, e))?;
     crate::io::netcdf_thread::call(|| write_file(&temporary, &fields).map_err(|e| e.to_string())).map_err(|e| demo_error(&path, e))?;
     crate::atomic::publish(temporary, &path).map_err(|e| demo_error(&path, e))?;

@@ -411,15 +411,41 @@ impl VectorField {
         let mut data = self.eastward.data.clone();
         ndarray::Zip::from(&mut data).and(&self.northward.data).par_for_each(|u, &v| *u = u.hypot(v));
         let mut field = self.eastward.clone_with_data(data);
-        field.name = format!("{}_speed", base_name(&self.eastward.name));
+        field.name = format!("{}_speed", self.name());
         field.long_name = format!("speed of {}", strip_component(&self.eastward.long_name));
         field.standard_name = None;
         field
     }
+
+    /// The vector's own name, from its components' names without the
+    /// component word: `thermal_eastward_wind_1000_500hPa` and
+    /// `thermal_northward_wind_1000_500hPa` make `thermal_wind_1000_500hPa`,
+    /// `eastward_wind` makes `wind`, `shear_eastward` makes `shear`. Speed
+    /// and direction take this name, so they say what vector they measure.
+    pub fn name(&self) -> String {
+        let east = without_component(&self.eastward.name, "eastward");
+        let north = without_component(&self.northward.name, "northward");
+        match (east, north) {
+            (Some(e), Some(n)) if e == n => e,
+            (Some(e), _) => e,
+            _ => self.eastward.name.clone(),
+        }
+    }
+
+    /// The name of the vector's direction (the direction it blows from).
+    pub fn direction_name(&self) -> String {
+        format!("{}_direction", self.name())
+    }
 }
 
-fn base_name(name: &str) -> &str {
-    name.strip_suffix("_eastward").or_else(|| name.strip_prefix("eastward_")).unwrap_or(name)
+/// `name` without the word `component` (as a whole `_`-separated word);
+/// None when the word is not in it or nothing would be left.
+fn without_component(name: &str, component: &str) -> Option<String> {
+    let words: Vec<&str> = name.split('_').collect();
+    let position = words.iter().position(|w| *w == component)?;
+    let rest: Vec<&str> = words.iter().enumerate().filter(|(i, _)| *i != position).map(|(_, w)| *w).collect();
+    let joined = rest.join("_");
+    (!joined.is_empty()).then_some(joined)
 }
 
 fn strip_component(long_name: &str) -> String {
@@ -436,6 +462,27 @@ mod tests {
         assert!(Grid::new(vec![0.0, 1.0], lons).global);
         let regional: Vec<f64> = (0..40).map(|i| -60.0 + i as f64).collect();
         assert!(!Grid::new(vec![0.0, 1.0], regional).global);
+    }
+
+    #[test]
+    fn speed_and_direction_take_the_vector_name() {
+        // Names as the trade says them: the speed of the thermal wind is the
+        // thermal wind speed, not the speed of its eastward component
+        // (common practice, no source).
+        let grid = std::sync::Arc::new(Grid::new(vec![0.0, 1.0], vec![0.0, 1.0]));
+        let field = |name: &str| Field::new(name, "m s-1", ndarray::Array4::zeros((1, 1, 2, 2)), None, None, grid.clone()).unwrap();
+        for (east, north, name) in [
+            ("thermal_eastward_wind_1000_500hPa", "thermal_northward_wind_1000_500hPa", "thermal_wind_1000_500hPa"),
+            ("eastward_wind", "northward_wind", "wind"),
+            ("geostrophic_eastward_wind", "geostrophic_northward_wind", "geostrophic_wind"),
+            ("shear_eastward", "shear_northward", "shear"),
+            ("u", "v", "u"),
+        ] {
+            let w = VectorField::new(field(east), field(north)).unwrap();
+            assert_eq!(w.name(), name);
+            assert_eq!(w.speed().name, format!("{name}_speed"));
+            assert_eq!(w.direction_name(), format!("{name}_direction"));
+        }
     }
 
     #[test]

@@ -296,6 +296,10 @@ fn request(program: ProgramArgs, each_time: bool) -> Result<RunRequest, String> 
 }
 
 fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, each_time: bool, shard: Option<String>, memory_limit: Option<String>) -> Result<(), String> {
+    // Every output is checked before anything is computed, and written
+    // only when all of them were made: a run that fails leaves none.
+    let targets: Vec<(&str, &Path)> = [("the NetCDF output", output.as_deref()), ("the report", report.as_deref())].into_iter().filter_map(|(what, p)| Some((what, p?))).collect();
+    baroc::atomic::Outputs::check(&targets).map_err(|e| format!("error: {e}"))?;
     let mut request = request(program, each_time)?;
     let shard_plan = match &shard {
         Some(text) => {
@@ -336,18 +340,28 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
     if timings {
         eprintln!("timings: evaluate (read + compute) {:.3} s", started.elapsed().as_secs_f64());
     }
+    let mut outputs = baroc::atomic::Outputs::new();
+    let mut written = Vec::new();
     if let Some(path) = &output {
         let attributes = shard_plan.as_ref().map(|p| p.attributes()).unwrap_or_default();
         let started = std::time::Instant::now();
-        let names = baroc::runner::write_results_with(path, &outcome, &request, attributes).map_err(|e| e.0)?;
+        let staged = outputs.stage(path).map_err(|e| format!("error: cannot write {}: {e}", path.display()))?;
+        let names = baroc::runner::write_results_with(&staged, &outcome, &request, attributes).map_err(|e| e.0.replace(&staged.display().to_string(), &path.display().to_string()))?;
         if timings {
             eprintln!("timings: write {:.3} s", started.elapsed().as_secs_f64());
         }
-        out(&format!("wrote {} to {}\n", names.join(", "), path.display()));
+        written.push(format!("wrote {} to {}\n", names.join(", "), path.display()));
     }
     if let Some(path) = &report {
-        baroc::report::build(&outcome, &request, Vec::new()).write(path).map_err(|e| format!("error: cannot write the report: {e}"))?;
-        out(&format!("wrote the report to {}\n", path.display()));
+        let staged = outputs.stage(path).map_err(|e| format!("error: cannot write the report {}: {e}", path.display()))?;
+        baroc::report::build(&outcome, &request, Vec::new())
+            .write(&staged)
+            .map_err(|e| format!("error: cannot write the report {}: {}", path.display(), e.to_string().replace(&staged.display().to_string(), &path.display().to_string())))?;
+        written.push(format!("wrote the report to {}\n", path.display()));
+    }
+    outputs.publish().map_err(|e| format!("error: {e}"))?;
+    for line in written {
+        out(&line);
     }
     if output.is_none() && report.is_none() {
         for r in &outcome.results {
@@ -358,6 +372,7 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
 }
 
 fn merge(output: PathBuf, shards: Vec<PathBuf>, accept_gaps_and_overlaps: bool) -> Result<(), String> {
+    baroc::atomic::Outputs::check(&[("the merged file", &output)]).map_err(|e| format!("error: {e}"))?;
     let request = baroc::merge::MergeRequest { accept_partial_coverage: accept_gaps_and_overlaps, ..baroc::merge::MergeRequest::new(output.clone(), shards) };
     let summary = baroc::merge::merge(&request)?;
     out(&format!("merged {} shards ({} of {} time steps) into {}\n", summary.shards, summary.time_steps, summary.dataset_time_steps, output.display()));
@@ -410,9 +425,22 @@ fn table(program: ProgramArgs, points: Vec<String>, regions: Vec<String>, format
 }
 
 fn demo(output: &Path, time_step: Option<usize>) -> Result<(), String> {
+    if time_step.is_some_and(|step| step >= baroc::demo::TIME_STEPS) {
+        return Err(format!("error: time step {} is out of range: the case has steps 0 to {}", time_step.unwrap_or_default(), baroc::demo::TIME_STEPS - 1));
+    }
     let path = baroc::demo::write(output).map_err(|e| format!("error: {e}"))?;
+    // The case and its report are one output: should the rest fail, the
+    // case file goes too.
+    let result = demo_summary_and_report(output, &path, time_step);
+    if result.is_err() {
+        let _ = std::fs::remove_file(&path);
+    }
+    result
+}
+
+fn demo_summary_and_report(output: &Path, path: &Path, time_step: Option<usize>) -> Result<(), String> {
     out(&format!("wrote the demonstration case to {}\n", path.display()));
-    let dataset = Arc::new(Dataset::open(&[&path]).map_err(|e| format!("error: {e}"))?);
+    let dataset = Arc::new(Dataset::open(&[path]).map_err(|e| format!("error: {e}"))?);
     let steps = baroc::demo::TIME_STEPS;
     let step = time_step.unwrap_or(steps - 1);
     if step >= steps {
@@ -425,7 +453,7 @@ fn demo(output: &Path, time_step: Option<usize>) -> Result<(), String> {
         let rows = baroc::demo::summarise(&case, layer).map_err(|e| format!("error: {e}"))?;
         out(&format!("\n{}", baroc::demo::format_summary(&rows, layer, &label)));
     }
-    match baroc::demo::write_report(output, &path, step) {
+    match baroc::demo::write_report(output, path, step) {
         Ok(report) => out(&format!("\nwrote the case-study report to {}\n", report.display())),
         Err(e) => return Err(format!("error: the report could not be written: {e}")),
     }
@@ -441,6 +469,9 @@ fn audit(files: &[PathBuf], format: Format, thresholds: baroc::audit::Thresholds
         if !(limit.is_finite() && limit > 0.0) {
             return Err(format!("error: a limit must be a positive number, got {limit}"));
         }
+    }
+    if let Some(path) = report {
+        baroc::atomic::Outputs::check(&[("the audit report", path)]).map_err(|e| format!("error: {e}"))?;
     }
     let dataset = Arc::new(Dataset::open(files).map_err(|e| format!("error: {e}"))?);
     let settings = baroc::audit::AuditSettings {

@@ -465,7 +465,7 @@ pub fn merge(request: &MergeRequest) -> Result<MergeSummary, String> {
     if let Some(p) = request.shards.iter().find(|p| same_file(p, &request.output)) {
         return Err(format!("error: the output {} is also given as a shard ({}); write the merged file elsewhere", request.output.display(), p.display()));
     }
-    let temporary = crate::atomic::temporary_beside(&request.output).map_err(|e| format!("error: cannot write beside {}: {e}", request.output.display()))?;
+    let temporary = crate::atomic::temporary_beside(&request.output).map_err(|e| format!("error: cannot write {}: {e}", request.output.display()))?;
     let path: &Path = &temporary;
     let summary = crate::io::netcdf_thread::call(|| merge_on_netcdf_thread(request, path))?;
     crate::atomic::publish(temporary, &request.output).map_err(|e| format!("error: cannot write {}: {e}", request.output.display()))?;

@@ -57,7 +57,7 @@ pub fn provenance(outcome: &RunOutcome, request: &RunRequest) -> Vec<(String, St
         }
         if let Some(t) = dataset.variables().find_map(|v| v.times.clone()) {
             let labels = t.labels();
-            rows.push(("time range".into(), format!("{} to {} ({} steps)", labels.first().cloned().unwrap_or_default(), labels.last().cloned().unwrap_or_default(), labels.len())));
+            rows.push(("time range".into(), format!("{} to {} ({} step{})", labels.first().cloned().unwrap_or_default(), labels.last().cloned().unwrap_or_default(), labels.len(), if labels.len() == 1 { "" } else { "s" })));
         }
         for (source, attrs) in dataset.global_attributes() {
             if let Some((_, title)) = attrs.iter().find(|(k, _)| k == "title") {

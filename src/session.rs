@@ -262,7 +262,7 @@ impl Session {
         }
         if let Some(t) = &info.times {
             let labels = t.labels();
-            text.push_str(&format!("  times: {} to {} ({} steps)\n", labels.first()?, labels.last()?, labels.len()));
+            text.push_str(&format!("  times: {} to {} ({} step{})\n", labels.first()?, labels.last()?, labels.len(), if labels.len() == 1 { "" } else { "s" }));
         }
         text.push_str(&format!("  source: {}", dataset.labels().join(", ")));
         Some(text)

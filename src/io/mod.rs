@@ -12,6 +12,7 @@
 
 pub mod cf;
 pub mod dataset;
+pub mod file_check;
 pub mod grib2;
 pub mod grib2_source;
 pub mod grib2_writer;
@@ -112,6 +113,11 @@ pub enum DataError {
     GridMismatch { first: String, first_grid: String, second: String, second_grid: String },
     #[error("{path}: {message}")]
     Netcdf { path: String, message: String },
+    /// A file Baroc understands but cannot use, with the reason in the
+    /// trade's words (a vertical coordinate other than pressure, a
+    /// dimension with no coordinate).
+    #[error("{path}: {message}")]
+    Refused { path: String, message: String },
     #[error("{0}")]
     Invalid(String),
 }
@@ -160,11 +166,12 @@ pub fn describe(dataset: &Dataset) -> String {
     out.push_str("variables:\n");
     for v in dataset.variables() {
         let role = roles.iter().find(|(_, name)| *name == v.name).map(|(r, _)| format!(" [{}]", r.name())).unwrap_or_default();
+        let long_name = v.long_name.as_deref().map(str::trim).filter(|l| !l.is_empty()).map(|l| format!("{l} ")).unwrap_or_default();
         out.push_str(&format!(
-            "  {}{}: {} ({}){}; {}\n",
+            "  {}{}: {}({}){}; {}\n",
             v.name,
             role,
-            v.long_name.clone().unwrap_or_default(),
+            long_name,
             v.units,
             if v.packed { ", packed" } else { "" },
             v.describe_dimensions()
@@ -178,7 +185,7 @@ pub fn describe(dataset: &Dataset) -> String {
     }
     if let Some(times) = dataset.variables().find_map(|v| v.times.clone()) {
         let labels = times.labels();
-        out.push_str(&format!("times: {} steps, {} to {}\n", labels.len(), labels.first().cloned().unwrap_or_default(), labels.last().cloned().unwrap_or_default()));
+        out.push_str(&format!("times: {} step{}, {} to {}\n", labels.len(), if labels.len() == 1 { "" } else { "s" }, labels.first().cloned().unwrap_or_default(), labels.last().cloned().unwrap_or_default()));
     }
     out
 }

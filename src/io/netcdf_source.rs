@@ -65,12 +65,26 @@ impl NetcdfSource {
     }
 
     fn open_here(path: PathBuf) -> Result<Self, DataError> {
-        let file = netcdf::open(&path).map_err(|e| DataError::Open { path: path.display().to_string(), message: e.to_string() })?;
+        // A truncated classic file opens, and reads its missing part as
+        // zeros: refused before the library sees it. Other failures are
+        // explained from the file's bytes (io::file_check).
+        if let Some(finding) = super::file_check::before_open(&path) {
+            return Err(DataError::Open { path: path.display().to_string(), message: finding.explain() });
+        }
+        let file = netcdf::open(&path).map_err(|e| DataError::Open { path: path.display().to_string(), message: super::file_check::explain_open_failure(&path, &e.to_string()) })?;
         // Coordinate variables: one-dimensional, named like their dimension.
         let mut coordinates: Vec<(String, Coordinate)> = Vec::new();
+        let mut refused_verticals: Vec<(String, String)> = Vec::new();
         for variable in file.variables() {
             let dims = variable.dimensions();
             if dims.len() != 1 || dims[0].name() != variable.name() {
+                continue;
+            }
+            // Vertical coordinates are recognised first (CF 4.3, appendix D),
+            // so data on height, sigma or isentropic levels are refused in
+            // those words rather than as a missing horizontal coordinate.
+            if let Some(refusal) = cf::classify_vertical(&cf::VerticalAttributes::of(&variable)).and_then(|k| k.refusal(&variable.name())) {
+                refused_verticals.push((variable.name(), refusal));
                 continue;
             }
             let Some(axis) = cf::classify_coordinate(&variable) else { continue };
@@ -101,6 +115,8 @@ impl NetcdfSource {
         let mut layouts = Vec::new();
         let mut packings = Vec::new();
         let mut rejected: Vec<String> = Vec::new();
+        let mut on_refused_vertical: Vec<(String, String)> = Vec::new();
+        let mut unknown_dimensions: Vec<(String, String, usize)> = Vec::new();
         let mut projected_grids = Vec::new();
         for variable in file.variables() {
             let name = variable.name();
@@ -123,6 +139,10 @@ impl NetcdfSource {
                     }
                     None if dim.len() == 1 => axes.push(None),
                     None => {
+                        match refused_verticals.iter().find(|(n, _)| *n == dim.name()) {
+                            Some((_, refusal)) => on_refused_vertical.push((name.clone(), refusal.clone())),
+                            None => unknown_dimensions.push((name.clone(), dim.name(), dim.len())),
+                        }
                         usable = false;
                         break;
                     }
@@ -161,6 +181,23 @@ impl NetcdfSource {
             });
             layouts.push(Layout { axes });
             packings.push(packing);
+        }
+        // Data on a vertical coordinate Baroc does not read, and nothing on
+        // pressure levels besides: say what the coordinate is.
+        if let Some((_, refusal)) = on_refused_vertical.first().filter(|_| variables.iter().all(|v| v.levels.is_none())) {
+            let names: Vec<&str> = on_refused_vertical.iter().filter(|(_, r)| r == refusal).map(|(n, _)| n.as_str()).collect();
+            return Err(DataError::Refused { path: path.display().to_string(), message: format!("{refusal}; variables on it: {}", names.join(", ")) });
+        }
+        let has = |axis: Axis| coordinates.iter().any(|(_, c)| c.axis == axis);
+        if variables.is_empty() && has(Axis::Latitude) && has(Axis::Longitude) {
+            if let Some((variable, dimension, length)) = unknown_dimensions.first() {
+                return Err(DataError::Refused {
+                    path: path.display().to_string(),
+                    message: format!(
+                        "variable `{variable}` has a dimension `{dimension}` ({length} long) that is not a coordinate Baroc recognises: pressure levels need a coordinate variable `{dimension}` with standard_name air_pressure or units of pressure (Pa, hPa), times one with units \"hours since ...\" (CF conventions 4.3, 4.4)"
+                    ),
+                });
+            }
         }
         if variables.is_empty() {
             let dims: Vec<String> = file.dimensions().map(|d| format!("{} ({})", d.name(), d.len())).collect();

@@ -369,7 +369,7 @@ pub fn call_builtin(
             } else {
                 let mut data = w.eastward.data.clone();
                 ndarray::Zip::from(&mut data).and(&w.northward.data).par_for_each(|u, &v| *u = crate::physics::wind::direction_from(*u as f64, v as f64) as f32);
-                let mut f = w.eastward.derived("direction", "degree", data).map_err(|e| error(e, span))?;
+                let mut f = w.eastward.derived(&w.direction_name(), "degree", data).map_err(|e| error(e, span))?;
                 f.long_name = format!("direction (from) of {}", w.eastward.long_name.replace("eastward ", ""));
                 Ok(Value::scalar(f))
             }

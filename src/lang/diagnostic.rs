@@ -189,6 +189,87 @@ fn display_line(text: &str) -> (String, Vec<(usize, usize)>) {
     (shown, columns)
 }
 
+/// Display cells of source text shown on one line at most: with the
+/// gutter, a rendered line stays within about 120 characters.
+const MAX_SHOWN_CELLS: usize = 100;
+/// Cells of context kept before a span that is itself too long to show.
+const CONTEXT_BEFORE_LONG_SPAN: usize = 12;
+const ELLIPSIS: char = '\u{2026}';
+
+/// A displayed line cut to fit: its text (with `…` on each cut side) and
+/// the span's columns within that text.
+#[derive(Debug, PartialEq)]
+struct Window {
+    text: String,
+    from_column: usize,
+    to_column: usize,
+}
+
+/// Cuts a displayed line (tabs already expanded) to at most `limit` display
+/// cells around the columns `from..to` of a span, marking each cut side with
+/// `…`, and moves the span's columns into the cut text. Whole characters
+/// only: a wide character that would straddle an edge is left out. A line
+/// that fits is returned as it is.
+fn window_around(shown: &str, from: usize, to: usize, limit: usize) -> Window {
+    let cells: Vec<(char, usize, usize)> = {
+        let mut column = 0;
+        shown
+            .chars()
+            .map(|c| {
+                let width = c.width().unwrap_or(0);
+                let cell = (c, column, width);
+                column += width;
+                cell
+            })
+            .collect()
+    };
+    let total = cells.last().map_or(0, |&(_, column, width)| column + width);
+    if total <= limit {
+        return Window { text: shown.to_string(), from_column: from, to_column: to };
+    }
+    // Room for the text between the two ellipses.
+    let room = limit.saturating_sub(2).max(1);
+    let span = to.saturating_sub(from);
+    let wanted_start = if span + 2 * CONTEXT_BEFORE_LONG_SPAN <= room {
+        // The span fits with context: centre it.
+        from.saturating_sub((room - span) / 2)
+    } else {
+        from.saturating_sub(CONTEXT_BEFORE_LONG_SPAN)
+    };
+    let start = wanted_start.min(total.saturating_sub(room));
+    let end = start + room;
+    let mut text = String::new();
+    let (mut first_column, mut last_column) = (None, start);
+    for &(c, column, width) in &cells {
+        if column >= start && column + width <= end {
+            if first_column.is_none() {
+                first_column = Some(column);
+            }
+            text.push(c);
+            last_column = column + width;
+        }
+    }
+    let first_column = first_column.unwrap_or(start);
+    let cut_before = first_column > 0;
+    let cut_after = last_column < total;
+    let lead = usize::from(cut_before);
+    let mut window = String::with_capacity(text.len() + 6);
+    if cut_before {
+        window.push(ELLIPSIS);
+    }
+    window.push_str(&text);
+    if cut_after {
+        window.push(ELLIPSIS);
+    }
+    // The span's columns, clipped to the shown text: an ellipsis stands for
+    // the part of the span that is cut off.
+    let clip = |column: usize| column.clamp(first_column, last_column) - first_column + lead;
+    let from_column = if from < first_column { 0 } else { clip(from) };
+    let to_column = if to > last_column { clip(last_column) + usize::from(cut_after) } else { clip(to) };
+    let to_column = to_column.max(from_column + 1);
+    Window { text: window, from_column, to_column }
+}
+
 fn column_at(columns: &[(usize, usize)], offset: usize) -> usize {
     match columns.binary_search_by_key(&offset, |&(byte, _)| byte) {
         Ok(index) => columns[index].1,
@@ -251,9 +332,6 @@ pub fn render(diagnostic: &Diagnostic, source: &str, options: &RenderOptions) ->
         let line = &lines[index];
         let text = &source[line.start..line.end];
         let (shown, columns) = display_line(text);
-        let number = format!("{:>gutter$}", index + 1);
-        let _ = writeln!(out, "{} {bar} {}", style.paint("1;34", &number), shown.trim_end());
-
         let from = if index == first { start - line.start } else { 0 };
         let to = if index == last { end.max(start) - line.start } else { text.len() };
         let from_column = column_at(&columns, from.min(text.len()));
@@ -262,6 +340,12 @@ pub fn render(diagnostic: &Diagnostic, source: &str, options: &RenderOptions) ->
             // An empty span (such as the end of input) still gets one caret.
             to_column = from_column + 1;
         }
+        // A long line is shown as a window around the span.
+        let window = window_around(&shown, from_column, to_column, MAX_SHOWN_CELLS);
+        let (from_column, to_column) = (window.from_column, window.to_column);
+        let number = format!("{:>gutter$}", index + 1);
+        let _ = writeln!(out, "{} {bar} {}", style.paint("1;34", &number), window.text.trim_end());
+
         let carets = "^".repeat(to_column - from_column);
         let under = format!("{}{}", " ".repeat(from_column), style.paint(severity_code, &carets));
         let tail = if index == last { style.paint(severity_code, &label) } else { String::new() };
@@ -386,6 +470,97 @@ error: unknown name `tempreature`
         // The location counts characters, not bytes: the tab, "let ", the
         // character, " = " put `x` at character 10.
         assert_eq!(lines[1], " --> line 1, column 10");
+    }
+
+    /// Every rendered line of a diagnostic, with the width of each in
+    /// display cells.
+    fn widths(text: &str) -> Vec<usize> {
+        text.lines().map(|l| l.chars().map(|c| c.width().unwrap_or(0)).sum()).collect()
+    }
+
+    /// The text under the carets of a rendered diagnostic: the characters
+    /// of the source line above it at the carets' columns.
+    fn under_carets(text: &str) -> String {
+        let lines: Vec<&str> = text.lines().collect();
+        let caret_line = lines.iter().position(|l| l.contains('^')).expect("a caret line");
+        let source_cells: Vec<char> = lines[caret_line - 1].chars().flat_map(|c| std::iter::repeat_n(c, c.width().unwrap_or(0))).collect();
+        lines[caret_line].chars().enumerate().filter(|(_, c)| *c == '^').filter_map(|(i, _)| source_cells.get(i)).collect::<String>()
+    }
+
+    #[test]
+    fn a_long_line_is_shown_as_a_window_around_the_span() {
+        // A 10,000-term sum with a mistyped name near the end: the line is
+        // about 40,000 characters; the rendered error stays within 120.
+        let mut source = String::from("let total = ");
+        source.push_str(&(0..10_000).map(|i| format!("{}", i % 10)).collect::<Vec<_>>().join(" + "));
+        let start = source.len() - 200;
+        source.insert_str(start, "tempreature + ");
+        let diagnostic = Diagnostic::error("unknown name `tempreature`", Span::new(start, start + 11)).with_label("not defined");
+        let text = render(&diagnostic, &source, &RenderOptions::default());
+        assert!(widths(&text).iter().all(|&w| w <= 120), "{text}");
+        let lines: Vec<&str> = text.lines().collect();
+        assert_eq!(lines[1], format!(" --> line 1, column {}", start + 1));
+        assert!(lines[3].starts_with("1 | \u{2026}") && lines[3].ends_with('\u{2026}'), "cut on both sides: {}", lines[3]);
+        assert_eq!(under_carets(&text), "tempreature");
+        assert!(lines[4].ends_with("^^^^^^^^^^^ not defined"), "{text}");
+    }
+
+    #[test]
+    fn spans_at_the_ends_of_a_long_line_are_cut_on_one_side_only() {
+        let source = format!("badname{}", " + 1".repeat(5000));
+        let text = render(&Diagnostic::error("m", Span::new(0, 7)), &source, &RenderOptions::default());
+        let lines: Vec<&str> = text.lines().collect();
+        assert!(lines[3].starts_with("1 | badname + 1") && lines[3].ends_with('\u{2026}'), "{}", lines[3]);
+        assert_eq!(under_carets(&text), "badname");
+        let source = format!("{} + badname", "1 + ".repeat(5000));
+        let start = source.len() - 7;
+        let text = render(&Diagnostic::error("m", Span::new(start, source.len())), &source, &RenderOptions::default());
+        let lines: Vec<&str> = text.lines().collect();
+        assert!(lines[3].starts_with("1 | \u{2026}") && lines[3].ends_with("+ badname"), "{}", lines[3]);
+        assert_eq!(under_carets(&text), "badname");
+        assert!(widths(&text).iter().all(|&w| w <= 120));
+    }
+
+    #[test]
+    fn a_span_longer_than_the_window_keeps_its_start_and_marks_the_cut() {
+        // Deep nesting: the whole 20,000-character expression is the span.
+        let source = format!("let a = {}1{}", "(".repeat(10_000), ")".repeat(9_990));
+        let text = render(&Diagnostic::error("m", Span::new(8, source.len())).with_label("unclosed"), &source, &RenderOptions::default());
+        assert!(widths(&text).iter().all(|&w| w <= 120), "{text}");
+        let lines: Vec<&str> = text.lines().collect();
+        assert!(lines[3].starts_with("1 | let a = ((((") && lines[3].ends_with('\u{2026}'), "{}", lines[3]);
+        // The carets start under the first parenthesis and run to the cut,
+        // over the ellipsis that stands for the rest of the span.
+        let caret_start = lines[4].find('^').unwrap();
+        assert_eq!(caret_start, "1 | let a = ".len());
+        assert_eq!(lines[4].matches('^').count(), lines[3].chars().count() - "1 | let a = ".len());
+    }
+
+    #[test]
+    fn windows_keep_carets_aligned_over_wide_characters_and_tabs() {
+        // CJK characters are two cells wide (Unicode East Asian Width "W");
+        // the window counts cells, not bytes or characters.
+        let source = format!("\tlet {} = x_wrong + 1", "名".repeat(300));
+        let start = source.find("x_wrong").unwrap();
+        let text = render(&Diagnostic::error("m", Span::new(start, start + 7)), &source, &RenderOptions::default());
+        assert!(widths(&text).iter().all(|&w| w <= 120), "{text}");
+        assert_eq!(under_carets(&text), "x_wrong");
+        // Column counts characters: the tab, "let ", 300 characters, " = ".
+        assert!(text.contains(&format!("column {}", 1 + 4 + 300 + 3 + 1)), "{text}");
+    }
+
+    #[test]
+    fn a_window_never_splits_a_wide_character() {
+        let shown = "名".repeat(200);
+        for from in [0, 1, 57, 201, 398] {
+            let w = window_around(&shown, from, from + 2, 100);
+            let cells: usize = w.text.chars().map(|c| c.width().unwrap_or(0)).sum();
+            assert!(cells <= 100, "{from}: {cells}");
+            assert!(w.text.chars().filter(|&c| c != ELLIPSIS).all(|c| c == '名'));
+            assert!(w.to_column > w.from_column && w.to_column <= cells);
+        }
+        // A line that fits is left alone.
+        assert_eq!(window_around("short", 1, 3, 100), Window { text: "short".into(), from_column: 1, to_column: 3 });
     }
 
     #[test]

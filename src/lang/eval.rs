@@ -1317,7 +1317,7 @@ fn as_scalar_like(v: &Value, other: &Value, span: Span) -> Result<Field> {
 fn direction_field(w: &VectorField) -> Result<Field> {
     let mut data = w.eastward.data.clone();
     Zip::from(&mut data).and(&w.northward.data).par_for_each(|u, &v| *u = crate::physics::wind::direction_from(*u as f64, v as f64) as f32);
-    let mut out = w.eastward.derived("direction", "degree", data).map_err(|e| error(e, Span::default()))?;
+    let mut out = w.eastward.derived(&w.direction_name(), "degree", data).map_err(|e| error(e, Span::default()))?;
     out.long_name = format!("direction (from) of {}", w.eastward.long_name.replace("eastward ", ""));
     out.standard_name = None;
     Ok(out)
