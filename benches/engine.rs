@@ -32,7 +32,8 @@ use baroc::grid::Grid;
 use baroc::physics::allocation::zeroed;
 use baroc::physics::geostrophic::{geostrophic_wind, GeopotentialKind, DEFAULT_EQUATOR_BAND};
 use baroc::physics::thermal_wind::thermal_wind_from_thickness;
-use baroc::physics::vertical::{adjacent_layer_thickness, thickness_from_temperature, IntegrationRule};
+use baroc::physics::layers::adjacent_layer_thickness_by;
+use baroc::physics::vertical::{adjacent_layer_thickness, thickness_from_temperature, thickness_from_temperature_by, IntegrationRule};
 use ndarray::{Array3, Array4, ArrayView3, Axis};
 use rayon::prelude::*;
 
@@ -311,6 +312,15 @@ fn main() {
         let dz = adjacent_layer_thickness(&levels, temperature.view(), constants.dry_air_gas_constant, constants.gravity).expect("37 distinct levels");
         thermal_wind_all_layers(&grid, &constants, &dz)
     });
+    // The quadratic rule (Baroc's default; each layer reaches one level
+    // beyond it on either side): one pass over the levels in cache-sized
+    // bands (physics::layers), against one general call per layer.
+    let quadratic_time = timed(repeats, || adjacent_layer_thickness_by(&levels, temperature.view(), IntegrationRule::Quadratic, constants.dry_air_gas_constant, constants.gravity).expect("37 distinct levels"));
+    let general_quadratic_time = timed(repeats, || {
+        (0..levels.len() - 1)
+            .map(|k| thickness_from_temperature_by(&levels, temperature.view(), None, levels[k], levels[k + 1], constants.dry_air_gas_constant, constants.gravity, IntegrationRule::Quadratic).expect("data levels"))
+            .collect::<Vec<_>>()
+    });
     drop(thickness);
 
     // The balance audit of the same case (hydrostatic residual of all 36
@@ -347,7 +357,7 @@ fn main() {
     );
     // (label, Baroc timing, numpy key, whether the targets apply: not to the
     // copies, which are the ceiling).
-    let rows: [(&str, &Timing, &str, bool); 8] = [
+    let rows: [(&str, &Timing, &str, bool); 10] = [
         ("copy of one input field into a new array", &copy, "copy", false),
         ("  same, .to_owned() (4 KiB pages)", &plain_copy, "-", false),
         ("  same, into an existing array", &existing_copy, "copy_into_existing", false),
@@ -356,6 +366,8 @@ fn main() {
         ("  same, 36 general layer calls", &general_thickness_time, "thickness", true),
         ("thermal wind, 36 layers (given thickness)", &thermal_time, "thermal_wind", true),
         ("thickness + thermal wind, 36 layers", &both_time, "thickness_and_thermal_wind", true),
+        ("thickness, 36 layers, quadratic, one pass", &quadratic_time, "-", true),
+        ("  same, 36 general layer calls", &general_quadratic_time, "-", true),
     ];
     for (label, timing, key, has_targets) in rows {
         let (numpy_ms, numpy_min_ms) = match &numpy {

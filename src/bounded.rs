@@ -19,6 +19,7 @@
 use std::path::{Path, PathBuf};
 
 use crate::io::Dataset;
+use crate::lang::syntax::{Expr, ExprKind, Program, SelectHow, StatementKind};
 use crate::runner::{RunError, RunRequest};
 use crate::shard::{Shard, ShardPlan};
 
@@ -131,6 +132,104 @@ pub fn run_to_file(request: &RunRequest, output: &Path, limit: u64, attributes: 
     Ok(BoundedSummary { names, blocks, steps_per_block: per_block, time_steps: steps.len(), time_step_bytes: step_bytes })
 }
 
+/// Whether a program's results can be computed block by block of time
+/// steps and joined (what `baroc run` does by default when the data do not
+/// fit in memory). Every operator of the language works on each time step
+/// alone; what cannot be split is picking times, since a block may not hold
+/// the time picked. So, conservatively: no `during`, no call of `time`, no
+/// `at` whose selector is not plainly a level, a layer or a place (a name
+/// there could hold a time), no `open` (the program's own data are not the
+/// data split), and no call of anything but the built-ins and the
+/// program's own functions (a recipe from the library is not seen here).
+pub fn streams_by_time(program: &Program) -> bool {
+    let functions: Vec<&str> = program
+        .statements
+        .iter()
+        .filter_map(|s| match &s.kind {
+            StatementKind::Function { name, .. } => Some(name.name.as_str()),
+            _ => None,
+        })
+        .collect();
+    program.statements.iter().all(|s| match &s.kind {
+        StatementKind::Open { .. } => false,
+        StatementKind::Let { value, .. } | StatementKind::Parameter { default: value, .. } | StatementKind::Output { value, .. } | StatementKind::Function { body: value, .. } => {
+            expression_streams(value, &functions)
+        }
+        StatementKind::Expression(value) => expression_streams(value, &functions),
+        StatementKind::Recipe { .. } | StatementKind::About { .. } => true,
+    })
+}
+
+fn expression_streams(expr: &Expr, functions: &[&str]) -> bool {
+    let each = |e: &Expr| expression_streams(e, functions);
+    match &expr.kind {
+        ExprKind::Number { .. } | ExprKind::Angle { .. } | ExprKind::String(_) | ExprKind::Bool(_) | ExprKind::Name(_) => true,
+        ExprKind::Block { statements } => statements.iter().all(|s| match &s.kind {
+            StatementKind::Let { value, .. } | StatementKind::Expression(value) => each(value),
+            _ => false,
+        }),
+        ExprKind::Unary { operand, .. } => each(operand),
+        ExprKind::Binary { left, right, .. } => each(left) && each(right),
+        ExprKind::Range { from, to } => each(from) && each(to),
+        ExprKind::Convert { value, .. } => each(value),
+        ExprKind::If { condition, then_branch, else_branch } => each(condition) && each(then_branch) && each(else_branch),
+        ExprKind::Member { base, .. } => each(base),
+        ExprKind::Select { base, how, selector } => {
+            let plain_selector = match how {
+                SelectHow::During => false,
+                SelectHow::At => is_level_or_place(selector),
+                SelectHow::Over | SelectHow::In => true,
+            };
+            plain_selector && each(base) && each(selector)
+        }
+        ExprKind::Call { callee, arguments, options } => {
+            let known = match &callee.kind {
+                ExprKind::Name(n) => n != "time" && (crate::lang::builtins_lookup(n) || functions.contains(&n.as_str())),
+                _ => false,
+            };
+            known && arguments.iter().all(each) && options.iter().all(|o| each(&o.value))
+        }
+    }
+}
+
+/// A selector after `at` that cannot be a time: a number with a unit (a
+/// pressure), a range of them, or a call of `point`.
+fn is_level_or_place(selector: &Expr) -> bool {
+    match &selector.kind {
+        ExprKind::Number { unit: Some(_), .. } => true,
+        ExprKind::Range { from, to } => is_level_or_place(from) && is_level_or_place(to),
+        ExprKind::Call { callee, .. } => matches!(&callee.kind, ExprKind::Name(n) if n == "point"),
+        _ => false,
+    }
+}
+
+/// The memory a plain `baroc run` stays within when no `--memory-limit`
+/// is given: `BAROC_MEMORY_LIMIT` if set (a size as `--memory-limit`
+/// takes), else half the memory the system reports available (so that a
+/// run on a shared machine leaves room for others), else 4 GiB.
+pub fn default_limit() -> Result<u64, String> {
+    if let Some(text) = std::env::var_os("BAROC_MEMORY_LIMIT").filter(|t| !t.is_empty()) {
+        return parse_size(&text.to_string_lossy()).map_err(|e| e.replace("--memory-limit", "BAROC_MEMORY_LIMIT"));
+    }
+    let available = std::fs::read_to_string("/proc/meminfo").ok().and_then(|text| {
+        let line = text.lines().find(|l| l.starts_with("MemAvailable:"))?;
+        line.split_whitespace().nth(1)?.parse::<u64>().ok().map(|kib| kib * 1024)
+    });
+    Ok(available.map_or(4 << 30, |bytes| (bytes / 2).max(1 << 28)))
+}
+
+/// How many blocks a run of `request` within `limit` bytes takes (1: the
+/// whole run fits at once).
+pub fn blocks_needed(request: &RunRequest, limit: u64) -> Result<usize, RunError> {
+    if request.data_files.is_empty() {
+        return Ok(1);
+    }
+    let dataset = Dataset::open(&request.data_files).map_err(|e| RunError(format!("error: {e}")))?;
+    let total = dataset.variables().find_map(|v| v.times.as_ref().map(|t| t.values.len())).unwrap_or(1);
+    let steps = request.time_steps.as_ref().map_or(total, |s| s.len());
+    Ok(steps.div_ceil(steps_per_block(limit, time_step_bytes(&dataset))).max(1))
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -146,6 +245,21 @@ mod tests {
         for bad in ["", "GiB", "4 parsecs", "0", "-1GiB"] {
             assert!(parse_size(bad).unwrap_err().starts_with("error: --memory-limit"), "{bad}");
         }
+    }
+
+    #[test]
+    fn only_programs_that_pick_no_time_stream() {
+        let streams = |text: &str| streams_by_time(&crate::lang::parse(text).expect("parses"));
+        // The recipe shipped with Baroc streams.
+        assert!(streams(include_str!("../recipes/thermal-wind-budget.baroc")));
+        assert!(streams("let a = temperature at 500 hPa in box(40 north to 60 north, 20 west to 10 east)\nlet b = thickness(1000 hPa to 500 hPa) with route geopotential"));
+        assert!(streams("function warm(x) = x + 1 K\noutput w = warm(temperature at 850 hPa)"));
+        // Picking a time, or what might be one, does not.
+        assert!(!streams("let a = temperature at 500 hPa at \"2026-10-14 06:00\""));
+        assert!(!streams("let when = 2\nlet a = temperature at 500 hPa at when"));
+        assert!(!streams("let a = temperature at 500 hPa at time(1)"));
+        assert!(!streams("open \"other.nc\"\nlet a = temperature at 500 hPa"));
+        assert!(!streams("let a = some_library_recipe()"));
     }
 
     #[test]

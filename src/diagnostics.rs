@@ -13,6 +13,7 @@ use crate::grid::{Field, VectorField};
 use crate::io::{DataError, Dataset, Role, Selection};
 use crate::physics::geostrophic::{self, GeopotentialKind, DEFAULT_EQUATOR_BAND};
 use crate::physics::sampling::{self, AreaStatistics, Region};
+use crate::sharing::{Shared, SharedResults};
 use crate::physics::{advection, differences, smoothing, stability, thermal_wind, vertical};
 
 /// A pressure layer, bottom (larger pressure) to top, in Pa.
@@ -94,16 +95,53 @@ pub struct Case {
     /// How the hypsometric integral runs over ln p (quadratic by default;
     /// the trapezoid for comparison with older results).
     pub integration: vertical::IntegrationRule,
+    /// Results shared within a run (see `crate::sharing`); `None` computes
+    /// everything afresh.
+    pub shared: Option<Arc<SharedResults>>,
 }
 
 impl Case {
     pub fn new(dataset: Arc<Dataset>) -> Self {
-        Self { dataset, constants: Constants::default(), equator_band: DEFAULT_EQUATOR_BAND, selection: Selection::default(), integration: vertical::IntegrationRule::default() }
+        Self { dataset, constants: Constants::default(), equator_band: DEFAULT_EQUATOR_BAND, selection: Selection::default(), integration: vertical::IntegrationRule::default(), shared: None }
     }
 
     /// The same case restricted to other times or another region.
     pub fn with_selection(&self, selection: Selection) -> Case {
-        Case { dataset: self.dataset.clone(), constants: self.constants, equator_band: self.equator_band, selection, integration: self.integration }
+        Case { dataset: self.dataset.clone(), constants: self.constants, equator_band: self.equator_band, selection, integration: self.integration, shared: self.shared.clone() }
+    }
+
+    /// The same case sharing results through `shared` (see `crate::sharing`).
+    pub fn sharing(mut self, shared: Arc<SharedResults>) -> Case {
+        self.shared = Some(shared);
+        self
+    }
+
+    /// Everything besides the operation and its arguments that a result
+    /// depends on, written out in full (floats in their exact round-trip
+    /// form), for the key of a shared result.
+    fn sharing_context(&self) -> String {
+        format!("{:?}|{:?}|{:?}|{:?}", self.selection, self.constants, self.equator_band, self.integration)
+    }
+
+    fn shared_value(&self, operation: String, compute: impl FnOnce() -> Result<Shared>) -> Result<Shared> {
+        match &self.shared {
+            None => compute(),
+            Some(store) => store.get_or_compute(&self.dataset, SharedResults::key(&self.dataset, &self.sharing_context(), &operation), compute),
+        }
+    }
+
+    fn shared_field(&self, operation: String, compute: impl FnOnce() -> Result<Field>) -> Result<Field> {
+        match self.shared_value(operation, || compute().map(Shared::Field))? {
+            Shared::Field(f) => Ok(f),
+            Shared::Vector(_) => Err(DiagnosticError::Unsupported("internal: a shared result of the wrong kind".into())),
+        }
+    }
+
+    fn shared_vector(&self, operation: String, compute: impl FnOnce() -> Result<VectorField>) -> Result<VectorField> {
+        match self.shared_value(operation, || compute().map(Shared::Vector))? {
+            Shared::Vector(v) => Ok(v),
+            Shared::Field(_) => Err(DiagnosticError::Unsupported("internal: a shared result of the wrong kind".into())),
+        }
     }
 
     fn selection_with_levels(&self, levels: Option<Vec<f64>>) -> Selection {
@@ -140,6 +178,10 @@ impl Case {
     /// points are NaN when the data hold surface pressure and
     /// `mask_below_ground` is set.
     pub fn at_pressure(&self, name: &str, pressure: f64, mask_below_ground: bool) -> Result<Field> {
+        self.shared_field(format!("at_pressure {name:?} {pressure:?} {mask_below_ground}"), || self.at_pressure_computed(name, pressure, mask_below_ground))
+    }
+
+    fn at_pressure_computed(&self, name: &str, pressure: f64, mask_below_ground: bool) -> Result<Field> {
         if let Ok((geopotential, _)) = self.geopotential_source() {
             if self.dataset.resolve(name)?.name == geopotential {
                 return self.geopotential_at(pressure, mask_below_ground);
@@ -168,6 +210,10 @@ impl Case {
     /// temperature on levels covering the pressure, the piecewise quadratic
     /// in ln p. The result's `vertical_interpolation` attribute says which.
     pub fn geopotential_at(&self, pressure: f64, mask_below_ground: bool) -> Result<Field> {
+        self.shared_field(format!("geopotential_at {pressure:?} {mask_below_ground}"), || self.geopotential_at_computed(pressure, mask_below_ground))
+    }
+
+    fn geopotential_at_computed(&self, pressure: f64, mask_below_ground: bool) -> Result<Field> {
         let (name, kind) = self.geopotential_source()?;
         let z_levels = self.levels_of(&name)?;
         let temperature = match self.dataset.find_role(Role::Temperature) {
@@ -276,6 +322,10 @@ impl Case {
 
     /// Geostrophic wind at a pressure level (m s-1).
     pub fn geostrophic_wind(&self, pressure: f64) -> Result<VectorField> {
+        self.shared_vector(format!("geostrophic_wind {pressure:?}"), || self.geostrophic_wind_computed(pressure))
+    }
+
+    fn geostrophic_wind_computed(&self, pressure: f64) -> Result<VectorField> {
         let (name, kind) = self.geopotential_source()?;
         let z = self.at_pressure(&name, pressure, false)?;
         self.geostrophic_wind_of(&z, kind, &format!("at {} hPa", trim(pressure / 100.0)))
@@ -300,6 +350,10 @@ impl Case {
 
     /// Hypsometric thickness (m) of a layer by the chosen route.
     pub fn thickness(&self, layer: Layer, route: ThicknessRoute) -> Result<Field> {
+        self.shared_field(format!("thickness {layer:?} {route:?}"), || self.thickness_computed(layer, route))
+    }
+
+    fn thickness_computed(&self, layer: Layer, route: ThicknessRoute) -> Result<Field> {
         let c = &self.constants;
         let (data, template, method) = match route {
             ThicknessRoute::Temperature | ThicknessRoute::DryTemperature => {
@@ -387,6 +441,10 @@ impl Case {
     /// the thickness route from geopotential; the temperature routes take the
     /// layer-mean temperature gradient.
     pub fn thermal_wind(&self, layer: Layer, route: ThicknessRoute) -> Result<VectorField> {
+        self.shared_vector(format!("thermal_wind {layer:?} {route:?}"), || self.thermal_wind_computed(layer, route))
+    }
+
+    fn thermal_wind_computed(&self, layer: Layer, route: ThicknessRoute) -> Result<VectorField> {
         let dz = self.thickness(layer, route)?;
         let (u, v) = thermal_wind::thermal_wind_from_thickness(&dz.grid, &self.constants, dz.horizontal_slices(), self.equator_band);
         let how = match route {
@@ -467,6 +525,10 @@ impl Case {
     /// and Tbar from the thickness of the same geopotential, so that it equals
     /// -(f/(Rd ln(p_b/p_t))) k . (V_b x V_t) (see physics::advection).
     pub fn layer_temperature_advection(&self, layer: Layer) -> Result<Field> {
+        self.shared_field(format!("layer_temperature_advection {layer:?}"), || self.layer_temperature_advection_computed(layer))
+    }
+
+    fn layer_temperature_advection_computed(&self, layer: Layer) -> Result<Field> {
         let (b, t) = (self.geostrophic_wind(layer.bottom)?, self.geostrophic_wind(layer.top)?);
         let tbar = self.layer_mean_temperature(layer, ThicknessRoute::Geopotential)?;
         let mean = |a: &Field, b: &Field| -> Array4<f32> { (&a.data + &b.data).mapv(|x| 0.5 * x) };

@@ -28,5 +28,6 @@ pub mod report;
 pub mod runner;
 pub mod text;
 pub mod shard;
+pub mod sharing;
 pub mod merge;
 pub mod bounded;

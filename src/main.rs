@@ -76,7 +76,9 @@ enum Command {
         #[arg(long, value_name = "I/N|slurm")]
         shard: Option<String>,
         /// Keep memory within this size (e.g. 4GiB) by running blocks of time steps one
-        /// after another and joining them in the output file.
+        /// after another and joining them in the output file. Without it, a run writing a
+        /// file does so by itself when its data would not fit in half the available memory
+        /// (or in BAROC_MEMORY_LIMIT) and its program picks no particular time.
         #[arg(long, value_name = "SIZE")]
         memory_limit: Option<String>,
     },
@@ -311,8 +313,18 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
         }
         None => None,
     };
-    if let Some(limit) = &memory_limit {
-        let limit = baroc::bounded::parse_size(limit)?;
+    // Without --memory-limit, a run writing a file streams by blocks of
+    // time steps when its data would not fit in memory at once and its
+    // program picks no time (src/bounded.rs); otherwise it runs whole.
+    let memory_limit = match memory_limit {
+        Some(text) => Some(baroc::bounded::parse_size(&text)?),
+        None if output.is_some() && report.is_none() && !request.each_time && baroc::lang::parse(&request.source).is_ok_and(|p| baroc::bounded::streams_by_time(&p)) => {
+            let limit = baroc::bounded::default_limit()?;
+            (baroc::bounded::blocks_needed(&request, limit).map_err(|e| e.0)? > 1).then_some(limit)
+        }
+        None => None,
+    };
+    if let Some(limit) = memory_limit {
         let Some(path) = &output else {
             return Err("error: --memory-limit writes the results block by block to a file: add --output, for example -o results.nc".into());
         };

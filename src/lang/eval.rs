@@ -116,6 +116,10 @@ pub struct Evaluator {
     /// default; front ends install their plain-text form (tables, field
     /// summaries), so the language need not know how values are displayed.
     pub describe: fn(&Value) -> String,
+    /// Results shared between the expressions of one run (see
+    /// `crate::sharing`); emptied at the start of every run, so nothing
+    /// computed in one cell is served in another.
+    pub shared: Arc<crate::sharing::SharedResults>,
 }
 
 impl Default for Evaluator {
@@ -178,6 +182,7 @@ impl Evaluator {
             check_scope: super::check::Scope::default(),
             definitions: Vec::new(),
             describe: describe_value,
+            shared: Arc::new(crate::sharing::SharedResults::default()),
         }
     }
 
@@ -264,6 +269,15 @@ impl Evaluator {
     /// first error, which is returned; events already sent stand.
     pub fn run_each(&mut self, program: &Program, source: &str, on_event: &mut dyn FnMut(&Evaluator, StatementEvent) -> Result<()>) -> Result<()> {
         self.source = source.to_string();
+        // Shared results live for one run: emptied before (nothing from an
+        // earlier cell is served) and after (nothing held between cells).
+        self.shared.clear();
+        let outcome = self.run_statements(program, on_event);
+        self.shared.clear();
+        outcome
+    }
+
+    fn run_statements(&mut self, program: &Program, on_event: &mut dyn FnMut(&Evaluator, StatementEvent) -> Result<()>) -> Result<()> {
         let total = program.statements.len();
         for (index, statement) in program.statements.iter().enumerate() {
             on_event(self, StatementEvent::Started { index, total, span: statement.span })?;
@@ -402,7 +416,7 @@ impl Evaluator {
     }
 
     fn case(&self, context: &Context, span: Span, equator_band: Option<f64>) -> Result<Case> {
-        let mut case = Case::new(self.dataset(span)?).with_selection(context.selection.clone());
+        let mut case = Case::new(self.dataset(span)?).with_selection(context.selection.clone()).sharing(self.shared.clone());
         case.constants = self.constants;
         case.equator_band = equator_band.unwrap_or(DEFAULT_EQUATOR_BAND);
         Ok(case)
@@ -1013,7 +1027,7 @@ impl Evaluator {
     }
 
     fn case_for(&self, dataset: &Arc<Dataset>, context: &Context) -> Case {
-        let mut case = Case::new(dataset.clone()).with_selection(context.selection.clone());
+        let mut case = Case::new(dataset.clone()).with_selection(context.selection.clone()).sharing(self.shared.clone());
         case.constants = self.constants;
         case
     }

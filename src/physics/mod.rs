@@ -9,6 +9,7 @@ pub mod advection;
 pub mod allocation;
 pub mod differences;
 pub mod geostrophic;
+pub mod layers;
 pub mod model_levels;
 pub mod projected;
 pub mod sampling;

@@ -1,0 +1,139 @@
+//! Results shared within one run: a recipe's outputs often ask for the same
+//! intermediate (the thickness of a layer for the thermal wind and for the
+//! ageostrophic shear, the geostrophic wind at the layer's boundaries for
+//! the advection and the turning), and without sharing each output reads
+//! and computes it again.
+//!
+//! `SharedResults` holds fields that `diagnostics::Case` has computed,
+//! keyed by everything the value depends on: which dataset (by identity,
+//! the dataset being held so its address cannot be reused while the entry
+//! lives), the selection (times, levels, region), the constants, the
+//! equatorial band, the integration rule, and the operation with its
+//! arguments. A key says nothing of names in the language, so rebinding a
+//! name can never reach a stale value; the evaluator also empties the store
+//! at the start of every run (a notebook cell, a recipe run), so a file
+//! changed on disk between cells is read afresh.
+//!
+//! A value is served as a clone of the stored one: the same bits as
+//! computing it again (the operations are deterministic), at the price of a
+//! copy, far below a read or a stencil. The store keeps at most `budget`
+//! bytes of field data; beyond it, values are simply not kept (the run is
+//! then as without sharing, never wrong).
+
+use std::collections::HashMap;
+use std::sync::atomic::{AtomicU64, Ordering};
+use std::sync::{Arc, Mutex};
+
+use crate::grid::{Field, VectorField};
+use crate::io::Dataset;
+
+/// Default bound on the bytes of field data kept for sharing: enough for
+/// every intermediate of the thermal-wind budget over a few time steps of a
+/// global 0.25-degree grid (about 4 MB per field and time step), small
+/// beside the memory such a run needs anyway.
+pub const DEFAULT_BUDGET: u64 = 1 << 30;
+
+/// A stored value.
+#[derive(Clone)]
+pub enum Shared {
+    Field(Field),
+    Vector(VectorField),
+}
+
+impl Shared {
+    fn bytes(&self) -> u64 {
+        let of = |f: &Field| (f.data.len() * std::mem::size_of::<f32>()) as u64;
+        match self {
+            Shared::Field(f) => of(f),
+            Shared::Vector(v) => of(&v.eastward) + of(&v.northward),
+        }
+    }
+}
+
+#[derive(Default)]
+struct Store {
+    values: HashMap<String, Shared>,
+    /// The datasets the keys name, held so that their addresses stay theirs.
+    datasets: Vec<Arc<Dataset>>,
+    bytes: u64,
+}
+
+/// Fields computed in this run, by what they depend on (see the module
+/// comment). Shared between threads; cheap to clone through `Arc`.
+pub struct SharedResults {
+    store: Mutex<Store>,
+    budget: u64,
+    served: AtomicU64,
+    computed: AtomicU64,
+}
+
+impl Default for SharedResults {
+    /// `DEFAULT_BUDGET`, or nothing kept when the environment sets
+    /// `BAROC_SHARING=0` (for measuring what sharing saves:
+    /// benches/end_to_end.py runs both ways).
+    fn default() -> Self {
+        let off = std::env::var_os("BAROC_SHARING").is_some_and(|v| v == "0");
+        Self::with_budget(if off { 0 } else { DEFAULT_BUDGET })
+    }
+}
+
+impl SharedResults {
+    /// A store keeping at most `budget` bytes of field data (0: none, so
+    /// every value is computed afresh).
+    pub fn with_budget(budget: u64) -> Self {
+        Self { store: Mutex::new(Store::default()), budget, served: AtomicU64::new(0), computed: AtomicU64::new(0) }
+    }
+
+    fn lock(&self) -> std::sync::MutexGuard<'_, Store> {
+        // A panic while the lock was held leaves at worst a value missing
+        // from the map, never a half-stored one: carry on with the store.
+        self.store.lock().unwrap_or_else(|e| e.into_inner())
+    }
+
+    /// Forgets every value (the start of a run or a cell).
+    pub fn clear(&self) {
+        *self.lock() = Store::default();
+    }
+
+    /// How many values were served from the store and how many computed
+    /// since it was made (`clear` keeps these; for tests and timings).
+    pub fn counts(&self) -> (u64, u64) {
+        (self.served.load(Ordering::Relaxed), self.computed.load(Ordering::Relaxed))
+    }
+
+    /// Bytes of field data held.
+    pub fn bytes(&self) -> u64 {
+        self.lock().bytes
+    }
+
+    /// The key of `operation` on `dataset` under `context` (the selection,
+    /// constants and settings, written out in full by the caller).
+    pub fn key(dataset: &Arc<Dataset>, context: &str, operation: &str) -> String {
+        format!("{:p}|{context}|{operation}", Arc::as_ptr(dataset))
+    }
+
+    /// The stored value for `key`, or `compute()`'s, stored when it fits.
+    /// The lock is not held while computing, so two threads asking for the
+    /// same value at once may both compute it (the same bits either way).
+    pub fn get_or_compute<E>(&self, dataset: &Arc<Dataset>, key: String, compute: impl FnOnce() -> Result<Shared, E>) -> Result<Shared, E> {
+        {
+            let s = self.lock();
+            if let Some(v) = s.values.get(&key).cloned() {
+                self.served.fetch_add(1, Ordering::Relaxed);
+                return Ok(v);
+            }
+        }
+        let value = compute()?;
+        self.computed.fetch_add(1, Ordering::Relaxed);
+        let mut s = self.lock();
+        let size = value.bytes();
+        if s.bytes + size <= self.budget && !s.values.contains_key(&key) {
+            if !s.datasets.iter().any(|d| Arc::ptr_eq(d, dataset)) {
+                s.datasets.push(dataset.clone());
+            }
+            s.bytes += size;
+            s.values.insert(key, value.clone());
+        }
+        Ok(value)
+    }
+}
