@@ -220,3 +220,22 @@ fn barbs_on_a_lambert_map_lie_along_the_parallels() {
     // westward staff dips below its station; west of it, the opposite.
     assert!(expected.iter().flatten().any(|a| a.to_degrees() > 3.0) && expected.iter().flatten().any(|a| a.to_degrees() < -3.0));
 }
+
+#[test]
+fn a_polar_stereographic_map_around_the_pole_has_meridians_all_round() {
+    // North polar stereographic, true at 60 N, vertical longitude 45 W; a
+    // square of 6000 km about the pole. Meridians meet at the pole, so the
+    // graticule must hold the whole circle of them.
+    use baroc::projection::{PolarStereographic, Pole};
+    let projection = Projection::PolarStereographic(PolarStereographic::with_standard_parallel(Pole::North, -45.0, 60.0, 0.0, 0.0, RADIUS).unwrap());
+    let x: Vec<f64> = (0..61).map(|i| -3.0e6 + 1.0e5 * i as f64).collect();
+    let grid = Arc::new(Grid::projected(ProjectedGrid::new(projection, x.clone(), x)));
+    let z = field_of(&grid, "geopotential_height", "m", height).with_standard_name(Some("geopotential_height"));
+    let bundle = figures::field_map_with(&z, None, &FigureSize::default()).unwrap();
+    std::fs::write(check_dir().join("map-polar.png"), bundle.binary("image/png").unwrap()).unwrap();
+    let frame = figures::projected_frame(&grid).unwrap();
+    let meridians: Vec<f64> = frame.graticule.iter().filter(|l| l.kind == baroc::render::graticule::GraticuleKind::Meridian).map(|l| l.value).collect();
+    let step = 360.0 / meridians.len() as f64;
+    assert!(meridians.windows(2).all(|w| (w[1] - w[0] - step).abs() < 1e-9), "{meridians:?}");
+    assert!(bundle.plain_text().contains("polar stereographic"));
+}

@@ -84,7 +84,9 @@ pub fn graticule(latitudes: &[f64], longitudes: &[f64], frame: (f64, f64, f64, f
         east = reference + 180.0;
     }
     let lat_step = graticule_step(north - south, 5.0);
-    let lon_step = graticule_step(east - west, 6.0);
+    // All round a pole the meridians fan out: twelve (every 30 degrees)
+    // read better than six.
+    let lon_step = graticule_step(east - west, if around_pole { 12.0 } else { 6.0 });
     // Lines reach one step beyond the points, short of the poles (where
     // meridians meet and a conic projection may run to infinity).
     let lat_from = (south - lat_step).max(-89.99);
