@@ -239,3 +239,22 @@ fn a_polar_stereographic_map_around_the_pole_has_meridians_all_round() {
     assert!(meridians.windows(2).all(|w| (w[1] - w[0] - step).abs() < 1e-9), "{meridians:?}");
     assert!(bundle.plain_text().contains("polar stereographic"));
 }
+
+#[test]
+fn a_rotated_pole_map_is_drawn_with_its_true_graticule() {
+    // Rotated pole at 40 N 170 W (CF rotated_latitude_longitude): the
+    // rotated origin lies at 50 N 10 E, so a grid about it shows Europe-like
+    // latitudes; its meridians and parallels are curves on the rotated grid.
+    use baroc::projection::RotatedPole;
+    let projection = Projection::RotatedPole(RotatedPole::new(40.0, -170.0, 0.0, RADIUS).unwrap());
+    let x: Vec<f64> = (0..61).map(|i| -15.0 + 0.5 * i as f64).collect();
+    let y: Vec<f64> = (0..41).map(|j| -10.0 + 0.5 * j as f64).collect();
+    let grid = Arc::new(Grid::projected(ProjectedGrid::new(projection, x, y)));
+    let z = field_of(&grid, "geopotential_height", "m", height).with_standard_name(Some("geopotential_height"));
+    let bundle = figures::field_map_with(&z, None, &FigureSize::default()).unwrap();
+    std::fs::write(check_dir().join("map-rotated.png"), bundle.binary("image/png").unwrap()).unwrap();
+    let description = bundle.plain_text();
+    assert!(description.contains("rotated-pole") && description.contains("degrees"), "{description}");
+    let texts = texts(bundle.text("image/svg+xml").unwrap());
+    assert!(texts.iter().any(|t| t == "50°N"), "{texts:?}");
+}

@@ -1291,8 +1291,8 @@ enum Edge {
 
 /// Labels of a projected map's graticule where its lines meet the frame:
 /// meridians preferably on the bottom edge, then the top, then the sides;
-/// parallels on the left edge, then the right (when no colour bar stands
-/// there), then the bottom and top. A label that would overlap one
+/// parallels on the left edge, else the right (when no colour bar stands
+/// there). A label that would overlap one
 /// already placed is left out, so the edge reads cleanly.
 fn draw_edge_labels<DB: DrawingBackend>(
     p: &Painter<'_, DB>,
@@ -1319,7 +1319,9 @@ fn draw_edge_labels<DB: DrawingBackend>(
     for (line, pieces) in lines {
         let order: &[Edge] = match line.kind {
             GraticuleKind::Meridian => &[Edge::Bottom, Edge::Top, Edge::Left, Edge::Right],
-            GraticuleKind::Parallel => &[Edge::Left, Edge::Right, Edge::Bottom, Edge::Top],
+            // A parallel's label on the top or bottom edge would sit among
+            // the meridians' and read as one of them: sides only.
+            GraticuleKind::Parallel => &[Edge::Left, Edge::Right],
         };
         let crossings: Vec<(Edge, Pt)> = pieces
             .iter()
