@@ -204,3 +204,16 @@ fn a_point_is_sampled_by_bilinear_interpolation_in_projection_space() {
     };
     assert!((got - corners).abs() < 0.01, "{got} vs {corners}");
 }
+
+#[test]
+fn a_map_of_lambert_data_is_drawn_through_the_language() {
+    // `map(...)` of a field read from a Lambert GRIB2 file: drawn in the
+    // grid's projection (not refused), its box keeping the projection too.
+    let mut s = session();
+    for code in ["map(geopotential_height at 500 hPa)", &format!("map(geopotential_height at 500 hPa in {BOX})")] {
+        let Value::Figure(request) = value(&mut s, code) else { panic!("{code}: a figure") };
+        let bundle = baroc::figures::draw(&request).unwrap_or_else(|e| panic!("{code}: {}", e.message));
+        assert!(bundle.binary("image/png").is_some_and(|p| p.len() > 1000));
+        assert!(bundle.plain_text().contains("Lambert conformal"), "{}", bundle.plain_text());
+    }
+}
