@@ -589,20 +589,28 @@ impl Case {
     /// Maximum Eady growth rate (s-1) of a layer.
     pub fn eady_growth_rate(&self, layer: Layer) -> Result<Field> {
         let n2 = self.static_stability(layer)?;
-        if n2.grid.projection.is_some() {
-            // stability::eady_growth_rate takes f per latitude row.
-            return Err(DiagnosticError::Unsupported("the Eady growth rate is not yet available on projected grids (Coriolis per point)".into()));
-        }
         let vt = self.thermal_wind(layer, ThicknessRoute::Temperature)?;
         let dz = self.thickness(layer, ThicknessRoute::Temperature)?;
-        let sigma = stability::eady_growth_rate(
-            &self.constants,
-            &n2.grid.latitudes,
-            n2.horizontal_slices(),
-            vt.eastward.horizontal_slices(),
-            vt.northward.horizontal_slices(),
-            dz.horizontal_slices(),
-        );
+        let sigma = match &n2.grid.projection {
+            // A projected grid: the Coriolis parameter at each point's own
+            // latitude; the thermal wind already has map-factor derivatives.
+            Some(p) => stability::eady_growth_rate_at_points(
+                &self.constants,
+                &p.latitude,
+                n2.horizontal_slices(),
+                vt.eastward.horizontal_slices(),
+                vt.northward.horizontal_slices(),
+                dz.horizontal_slices(),
+            ),
+            None => stability::eady_growth_rate(
+                &self.constants,
+                &n2.grid.latitudes,
+                n2.horizontal_slices(),
+                vt.eastward.horizontal_slices(),
+                vt.northward.horizontal_slices(),
+                dz.horizontal_slices(),
+            ),
+        };
         Ok(n2
             .derived(&format!("eady_growth_rate_{}", layer.tag()), "s-1", reshape_like(sigma, &n2))
             .map_err(DiagnosticError::Unsupported)?
@@ -689,10 +697,6 @@ pub fn laplacian(field: &Field, constants: &Constants) -> Result<Field> {
 
 /// Gaussian smoothing with standard deviation `sigma_metres`.
 pub fn smooth(field: &Field, constants: &Constants, sigma_metres: f64) -> Result<Field> {
-    if field.grid.projection.is_some() {
-        // smoothing::smooth sizes its kernel from latitude-longitude spacing.
-        return Err(DiagnosticError::Unsupported("smoothing is not yet available on projected grids".into()));
-    }
     let s = smoothing::smooth(&field.grid, constants.earth_radius, field.horizontal_slices(), sigma_metres);
     let mut out = field.derived(&field.name, &field.units, reshape_like(s, field)).map_err(DiagnosticError::Unsupported)?;
     out.long_name = format!("{} smoothed over {} km", field.long_name, trim(sigma_metres / 1000.0));

@@ -272,17 +272,78 @@ pub fn land_mask_on(dataset: &crate::io::Dataset, latitudes: &[f64], longitudes:
     (land && sea).then_some(out)
 }
 
-/// Maps are drawn on latitude-longitude axes; a projected grid's x and y
-/// would be drawn as if they were degrees, so it is refused until the
-/// projected map (in the data's own projection, with a graticule) exists.
-fn refuse_projected(grid: &crate::grid::Grid) -> Result<(), RenderError> {
-    match &grid.projection {
-        Some(p) => Err(RenderError::input(
-            "map grid",
-            format!("maps of {} grids are not drawn yet; tables, points, profiles and the written results work on them", p.projection.cf_name()),
-        )),
-        None => Ok(()),
+/// The frame of a map on a projected grid (Lambert conformal, polar
+/// stereographic, rotated pole), drawn in the data's own projection: each
+/// point's true latitude and the graticule of meridians and parallels,
+/// computed by projecting latitude-longitude polylines. None on a
+/// latitude-longitude grid.
+pub fn projected_frame(grid: &crate::grid::Grid) -> Option<crate::render::map::ProjectedFrame> {
+    use crate::projection::Projection;
+    let p = grid.projection.as_ref()?;
+    let bounds = |v: &[f64]| v.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &c| (a.min(c), b.max(c)));
+    let ((x0, x1), (y0, y1)) = (bounds(&p.x), bounds(&p.y));
+    let projection = p.projection.clone();
+    let forward = move |lat: f64, lon: f64| projection.forward(lat, lon);
+    let graticule = crate::render::graticule::graticule(&p.latitude, &p.longitude, (x0, x1, y0, y1), &forward);
+    let name = match &p.projection {
+        Projection::LambertConformal(_) => "Lambert conformal",
+        Projection::PolarStereographic(_) => "polar stereographic",
+        Projection::RotatedPole(_) => "rotated-pole latitude-longitude",
+    };
+    Some(crate::render::map::ProjectedFrame { name: name.into(), latitudes: p.latitude.clone(), graticule, angular: p.projection.is_angular() })
+}
+
+/// Eastward and northward components turned to the grid's x and y
+/// directions (the map's local east turned back by the projection's
+/// rotation angle), so vectors drawn on a projected map point the way the
+/// wind blows over the map: a westerly lies along the parallel. On a
+/// latitude-longitude grid the components are returned as they are.
+pub fn in_grid_directions(grid: &crate::grid::Grid, eastward: ArrayView2<'_, f32>, northward: ArrayView2<'_, f32>) -> (ndarray::Array2<f32>, ndarray::Array2<f32>) {
+    let mut along_x = eastward.as_standard_layout().into_owned();
+    let mut along_y = northward.as_standard_layout().into_owned();
+    if let (Some(p), Some(x), Some(y)) = (&grid.projection, along_x.as_slice_mut(), along_y.as_slice_mut()) {
+        p.rotate_to_grid(x, y);
     }
+    (along_x, along_y)
+}
+
+/// The land-sea mask on a map's grid, on either kind of grid: a projected
+/// map takes each point's true latitude and longitude to the mask's
+/// nearest cell (the mask itself on a latitude-longitude or projected
+/// grid); a mask on exactly the map's grid is taken as it is.
+pub fn land_mask_for(dataset: &crate::io::Dataset, grid: &crate::grid::Grid) -> Option<ndarray::Array2<f32>> {
+    let Some(projected) = &grid.projection else {
+        return land_mask_on(dataset, &grid.latitudes, &grid.longitudes);
+    };
+    let info = dataset.variables().find(|v| v.standard_name.as_deref() == Some("land_binary_mask"))?;
+    let mask = dataset.read(&info.name.clone(), &crate::io::Selection::default()).ok()?;
+    let values = mask.data.index_axis(Axis(0), 0).index_axis_move(Axis(0), 0);
+    let (ny, nx) = grid.shape();
+    let out = if *mask.grid == *grid {
+        values.to_owned()
+    } else {
+        let nearest_on_mask = |lat: f64, lon: f64| -> Option<(usize, usize)> {
+            match &mask.grid.projection {
+                Some(m) => m.nearest_cell(lat, lon),
+                None => {
+                    let (lats, lons) = (&mask.grid.latitudes, &mask.grid.longitudes);
+                    let step = |c: &[f64]| if c.len() > 1 { (c[1] - c[0]).abs() } else { 1.0 };
+                    let pick = |c: &[f64], x: f64, wrap: bool| -> Option<usize> {
+                        let d = |v: f64| if wrap { ((v - x + 540.0).rem_euclid(360.0) - 180.0).abs() } else { (v - x).abs() };
+                        let (k, best) = c.iter().enumerate().map(|(k, &v)| (k, d(v))).min_by(|a, b| a.1.total_cmp(&b.1))?;
+                        (best <= 0.51 * step(c)).then_some(k)
+                    };
+                    Some((pick(lats, lat, false)?, pick(lons, lon, true)?))
+                }
+            }
+        };
+        ndarray::Array2::from_shape_fn((ny, nx), |(j, i)| {
+            let k = j * nx + i;
+            nearest_on_mask(projected.latitude[k], projected.longitude[k]).map_or(f32::NAN, |(r, c)| values[[r, c]])
+        })
+    };
+    let (land, sea) = out.iter().fold((false, false), |(l, s), &v| (l || v >= 0.5, s || (v.is_finite() && v < 0.5)));
+    (land && sea).then_some(out)
 }
 
 /// A map of a scalar field: shaded, with labelled contour lines, and
@@ -297,7 +358,6 @@ pub fn field_map_with(f: &Field, vectors: Option<&VectorField>, size: &FigureSiz
 /// weak-wind areas hatched; signed fields with a neutral band around zero;
 /// coastlines from the dataset's land-sea mask when it has one.
 pub fn field_map_on(f: &Field, vectors: Option<&VectorField>, size: &FigureSize, dataset: Option<&crate::io::Dataset>, options: &MapOptions) -> Result<MimeBundle, RenderError> {
-    refuse_projected(&f.grid)?;
     let (values, note) = first_slice(f);
     let thickness = is_thickness(f);
     let dam;
@@ -343,10 +403,13 @@ pub fn field_map_on(f: &Field, vectors: Option<&VectorField>, size: &FigureSize,
     }
     let vector_slices;
     if let Some(w) = vectors {
-        vector_slices = (first_slice(&w.eastward).0, first_slice(&w.northward).0);
-        spec = spec.vectors(VectorLayer::arrows(vector_slices.0, vector_slices.1, w.eastward.long_name.replace("eastward ", "")));
+        vector_slices = in_grid_directions(&w.eastward.grid, first_slice(&w.eastward).0, first_slice(&w.northward).0);
+        spec = spec.vectors(VectorLayer::arrows(vector_slices.0.view(), vector_slices.1.view(), w.eastward.long_name.replace("eastward ", "")));
     }
-    let land = dataset.and_then(|d| land_mask_on(d, &f.grid.latitudes, &f.grid.longitudes));
+    if let Some(frame) = projected_frame(&f.grid) {
+        spec = spec.projected(frame);
+    }
+    let land = dataset.and_then(|d| land_mask_for(d, &f.grid));
     if let Some(mask) = &land {
         spec = spec.contour_lines(crate::render::map::coastline_layer(mask.view()));
     }
@@ -371,11 +434,13 @@ pub fn vector_map_with(w: &VectorField, size: &FigureSize) -> Result<MimeBundle,
 /// so colours and barbs read on one scale; coastlines from the dataset's
 /// land-sea mask when it has one.
 pub fn vector_map_on(w: &VectorField, size: &FigureSize, dataset: Option<&crate::io::Dataset>, options: &MapOptions) -> Result<MimeBundle, RenderError> {
-    refuse_projected(&w.eastward.grid)?;
     let speed = w.speed();
     let (values, note) = first_slice(&speed);
-    let (u, _) = first_slice(&w.eastward);
-    let (v, _) = first_slice(&w.northward);
+    // Components along the grid's x and y (unchanged on a
+    // latitude-longitude grid); the speed is the same either way.
+    let grid = &w.eastward.grid;
+    let (u_grid, v_grid) = in_grid_directions(grid, first_slice(&w.eastward).0, first_slice(&w.northward).0);
+    let (u, v) = (u_grid.view(), v_grid.view());
     let name = w.eastward.long_name.replace("eastward ", "");
     let is_speed = crate::units::Unit::parse(&w.eastward.units).map(|u| u.dimension() == crate::units::Dimension::VELOCITY).unwrap_or(false);
     let own = crate::units::spelling(&w.eastward.units);
@@ -414,7 +479,10 @@ pub fn vector_map_on(w: &VectorField, size: &FigureSize, dataset: Option<&crate:
         .shaded(ShadedLayer::new(values, format!("speed of {name}"), shown.clone()))
         .vectors(layer)
         .caption("Baroc: an analysis tool, not a warning service.");
-    let land = dataset.and_then(|d| land_mask_on(d, &w.eastward.grid.latitudes, &w.eastward.grid.longitudes));
+    if let Some(frame) = projected_frame(grid) {
+        spec = spec.projected(frame);
+    }
+    let land = dataset.and_then(|d| land_mask_for(d, grid));
     if let Some(mask) = &land {
         spec = spec.contour_lines(crate::render::map::coastline_layer(mask.view()));
     }

@@ -601,6 +601,37 @@ pub struct ProjectedGrid {
     /// or per radian of rotated longitude), likewise for y.
     pub inverse_scale_x: Vec<f64>,
     pub inverse_scale_y: Vec<f64>,
+    /// Per-point coefficients of the gradient (physics::projected), made
+    /// once per grid on first use rather than on every call.
+    pub gradient_coefficients: GridCache<[Vec<f32>; 4]>,
+    /// Per-point coefficients of balanced (geostrophic, thermal) winds,
+    /// kept for the last few (rotation rate, scale, equator band) asked.
+    pub balanced_coefficients: GridCache<std::sync::Mutex<Vec<([u64; 3], std::sync::Arc<[Vec<f32>; 4]>)>>>,
+}
+
+/// A value computed from a grid once, on first use. It is derived from the
+/// grid, so two grids are equal whether or not either has filled it, and a
+/// copy of a grid starts with it empty (grids are shared behind `Arc`, so
+/// copies are rare).
+#[derive(Debug, Default)]
+pub struct GridCache<T>(std::sync::OnceLock<T>);
+
+impl<T> Clone for GridCache<T> {
+    fn clone(&self) -> Self {
+        Self(std::sync::OnceLock::new())
+    }
+}
+
+impl<T> GridCache<T> {
+    pub fn get_or_init(&self, make: impl FnOnce() -> T) -> &T {
+        self.0.get_or_init(make)
+    }
+}
+
+impl<T> PartialEq for GridCache<T> {
+    fn eq(&self, _: &Self) -> bool {
+        true
+    }
 }
 
 impl ProjectedGrid {
@@ -616,6 +647,8 @@ impl ProjectedGrid {
             east_sin: Vec::with_capacity(n),
             inverse_scale_x: Vec::with_capacity(n),
             inverse_scale_y: Vec::with_capacity(n),
+            gradient_coefficients: GridCache::default(),
+            balanced_coefficients: GridCache::default(),
             x,
             y,
         };

@@ -15,8 +15,10 @@
 //! ascending, from the first point and the increments; winds flagged
 //! grid-relative (flag table 3.3 bit 5) are named x_wind / y_wind so the
 //! dataset turns them to earth-relative on read. Rotated latitude-longitude
-//! (3.1) is parsed but refused with a message naming the file, never read
-//! as if it were latitude-longitude. Hybrid levels (type 105) are indexed with their
+//! (3.1) becomes a projected grid too (x and y the rotated longitude and
+//! latitude, the rotated pole the antipode of the template's southern
+//! pole), never read as if it were latitude-longitude; a non-zero angle of
+//! rotation is refused. Hybrid levels (type 105) are indexed with their
 //! level numbers and vertical coordinate values, which the variable's
 //! attributes and `GribSource::hybrid_levels` carry; reading them as
 //! pressure levels is refused.
@@ -166,6 +168,38 @@ fn latlon_grid(g: &LatLonGrid) -> Result<(Grid, Layout), String> {
     Ok((Grid::new(latitudes, longitudes), Layout { ni: g.ni, nj: g.nj, reverse_columns, column_major, reverse_rows: false }))
 }
 
+/// A rotated latitude-longitude grid (template 3.1) as a projected `Grid`:
+/// x and y are the rotated longitude and latitude in degrees, ascending
+/// (rows flipped when the file scans north to south), and the projection
+/// is a rotated pole whose north pole is the antipode of the template's
+/// southern pole of projection (WMO-No. 306, template 3.1 octets 73-80; CF
+/// `rotated_latitude_longitude` takes the northern pole). A non-zero angle
+/// of rotation is refused rather than read wrongly.
+fn rotated_grid(g: &LatLonGrid, south_pole_latitude: f64, south_pole_longitude: f64, rotation_angle: f64) -> Result<(Grid, Layout), String> {
+    use crate::projection::{ProjectedGrid, Projection, RotatedPole};
+    if !(rotation_angle.is_finite() && rotation_angle.abs() < 1e-9) {
+        return Err(format!(
+            "its angle of rotation is {rotation_angle} degrees (template 3.1 octets 81-84); Baroc reads rotated latitude-longitude grids whose angle of rotation is 0"
+        ));
+    }
+    let radius = sphere_radius(&g.earth)?;
+    let (grid, mut layout) = latlon_grid(g)?;
+    let mut x = grid.longitudes;
+    // Rotated longitudes about the rotated meridian 0 (-180..180), where
+    // the projection's forward transformation puts them.
+    if x[0] >= 180.0 {
+        x.iter_mut().for_each(|v| *v -= 360.0);
+    }
+    let mut y = grid.latitudes;
+    if y.len() > 1 && y[0] > y[y.len() - 1] {
+        y.reverse();
+        layout.reverse_rows = true;
+    }
+    let pole_longitude = (south_pole_longitude + 360.0).rem_euclid(360.0) - 180.0;
+    let pole = RotatedPole::new(-south_pole_latitude, pole_longitude, 0.0, radius).map_err(|e| format!("its rotated latitude-longitude grid: {e}"))?;
+    Ok((Grid::projected(ProjectedGrid::new(Projection::RotatedPole(pole), x, y)), layout))
+}
+
 /// The radius of a spherical earth of code table 3.2, in m. Baroc's
 /// projections are spherical, so oblate shapes are refused rather than read
 /// on a sphere (which would shift points by up to some 20 km).
@@ -286,14 +320,9 @@ impl GribSource {
             }
             projected @ (GridDefinition::LambertConformal(_) | GridDefinition::PolarStereographic(_)) => projected_grid(projected)
                 .map_err(|e| DataError::Invalid(format!("{}: {e}. Grid parameters: {}", where_is(&paths, &first), projected.parameters())))?,
-            other => {
-                return Err(DataError::Invalid(format!(
-                    "{}: projected grid (template 3.{}, {}) is not supported yet; Baroc reads latitude-longitude (template 3.0), polar stereographic (3.20) and Lambert conformal (3.30) grids. Grid parameters: {}",
-                    where_is(&paths, &first),
-                    other.template(),
-                    other.name(),
-                    other.parameters()
-                )))
+            rotated @ GridDefinition::RotatedLatLon { grid, south_pole_latitude, south_pole_longitude, rotation_angle } => {
+                rotated_grid(grid, *south_pole_latitude, *south_pole_longitude, *rotation_angle)
+                    .map_err(|e| DataError::Invalid(format!("{}: {e}. Grid parameters: {}", where_is(&paths, &first), rotated.parameters())))?
             }
         };
         let grid = Arc::new(grid);
@@ -303,6 +332,7 @@ impl GribSource {
         let resolution_flags = match &first.field.grid {
             GridDefinition::LambertConformal(g) => g.resolution_flags,
             GridDefinition::PolarStereographic(g) => g.resolution_flags,
+            GridDefinition::RotatedLatLon { grid, .. } => grid.resolution_flags,
             _ => 0,
         };
         let grid_relative_winds = grid.projection.is_some() && resolution_flags & 0x08 != 0;

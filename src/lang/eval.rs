@@ -1377,6 +1377,9 @@ fn intersect(a: &Region, b: &Region) -> Option<Region> {
 /// already inside it, so this only cuts what was computed before).
 fn crop_value(v: Value, region: &Region, span: Span) -> Result<Value> {
     let crop = |f: &Field| -> Result<Field> {
+        if let Some(projected) = &f.grid.projection {
+            return crop_projected(f, projected, region, span);
+        }
         let lat: Vec<usize> = (0..f.grid.latitudes.len()).filter(|&j| f.grid.latitudes[j] >= region.south - 1e-9 && f.grid.latitudes[j] <= region.north + 1e-9).collect();
         let lon: Vec<usize> = (0..f.grid.longitudes.len()).filter(|&i| region.contains(region.south, f.grid.longitudes[i])).collect();
         if lat.len() == f.grid.latitudes.len() && lon.len() == f.grid.longitudes.len() {
@@ -1397,6 +1400,29 @@ fn crop_value(v: Value, region: &Region, span: Span) -> Result<Value> {
         Value::Vector(w) => Ok(Value::vector(VectorField { eastward: crop(&w.eastward)?, northward: crop(&w.northward)? })),
         other => Ok(other),
     }
+}
+
+/// A latitude-longitude box on a projected grid: the smallest block of
+/// grid rows and columns holding every cell whose centre (true latitude
+/// and longitude) lies in the box, the same block the readers take
+/// (`io::projected::block_in_box`). The block keeps the projection and
+/// stays a regular grid, so derivatives and maps work on it; cells of the
+/// block outside the box keep their values, and area statistics over the
+/// box count exactly the cells inside (`physics::sampling::area_statistics`).
+fn crop_projected(f: &Field, projected: &crate::projection::ProjectedGrid, region: &Region, span: Span) -> Result<Field> {
+    let Some((rows, columns)) = crate::io::projected::block_in_box(projected, region.south, region.north, region.west, region.east) else {
+        return Err(error("the region holds no points of this field", span).with_help(f.grid.describe()));
+    };
+    let (ny, nx) = projected.shape();
+    if rows.clone().count() == ny && columns.clone().count() == nx {
+        return Ok(f.clone());
+    }
+    let rows: Vec<usize> = rows.collect();
+    let columns: Vec<usize> = columns.collect();
+    let mut out = f.clone();
+    out.data = f.data.select(Axis(2), &rows).select(Axis(3), &columns);
+    out.grid = Arc::new(crate::io::projected::sub_grid(projected, &rows, &columns));
+    Ok(out)
 }
 
 fn select_times_in_memory(v: Value, wanted: &[f64], span: Span) -> Result<Value> {

@@ -85,18 +85,38 @@ impl GridStencils {
 /// [slice, y, x]. NaN inputs propagate to their neighbours' derivatives.
 pub fn gradient(grid: &ProjectedGrid, scalar: ArrayView3<f32>) -> (Array3<f32>, Array3<f32>) {
     // east = sx cos(a) d/dxi + sy sin(a) d/deta, north = -sx sin(a) d/dxi + sy cos(a) d/deta.
-    let coefficients = point_coefficients(grid, |_, sx, sy, c, s| [sx * c, sy * s, -sx * s, sy * c]);
-    combine_derivatives(grid, scalar, &coefficients)
+    let coefficients = grid.gradient_coefficients.get_or_init(|| point_coefficients(grid, |_, sx, sy, c, s| [sx * c, sy * s, -sx * s, sy * c]));
+    combine_derivatives(grid, scalar, coefficients)
 }
 
 /// (u, v) = (scale / f) k x grad(field), eastward and northward, with f at
 /// each point's latitude; NaN where |latitude| < `equator_band` degrees.
 pub fn balanced_wind(grid: &ProjectedGrid, constants: &Constants, field: ArrayView3<f32>, scale: f64, equator_band: f64) -> (Array3<f32>, Array3<f32>) {
     // u = -k north_gradient, v = k east_gradient, k = scale / f (NaN in the band).
-    let coefficients = point_coefficients(grid, |lat, sx, sy, c, s| {
-        let k = if lat.abs() < equator_band { f64::NAN } else { scale / constants.coriolis(lat) };
-        [k * sx * s, -k * sy * c, k * sx * c, k * sy * s]
-    });
+    let make = || {
+        point_coefficients(grid, |lat, sx, sy, c, s| {
+            let k = if lat.abs() < equator_band { f64::NAN } else { scale / constants.coriolis(lat) };
+            [k * sx * s, -k * sy * c, k * sx * c, k * sy * s]
+        })
+    };
+    // Made once per grid and (rotation rate, scale, band): a run asks the
+    // same few again and again, level after level, time after time.
+    let key = [constants.rotation_rate.to_bits(), scale.to_bits(), equator_band.to_bits()];
+    let cache = grid.balanced_coefficients.get_or_init(|| std::sync::Mutex::new(Vec::new()));
+    let found = cache.lock().ok().and_then(|kept| kept.iter().find(|(k, _)| *k == key).map(|(_, c)| c.clone()));
+    let coefficients = match found {
+        Some(c) => c,
+        None => {
+            let made = std::sync::Arc::new(make());
+            if let Ok(mut kept) = cache.lock() {
+                if kept.len() >= 4 {
+                    kept.remove(0);
+                }
+                kept.push((key, made.clone()));
+            }
+            made
+        }
+    };
     combine_derivatives(grid, field, &coefficients)
 }
 

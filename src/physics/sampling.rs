@@ -121,11 +121,27 @@ pub struct AreaStatistics {
 /// cos(lat)-weighted mean, minimum and maximum of a [lat, lon] slice over a
 /// region; missing values are skipped and counted. Fails when the region holds
 /// no grid points. All-missing gives NaN statistics with the count.
+///
+/// On a projected grid the cells taken are those whose centres' true
+/// latitude and longitude lie in the box, and each is weighted by its area
+/// on the earth: a regular cell of a conformal projection covers
+/// dx dy / m^2 (m the map factor, Snyder 1987, USGS PP 1395, ch. 4); a
+/// rotated latitude-longitude cell covers an area proportional to the
+/// cosine of its rotated latitude, as on any latitude-longitude grid.
 pub fn area_statistics(grid: &Grid, values: ArrayView2<f32>, region: &Region) -> Result<AreaStatistics, SamplingError> {
     let (mut sum, mut weights, mut minimum, mut maximum, mut valid, mut missing) = (0.0f64, 0.0f64, f64::INFINITY, f64::NEG_INFINITY, 0, 0);
-    for (j, &lat) in grid.latitudes.iter().enumerate() {
-        let w = lat.to_radians().cos().max(0.0);
-        for (i, &lon) in grid.longitudes.iter().enumerate() {
+    let nx = grid.longitudes.len();
+    for j in 0..grid.latitudes.len() {
+        for i in 0..nx {
+            let (lat, lon, w) = match &grid.projection {
+                Some(p) => {
+                    let k = j * nx + i;
+                    let m = p.map_factor[k];
+                    let w = if p.projection.is_angular() { 1.0 / m } else { 1.0 / (m * m) };
+                    (p.latitude[k], p.longitude[k], if w.is_finite() { w.max(0.0) } else { 0.0 })
+                }
+                None => (grid.latitudes[j], grid.longitudes[i], grid.latitudes[j].to_radians().cos().max(0.0)),
+            };
             if !region.contains(lat, lon) {
                 continue;
             }

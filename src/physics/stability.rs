@@ -66,6 +66,33 @@ pub fn eady_growth_rate(
     out
 }
 
+/// The maximum Eady growth rate on a projected grid, where each point has
+/// its own latitude: `point_latitudes` holds the true latitude of every
+/// point of a [lat, lon] slice, row by row (`ProjectedGrid::latitude`).
+/// Same formula and failure as `eady_growth_rate`: sigma = 0.31 f |dV/dz|
+/// / N (Lindzen and Farrell 1980), NaN where N^2 <= 0.
+pub fn eady_growth_rate_at_points(
+    constants: &Constants,
+    point_latitudes: &[f64],
+    static_stability: ArrayView3<f32>,
+    thermal_u: ArrayView3<f32>,
+    thermal_v: ArrayView3<f32>,
+    thickness: ArrayView3<f32>,
+) -> Array3<f32> {
+    let nx = static_stability.dim().2;
+    let mut out = Array3::<f32>::zeros(static_stability.dim());
+    Zip::indexed(&mut out).and(static_stability).and(thermal_u).and(thermal_v).and(thickness).par_for_each(|(_, j, i), o, &n2, &u, &v, &dz| {
+        let n2 = n2 as f64;
+        *o = if n2 > 0.0 {
+            let f = constants.coriolis(point_latitudes[j * nx + i]).abs();
+            (0.31 * f / n2.sqrt() * (u as f64).hypot(v as f64) / dz as f64) as f32
+        } else {
+            f32::NAN
+        };
+    });
+    out
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

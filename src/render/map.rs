@@ -236,6 +236,33 @@ pub struct MapSpec<'a> {
     pub vectors: Option<VectorLayer<'a>>,
     /// Text under the map.
     pub caption: String,
+    /// Set for a map in a projection's own plane: `latitudes` and
+    /// `longitudes` are then the grid's y and x coordinates.
+    pub projected: Option<ProjectedFrame>,
+}
+
+/// A map drawn in a projection's own plane (Lambert conformal, polar
+/// stereographic, rotated pole). The grid is regular in projection x and
+/// y, so the layers are drawn on it as they are, x and y at one scale (the
+/// projection keeps shapes; it is conformal); the graticule of true
+/// meridians and parallels is drawn curved, labelled where it meets the
+/// frame. Vectors must be given along the grid's x and y (a wind turned
+/// from east/north by the projection's rotation angle), so a westerly barb
+/// lies along the parallel.
+#[derive(Debug, Clone)]
+pub struct ProjectedFrame {
+    /// The projection in words for the description ("Lambert conformal conic").
+    pub name: String,
+    /// True latitude of each grid point, row by row in the layers' order
+    /// ([y, x]); it sets the side of each barb's feathers.
+    pub latitudes: Vec<f64>,
+    /// The meridians and parallels in projection coordinates
+    /// (`render::graticule::graticule`).
+    pub graticule: Vec<GraticuleLine>,
+    /// True when x and y are rotated longitude and latitude in degrees (a
+    /// rotated-pole grid): x is then drawn shrunk by the cosine of the
+    /// middle rotated latitude, as a latitude-longitude map is.
+    pub angular: bool,
 }
 
 impl<'a> MapSpec<'a> {
@@ -249,7 +276,14 @@ impl<'a> MapSpec<'a> {
             contours: Vec::new(),
             vectors: None,
             caption: String::new(),
+            projected: None,
         }
+    }
+    /// Draw in a projection's plane: the spec's latitudes and longitudes
+    /// are the grid's y and x.
+    pub fn projected(mut self, frame: ProjectedFrame) -> Self {
+        self.projected = Some(frame);
+        self
     }
     pub fn subtitle(mut self, text: impl Into<String>) -> Self {
         self.subtitle = text.into();
@@ -295,6 +329,26 @@ struct GridPlan {
 }
 
 impl GridPlan {
+    /// A projected grid: y in either order, x increasing, both finite
+    /// projection coordinates; never periodic.
+    fn projected(y: &[f64], x: &[f64]) -> Result<Self, RenderError> {
+        if y.len() < 2 || x.len() < 2 {
+            return Err(RenderError::input("map grid", format!("needs at least 2 rows and 2 columns, got {} and {}", y.len(), x.len())));
+        }
+        if y.iter().chain(x).any(|v| !v.is_finite()) {
+            return Err(RenderError::input("map grid", "projection coordinates must be finite numbers"));
+        }
+        let lat_reversed = y[0] > y[y.len() - 1];
+        let mut lats = y.to_vec();
+        if lat_reversed {
+            lats.reverse();
+        }
+        if lats.windows(2).any(|w| w[1] <= w[0]) || x.windows(2).any(|w| w[1] <= w[0]) {
+            return Err(RenderError::input("map grid", "projection y must be strictly monotonic and x strictly increasing"));
+        }
+        Ok(GridPlan { lats, lons: x.to_vec(), lat_reversed, wrap: false })
+    }
+
     fn new(latitudes: &[f64], longitudes: &[f64]) -> Result<Self, RenderError> {
         if latitudes.len() < 2 || longitudes.len() < 2 {
             return Err(RenderError::input(
@@ -495,6 +549,14 @@ struct PreparedVectors {
     key_unit: Option<(String, f64)>,
 }
 
+/// The projected part of a prepared map: the graticule and each point's
+/// true latitude (latitude ascending order of the plan).
+struct PreparedProjection {
+    graticule: Vec<GraticuleLine>,
+    latitudes: Vec<f64>,
+    angular: bool,
+}
+
 pub(crate) struct PreparedMap {
     title: String,
     subtitle: String,
@@ -503,6 +565,7 @@ pub(crate) struct PreparedMap {
     shading: Option<PreparedShading>,
     lines: Vec<PreparedLines>,
     vectors: Option<PreparedVectors>,
+    projection: Option<PreparedProjection>,
     description: String,
 }
 
@@ -517,7 +580,20 @@ impl PreparedMap {
         width_px: f64,
         height_px: f64,
     ) -> Result<Self, RenderError> {
-        let plan = GridPlan::new(spec.latitudes, spec.longitudes)?;
+        let plan = match &spec.projected {
+            Some(_) => GridPlan::projected(spec.latitudes, spec.longitudes)?,
+            None => GridPlan::new(spec.latitudes, spec.longitudes)?,
+        };
+        let projection = match &spec.projected {
+            None => None,
+            Some(frame) => {
+                let (ny, nx) = (plan.nlat(), plan.nlon_input());
+                let view = ndarray::ArrayView2::from_shape((ny, nx), &frame.latitudes)
+                    .map_err(|_| RenderError::input("projected map", format!("needs {} point latitudes, got {}", ny * nx, frame.latitudes.len())))?;
+                let latitudes = plan.arrange(&view.mapv(|v| v as f32).view(), "point latitudes")?;
+                Some(PreparedProjection { graticule: frame.graticule.clone(), latitudes, angular: frame.angular })
+            }
+        };
         let x = plan.lons.clone();
         let y = plan.lats.clone();
         // Contours through cells of about 1.5 device pixels are as smooth as
@@ -661,21 +737,37 @@ impl PreparedMap {
             }
         };
 
-        let description = format!(
-            "Map \"{}\": {}; grid {} x {} ({} to {}, {} to {}).",
-            spec.title,
-            if described.is_empty() {
-                "no layers".to_string()
-            } else {
-                described.join("; ")
-            },
-            plan.nlat(),
-            plan.nlon_input(),
-            lat_label(plan.lats[0], 0.01),
-            lat_label(plan.lats[plan.nlat() - 1], 0.01),
-            lon_label(plan.lons[0], 0.01),
-            lon_label(plan.lons[plan.nlon_input() - 1], 0.01),
-        );
+        let layers = if described.is_empty() { "no layers".to_string() } else { described.join("; ") };
+        let description = match (&spec.projected, &projection) {
+            (Some(frame), Some(prepared)) => {
+                let (lo, hi) = prepared.latitudes.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &v| (a.min(v), b.max(v)));
+                let (scale, unit) = if frame.angular { (1.0, "degrees") } else { (1000.0, "km") };
+                format!(
+                    "Map \"{}\": {layers}; {} grid {} x {} ({} by {} {unit}, latitude {} to {}), drawn in its own projection with {} meridians and {} parallels.",
+                    spec.title,
+                    frame.name,
+                    plan.nlat(),
+                    plan.nlon_input(),
+                    format_value((plan.lons[plan.nlon_input() - 1] - plan.lons[0]) / scale, 0.1),
+                    format_value((plan.lats[plan.nlat() - 1] - plan.lats[0]) / scale, 0.1),
+                    lat_label(lo, 0.01),
+                    lat_label(hi, 0.01),
+                    frame.graticule.iter().filter(|l| l.kind == GraticuleKind::Meridian).count(),
+                    frame.graticule.iter().filter(|l| l.kind == GraticuleKind::Parallel).count(),
+                )
+            }
+            _ => format!(
+                "Map \"{}\": {}; grid {} x {} ({} to {}, {} to {}).",
+                spec.title,
+                layers,
+                plan.nlat(),
+                plan.nlon_input(),
+                lat_label(plan.lats[0], 0.01),
+                lat_label(plan.lats[plan.nlat() - 1], 0.01),
+                lon_label(plan.lons[0], 0.01),
+                lon_label(plan.lons[plan.nlon_input() - 1], 0.01),
+            ),
+        };
         let mut subtitle_parts = Vec::new();
         if !spec.subtitle.is_empty() {
             subtitle_parts.push(spec.subtitle.clone());
@@ -719,6 +811,7 @@ impl PreparedMap {
             shading,
             lines,
             vectors,
+            projection,
             description,
         })
     }
@@ -768,14 +861,7 @@ pub(crate) fn lon_label(lon: f64, step: f64) -> String {
     }
 }
 
-/// Graticule step in degrees giving about `target` lines over `span`.
-fn graticule_step(span: f64, target: f64) -> f64 {
-    const STEPS: [f64; 13] = [
-        0.25, 0.5, 1.0, 2.0, 2.5, 5.0, 10.0, 15.0, 20.0, 30.0, 45.0, 60.0, 90.0,
-    ];
-    let raw = span / target;
-    STEPS.iter().copied().find(|&s| s >= raw).unwrap_or(90.0)
-}
+use super::graticule::{graticule_step, GraticuleKind, GraticuleLine};
 
 /// Where the map sits on the figure and how coordinates map to pixels.
 struct MapFrame {
@@ -828,6 +914,9 @@ impl Drawable for PreparedMap {
             Some(bar) => bar.width(p, (h - top - caption_h - key_h - tick_h) * 0.9),
             None => p.px(14.0),
         };
+        // A projected map labels meridians on the top edge too, where they
+        // leave the frame there.
+        let top = if self.projection.is_some() { top + tick_h + p.px(8.0) } else { top };
         let avail = Rect::new(
             left_w,
             top,
@@ -843,7 +932,12 @@ impl Drawable for PreparedMap {
         let lon1 = *self.plan.lons.last().unwrap();
         let lat0 = self.plan.lats[0];
         let lat1 = *self.plan.lats.last().unwrap();
-        let central = (0.5 * (lat0 + lat1)).to_radians().cos().max(0.2);
+        // Latitude-longitude and rotated grids shrink x by the cosine of the
+        // middle latitude; a projection in metres is drawn at one scale.
+        let central = match &self.projection {
+            Some(pr) if !pr.angular => 1.0,
+            _ => (0.5 * (lat0 + lat1)).to_radians().cos().max(0.2),
+        };
         let k = (avail.width() / ((lon1 - lon0) * central)).min(avail.height() / (lat1 - lat0));
         let (mw, mh) = ((lon1 - lon0) * central * k, (lat1 - lat0) * k);
         let left = avail.left + (avail.width() - mw) / 2.0;
@@ -878,11 +972,28 @@ impl Drawable for PreparedMap {
         }
 
         // Graticule.
+        let grid_colour = RGBAColor(40, 40, 40, 0.28);
+        let mut graticule_pixels: Vec<(&GraticuleLine, Vec<Vec<Pt>>)> = Vec::new();
+        if let Some(pr) = &self.projection {
+            for line in &pr.graticule {
+                let mut clipped = Vec::new();
+                for run in &line.runs {
+                    let pts: Vec<Pt> = run.iter().map(|&(x, y)| frame.position(x, y)).collect();
+                    clipped.extend(super::painter::clip_polyline(&pts, &rect));
+                }
+                for piece in &clipped {
+                    p.polyline(piece, grid_colour, 1.0)?;
+                }
+                graticule_pixels.push((line, clipped));
+            }
+        }
         let lat_step = graticule_step(lat1 - lat0, 6.0);
         let lon_step = graticule_step(lon1 - lon0, (6.0 * mw / mh.max(1.0)).clamp(3.0, 12.0));
-        let grid_colour = RGBAColor(40, 40, 40, 0.28);
-        let lats = super::colour::multiples_within(lat0, lat1, lat_step);
-        let lons = super::colour::multiples_within(lon0, lon1, lon_step);
+        let (lats, lons) = if self.projection.is_some() {
+            (Vec::new(), Vec::new())
+        } else {
+            (super::colour::multiples_within(lat0, lat1, lat_step), super::colour::multiples_within(lon0, lon1, lon_step))
+        };
         for &lat in &lats {
             let y = frame.position(lon0, lat).1;
             p.line((rect.left, y), (rect.right, y), grid_colour, 1.0)?;
@@ -944,6 +1055,9 @@ impl Drawable for PreparedMap {
 
         // Frame and graticule labels.
         p.stroke_rect(rect, BLACK_INK.rgba(), 1.0)?;
+        if self.projection.is_some() {
+            draw_edge_labels(p, rect, &graticule_pixels, self.shading.is_none())?;
+        }
         let mut last_x = f64::NEG_INFINITY;
         for &lon in &lons {
             let x = frame.position(lon, lat0).0;
@@ -1060,8 +1174,14 @@ impl PreparedMap {
             while ix < nx {
                 let (u, vv) = (v.u[iy * nx + ix], v.v[iy * nx + ix]);
                 let at = frame.position(self.plan.lons[ix], self.plan.lats[iy]);
+                // On a projected map the hemisphere is the point's true
+                // latitude, not its y coordinate.
+                let latitude = match &self.projection {
+                    Some(pr) => pr.latitudes[iy * nx + ix],
+                    None => self.plan.lats[iy],
+                };
                 if u.is_finite() && vv.is_finite() && inner.contains(at) {
-                    samples.push((at, u, vv, self.plan.lats[iy]));
+                    samples.push((at, u, vv, latitude));
                 }
                 ix += sx;
             }
@@ -1158,6 +1278,84 @@ impl PreparedMap {
         }
         Ok(())
     }
+}
+
+/// Which edge of the frame a graticule line meets.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Edge {
+    Bottom,
+    Top,
+    Left,
+    Right,
+}
+
+/// Labels of a projected map's graticule where its lines meet the frame:
+/// meridians preferably on the bottom edge, then the top, then the sides;
+/// parallels on the left edge, else the right (when no colour bar stands
+/// there). A label that would overlap one
+/// already placed is left out, so the edge reads cleanly.
+fn draw_edge_labels<DB: DrawingBackend>(
+    p: &Painter<'_, DB>,
+    rect: Rect,
+    lines: &[(&GraticuleLine, Vec<Vec<Pt>>)],
+    right_free: bool,
+) -> Result<(), RenderError> {
+    let tolerance = p.px(0.5);
+    let edge_of = |q: Pt| -> Option<Edge> {
+        if (q.1 - rect.bottom).abs() < tolerance {
+            Some(Edge::Bottom)
+        } else if (q.1 - rect.top).abs() < tolerance {
+            Some(Edge::Top)
+        } else if (q.0 - rect.left).abs() < tolerance {
+            Some(Edge::Left)
+        } else if (q.0 - rect.right).abs() < tolerance {
+            Some(Edge::Right)
+        } else {
+            None
+        }
+    };
+    let mut placed: Vec<Rect> = Vec::new();
+    let gap = p.px(5.0);
+    for (line, pieces) in lines {
+        let order: &[Edge] = match line.kind {
+            GraticuleKind::Meridian => &[Edge::Bottom, Edge::Top, Edge::Left, Edge::Right],
+            // A parallel's label on the top or bottom edge would sit among
+            // the meridians' and read as one of them: sides only.
+            GraticuleKind::Parallel => &[Edge::Left, Edge::Right],
+        };
+        let crossings: Vec<(Edge, Pt)> = pieces
+            .iter()
+            .flat_map(|piece| [piece[0], piece[piece.len() - 1]])
+            .filter_map(|q| edge_of(q).map(|e| (e, q)))
+            .collect();
+        'edges: for &edge in order {
+            if edge == Edge::Right && !right_free {
+                continue;
+            }
+            let mut here: Vec<Pt> = crossings.iter().filter(|c| c.0 == edge).map(|c| c.1).collect();
+            // Nearest the middle of the edge first, so a line that meets an
+            // edge twice is labelled where it reads best.
+            let middle = ((rect.left + rect.right) / 2.0, (rect.top + rect.bottom) / 2.0);
+            here.sort_by(|a, b| (a.0 - middle.0).abs().hypot((a.1 - middle.1).abs()).total_cmp(&(b.0 - middle.0).abs().hypot((b.1 - middle.1).abs())));
+            for q in here {
+                let (at, anchor, tick_end) = match edge {
+                    Edge::Bottom => ((q.0, rect.bottom + gap), Anchor::TopCentre, (q.0, rect.bottom + p.px(4.0))),
+                    Edge::Top => ((q.0, rect.top - gap), Anchor::BottomCentre, (q.0, rect.top - p.px(4.0))),
+                    Edge::Left => ((rect.left - p.px(6.0), q.1), Anchor::CentreRight, (rect.left - p.px(4.0), q.1)),
+                    Edge::Right => ((rect.right + p.px(6.0), q.1), Anchor::CentreLeft, (rect.right + p.px(4.0), q.1)),
+                };
+                let b = p.text_box(&line.label, at, TICK_SIZE, anchor).inflate(p.px(2.0));
+                if placed.iter().any(|o| o.overlaps(&b)) {
+                    continue;
+                }
+                placed.push(b);
+                p.line(q, tick_end, BLACK_INK.rgba(), 1.0)?;
+                p.text(&line.label, at, TICK_SIZE, BLACK_INK.rgba(), anchor)?;
+                break 'edges;
+            }
+        }
+    }
+    Ok(())
 }
 
 fn draw_barb<DB: DrawingBackend>(

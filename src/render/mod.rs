@@ -23,6 +23,7 @@ pub mod colour;
 pub mod contouring;
 pub mod cross_section;
 pub mod evcxr;
+pub mod graticule;
 mod font;
 mod frame;
 pub mod hodograph;

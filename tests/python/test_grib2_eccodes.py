@@ -438,11 +438,14 @@ def baroc_projected(baroc, tmp_path, data_file, bindings):
     with netCDF4.Dataset(out) as ds:
         y = ds["latitude"][:].astype("f8")
         x = ds["longitude"][:].astype("f8")
-        assert ds["latitude"].standard_name == "projection_y_coordinate"
+        # Metres for a projection, rotated degrees for a rotated pole (CF).
+        assert ds["latitude"].standard_name in ("projection_y_coordinate", "grid_latitude")
         mapping = {k: ds["grid_mapping"].getncattr(k) for k in ds["grid_mapping"].ncattrs()}
         values = {name: np.ma.filled(ds[name][:].astype("f8"), np.nan).reshape(len(y), len(x)) for name in bindings}
     crs = CRS.from_cf({k: (v.tolist() if isinstance(v, np.ndarray) else v) for k, v in mapping.items()})
-    to_degrees = Transformer.from_crs(crs, crs.geodetic_crs, always_xy=True)
+    # A rotated pole is a derived geographic CRS: degrees are those of its
+    # base, not of its own (rotated) geodetic CRS.
+    to_degrees = Transformer.from_crs(crs, crs.source_crs if crs.is_derived else crs.geodetic_crs, always_xy=True)
     xx, yy = np.meshgrid(x, y)
     lon, lat = to_degrees.transform(xx, yy)
     return values, lat, lon
@@ -566,15 +569,99 @@ def test_lambert_and_polar_stereographic_files_from_ecCodes_are_read_on_their_po
     np.testing.assert_allclose(scan_order(got["t"], keys), ref_t, rtol=1e-6)
 
 
+def rotated_from_ecCodes(path, *, rotation=0.0, relative_winds=False):
+    """Temperature (and, if asked, grid-relative u and v) on a rotated
+    latitude-longitude grid from ecCodes' own sample: 30 x 20 points a
+    half degree apart about the rotated origin, scanning north to south,
+    southern pole of projection at 40 S 170 W."""
+    def message(category, number, values):
+        h = ec.codes_grib_new_from_samples("rotated_ll_pl_grib2")
+        keys = {
+            "Ni": 30,
+            "Nj": 20,
+            "latitudeOfFirstGridPointInDegrees": 4.75,
+            "longitudeOfFirstGridPointInDegrees": 352.75,
+            "latitudeOfLastGridPointInDegrees": -4.75,
+            "longitudeOfLastGridPointInDegrees": 7.25,
+            "iDirectionIncrementInDegrees": 0.5,
+            "jDirectionIncrementInDegrees": 0.5,
+            "jScansPositively": 0,
+            "latitudeOfSouthernPoleInDegrees": -40.0,
+            "longitudeOfSouthernPoleInDegrees": 190.0,
+            "angleOfRotationInDegrees": rotation,
+            "parameterCategory": category,
+            "parameterNumber": number,
+        }
+        for key, value in keys.items():
+            ec.codes_set(h, key, value)
+        # Flag table 3.3 bit 5: u and v along the grid's axes.
+        ec.codes_set(h, "uvRelativeToGrid", int(relative_winds))
+        ec.codes_set_values(h, values)
+        return h
+
+    n = 600
+    handles = [message(0, 0, np.linspace(270.0, 290.0, n))]
+    if relative_winds:
+        handles.append(message(2, 2, 10.0 + 5.0 * np.sin(np.arange(n) / 37.0)))
+        handles.append(message(2, 3, -4.0 + 6.0 * np.cos(np.arange(n) / 23.0)))
+    write_messages(path, handles)
+
+
+def test_rotated_latitude_longitude_file_from_ecCodes_is_read_on_its_points_with_earth_relative_winds(baroc, tmp_path):
+    from pyproj import CRS, Transformer
+
+    path = tmp_path / "rotated.grib2"
+    rotated_from_ecCodes(path, relative_winds=True)
+    level = int(eccodes_fields(path)[0]["level"])
+    got, lat, lon = baroc_projected(baroc, tmp_path, path, {"t": f"t at {level} hPa", "u": f"eastward_wind at {level} hPa", "v": f"northward_wind at {level} hPa"})
+    # Points: ecCodes' geographic latitudes and longitudes of the rotated
+    # grid against Baroc's grid turned into degrees by PROJ (pyproj) from
+    # the CF rotated_latitude_longitude mapping Baroc writes.
+    ref_lat, ref_lon, ref_t, _ = eccodes_points(path, 0)
+    keys = {"jScansPositively": 0, "iScansNegatively": 0}
+    assert lat.shape == (20, 30)
+    # ecCodes' rotated-grid iterator returns degrees to about eight
+    # significant digits (178.44088 where PROJ gives 178.4408761; up to
+    # 8e-6 degree here, under a metre), so the bound is 1e-5 degree rather
+    # than the projections' 1e-6.
+    tolerance = 1e-5
+    np.testing.assert_allclose(scan_order(lat, keys), ref_lat, rtol=0, atol=tolerance)
+    assert longitude_difference(scan_order(lon, keys), ref_lon).max() < tolerance
+    np.testing.assert_allclose(scan_order(got["t"], keys), ref_t, rtol=1e-6)
+    # Winds: the grid-relative components turned by the angle between the
+    # rotated grid's x axis and local east, computed here through PROJ:
+    # step a small distance east from each point, take the step's rotated
+    # coordinates (d lon' cos lat', d lat'), and read its direction.
+    rotated = CRS.from_cf({"grid_mapping_name": "rotated_latitude_longitude", "grid_north_pole_latitude": 40.0, "grid_north_pole_longitude": 10.0})
+    to_rotated = Transformer.from_crs(rotated.source_crs, rotated, always_xy=True)
+    h = 1e-4
+    x1, y1 = to_rotated.transform(ref_lon - h, ref_lat)
+    x2, y2 = to_rotated.transform(ref_lon + h, ref_lat)
+    angle = np.arctan2(y2 - y1, (((x2 - x1) + 180.0) % 360.0 - 180.0) * np.cos(np.radians((y1 + y2) / 2)))
+    _, _, gx, _ = eccodes_points(path, 1)
+    _, _, gy, _ = eccodes_points(path, 2)
+    east = gx * np.cos(angle) + gy * np.sin(angle)
+    north = -gx * np.sin(angle) + gy * np.cos(angle)
+    np.testing.assert_allclose(scan_order(got["u"], keys), east, atol=2e-3)
+    np.testing.assert_allclose(scan_order(got["v"], keys), north, atol=2e-3)
+    assert np.abs(angle).max() > 0.1, "the rotated grid turns the wind by a fair angle somewhere"
+
+
 def test_unreadable_projected_grids_are_refused_with_their_parameters_as_ecCodes_reads_them(baroc, tmp_path):
-    # Rotated lat-lon (3.1) is not read yet; polar stereographic with a
-    # latitude of true scale on the equator has no valid projection.
+    # Polar stereographic with a latitude of true scale on the equator has
+    # no valid projection; a rotated grid with a non-zero angle of rotation
+    # is refused rather than read wrongly.
+    rotated = tmp_path / "rotated-by-angle.grib2"
+    rotated_from_ecCodes(rotated, rotation=30.0)
     for sample, template, fragment, keys in [
         ("polar_stereographic_pl_grib2", 20, "is not in the hemisphere of the projection's pole", {"Nx": "nx", "Ny": "ny", "LaDInDegrees": "true_scale_latitude", "orientationOfTheGridInDegrees": "orientation_longitude", "DxInMetres": "dx_metres", "projectionCentreFlag": "projection_centre_flag"}),
-        ("rotated_ll_pl_grib2", 1, "projected grid (template 3.1, rotated latitude-longitude) is not supported yet", {"Ni": "ni", "Nj": "nj", "latitudeOfSouthernPoleInDegrees": "south_pole_latitude", "longitudeOfSouthernPoleInDegrees": "south_pole_longitude", "angleOfRotationInDegrees": "rotation_angle"}),
+        (rotated, 1, "angle of rotation is 30 degrees", {"Ni": "ni", "Nj": "nj", "latitudeOfSouthernPoleInDegrees": "south_pole_latitude", "longitudeOfSouthernPoleInDegrees": "south_pole_longitude", "angleOfRotationInDegrees": "rotation_angle"}),
     ]:
-        path = tmp_path / f"{sample}.grib2"
-        write_messages(path, [ec.codes_grib_new_from_samples(sample)])
+        if isinstance(sample, Path):
+            path = sample
+        else:
+            path = tmp_path / f"{sample}.grib2"
+            write_messages(path, [ec.codes_grib_new_from_samples(sample)])
         ours = grid_parameters(refused(baroc, tmp_path, path, fragment, "message 1"))
         f = eccodes_reader(path)
         for key, ours_key in keys.items():
