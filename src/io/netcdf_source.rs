@@ -73,6 +73,10 @@ impl NetcdfSource {
             if dims.len() != 1 || dims[0].name() != variable.name() {
                 continue;
             }
+            // Hybrid model levels are read by io::model_levels, not as pressure.
+            if super::model_levels::is_hybrid_coordinate(&variable) {
+                continue;
+            }
             let Some(axis) = cf::classify_coordinate(&variable) else { continue };
             let raw: Vec<f64> = variable.get_values::<f64, _>(..).map_err(|e| netcdf_error(&path, e))?;
             let units = cf::attribute_text(&variable, "units").unwrap_or_default();
