@@ -457,6 +457,11 @@ fn demo(output: &Path, time_step: Option<usize>) -> Result<(), String> {
         Ok(report) => out(&format!("\nwrote the case-study report to {}\n", report.display())),
         Err(e) => return Err(format!("error: the report could not be written: {e}")),
     }
+    let regional = baroc::demo::regional::write(output).map_err(|e| format!("error: {e}"))?;
+    out(&format!(
+        "\nwrote the regional case (GRIB2, Lambert conformal grid, hybrid model levels, grid-relative winds; the invented Saltmere Coast) to {}\n",
+        regional.display()
+    ));
     out(&format!("\n{CAUTION}\n"));
     Ok(())
 }

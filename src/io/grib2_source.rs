@@ -773,3 +773,23 @@ impl GribSource {
         Ok(field)
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn full_level_coefficients_are_the_mean_of_the_half_levels() {
+        // By hand: half levels A = 0, 2000, 5000 Pa and B = 0, 0.4, 1;
+        // level 1 -> A 1000, B 0.2; level 2 -> A 3500, B 0.7; over ps =
+        // 1000 hPa: 21000 Pa and 73500 Pa.
+        let hybrid = HybridLevels { levels: vec![1.0, 2.0], pv: vec![0.0, 2000.0, 5000.0, 0.0, 0.4, 1.0] };
+        let c = full_level_coefficients(&hybrid).unwrap();
+        assert_eq!(c.pressure(0, 100_000.0), 21_000.0);
+        assert_eq!(c.pressure(1, 100_000.0), 73_500.0);
+        let bad = HybridLevels { levels: vec![1.0, 2.0, 3.0], pv: hybrid.pv.clone() };
+        assert!(full_level_coefficients(&bad).unwrap_err().contains("model levels 1 to 2, but the data have model level 3"));
+        let odd = HybridLevels { levels: vec![1.0], pv: vec![0.0, 1.0, 2.0] };
+        assert!(full_level_coefficients(&odd).unwrap_err().contains("even count"));
+    }
+}

@@ -405,7 +405,13 @@ impl DataSource for OnPressureLevels {
                 let t = self.read_model(model, &times, &column, region)?;
                 let q = humidity.map(|h| self.read_model(&models[h], &times, &column, region)).transpose()?;
                 let surface_info = self.store.variables().iter().find(|v| v.name == *surface).expect("found when wrapped");
-                let surface_selection = Selection { times: surface_info.times.as_ref().map(|_| times.clone()), levels: None, region: region.copied() };
+                // A surface geopotential given once serves every time.
+                let surface_times = match &surface_info.times {
+                    Some(t) if t.values.len() == 1 => Some(vec![0]),
+                    Some(_) => Some(times.clone()),
+                    None => None,
+                };
+                let surface_selection = Selection { times: surface_times, levels: None, region: region.copied() };
                 let zs = self.store.read(surface, &surface_selection)?.data.index_axis(Axis(1), 0).mapv(|v| (v as f64 * factor) as f32);
                 let phi = geopotential_on_levels(zs.view(), ps.view(), pressure.view(), t.view(), q.as_ref().map(|q| q.view()), &self.constants)
                     .map_err(|e| DataError::Invalid(format!("{}: {HYDROSTATIC_GEOPOTENTIAL}: {e}", self.store.label())))?;
