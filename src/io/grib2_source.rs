@@ -627,7 +627,7 @@ pub fn full_level_coefficients(hybrid: &HybridLevels) -> Result<HybridCoefficien
     if pv.is_empty() {
         return Err("it is on hybrid levels (fixed surface 105) but its messages carry no vertical coordinate values (PV), so the pressure of its levels is unknown".into());
     }
-    if pv.len() % 2 != 0 || pv.len() < 4 {
+    if !pv.len().is_multiple_of(2) || pv.len() < 4 {
         return Err(format!(
             "its {} hybrid coefficients (PV) are not the A and B of two or more half levels (an even count is needed)",
             pv.len()

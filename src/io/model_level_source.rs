@@ -95,8 +95,8 @@ pub trait ModelLevelStore: DataSource {
     fn model_level_variables(&self) -> &[ModelLevelVariable];
     /// Reads the given time and model-level indices of a model-level
     /// variable, [time, level, y, x] in the order asked, over the region.
-    /// The field has no pressure levels (`levels` None would lose the level
-    /// axis, so the field's levels hold the level indices).
+    /// The field's `levels` hold the model level numbers or indices, not
+    /// pressures (`levels` None would lose the level axis).
     fn read_model_levels(&self, name: &str, times: &[usize], levels: &[usize], region: Option<&Region>) -> Result<Field, DataError>;
 }
 
@@ -354,13 +354,13 @@ impl DataSource for OnPressureLevels {
         let targets: Vec<f64> = selection.levels.clone().unwrap_or_else(|| info.levels.clone().unwrap_or_default());
         let models = self.store.model_level_variables();
         let region = selection.region.as_ref();
-        let (data, grid, note) = match making {
+        let (data, grid) = match making {
             Making::Interpolated(m) => {
                 let model = &models[*m];
                 let (ps, grid) = self.surface_pressure(model, &times, region)?;
                 let Some((ps_min, ps_max)) = finite_range(&ps) else {
                     let shape = (times.len(), targets.len(), ps.dim().1, ps.dim().2);
-                    return self.finish(info, Array4::from_elem(shape, f32::NAN), grid, &targets, &times, model);
+                    return self.finish(info, Array4::from_elem(shape, f32::NAN), grid, &targets, &times);
                 };
                 let needed = levels_needed(&model.coefficients, ps_min, ps_max, &targets, self.below);
                 let coefficients = subset(&model.coefficients, &needed);
@@ -386,14 +386,14 @@ impl DataSource for OnPressureLevels {
                 };
                 let out = to_pressure_levels(data.view(), pressure.view(), &targets, self.below, quantity, &self.constants)
                     .map_err(|e| DataError::Invalid(format!("{}: `{name}`: {e}", self.store.label())))?;
-                (out, grid, model)
+                (out, grid)
             }
             Making::Hydrostatic { temperature, humidity, surface, factor } => {
                 let model = &models[*temperature];
                 let (ps, grid) = self.surface_pressure(model, &times, region)?;
                 let Some((ps_min, ps_max)) = finite_range(&ps) else {
                     let shape = (times.len(), targets.len(), ps.dim().1, ps.dim().2);
-                    return self.finish(info, Array4::from_elem(shape, f32::NAN), grid, &targets, &times, model);
+                    return self.finish(info, Array4::from_elem(shape, f32::NAN), grid, &targets, &times);
                 };
                 // The integral runs from the surface up: every level from
                 // the highest one needed down to the lowest.
@@ -418,15 +418,17 @@ impl DataSource for OnPressureLevels {
                 let quantity = Quantity::Geopotential { temperature: t.view() };
                 let out = to_pressure_levels(phi.view(), pressure.view(), &targets, self.below, quantity, &self.constants)
                     .map_err(|e| DataError::Invalid(format!("{}: {HYDROSTATIC_GEOPOTENTIAL}: {e}", self.store.label())))?;
-                (out, grid, model)
+                (out, grid)
             }
         };
-        self.finish(info, data, grid, &targets, &times, note)
+        self.finish(info, data, grid, &targets, &times)
     }
 }
 
 impl OnPressureLevels {
-    fn finish(&self, info: &VariableInfo, data: Array4<f32>, grid: Arc<Grid>, targets: &[f64], times: &[usize], _model: &ModelLevelVariable) -> Result<Field, DataError> {
+    /// The field read: the presented variable's names and metadata on the
+    /// pressures asked for.
+    fn finish(&self, info: &VariableInfo, data: Array4<f32>, grid: Arc<Grid>, targets: &[f64], times: &[usize]) -> Result<Field, DataError> {
         let times = info.times.as_ref().map(|t| t.select(times));
         let mut field = Field::new(info.name.clone(), info.units.clone(), data, times, Some(targets.to_vec()), grid).map_err(DataError::Invalid)?;
         field.long_name = info.long_name.clone().unwrap_or_else(|| info.name.clone());

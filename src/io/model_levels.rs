@@ -202,7 +202,7 @@ impl NetcdfModelLevels {
         let path = plain.path().to_path_buf();
         let found = {
             let path = path.clone();
-            super::netcdf_thread::call(move || -> Result<Vec<(super::model_level_source::ModelLevelVariable, Stored, Vec<String>)>, DataError> {
+            super::netcdf_thread::call(move || -> Result<Vec<(super::model_level_source::ModelLevelVariable, Stored)>, DataError> {
                 let file = netcdf::open(&path).map_err(|e| DataError::Open { path: path.display().to_string(), message: e.to_string() })?;
                 let coordinates: Vec<String> = file
                     .variables()
@@ -261,7 +261,7 @@ impl NetcdfModelLevels {
                             surface_pressure: levels.surface_pressure.clone(),
                             description: format!("model levels ({level_dim}, {count} levels)"),
                         };
-                        found.push((model, stored, dims[position + 1..].to_vec()));
+                        found.push((model, stored));
                     }
                 }
                 Ok(found)
@@ -272,7 +272,7 @@ impl NetcdfModelLevels {
         }
         let mut model = Vec::new();
         let mut stored = Vec::new();
-        for (mut m, s, _horizontal) in found {
+        for (mut m, s) in found {
             // The horizontal grid is the surface pressure's, as the plain
             // reader built it (lat-lon or projected).
             let ps = plain.variables().iter().find(|v| v.name == m.surface_pressure).ok_or_else(|| {
@@ -351,14 +351,14 @@ impl super::model_level_source::ModelLevelStore for NetcdfModelLevels {
             return Err(DataError::TimeOutOfRange { variable: name.into(), index: bad, last: time_count.saturating_sub(1) });
         }
         let times_wanted: Vec<usize> = if stored.has_time { times.to_vec() } else { vec![0] };
-        let (ny, nx) = (grid.latitudes.len(), grid.longitudes.len());
+        // The block of rows the region needs and every column (a region
+        // across the seam of a global grid wraps in columns).
+        let nx = grid.longitudes.len();
         let (row_start, row_end) = (rows.iter().copied().min().unwrap_or(0), rows.iter().copied().max().unwrap_or(0) + 1);
         let (col_start, col_end) = (0usize, nx);
-        let _ = ny;
         let levels_wanted = levels.to_vec();
         let name_owned = name.to_string();
-        // Raw slabs on the netCDF thread: one read per time and level, the
-        // block of rows the region needs and every column.
+        // Raw slabs on the netCDF thread: one read per time and level.
         let slabs: Vec<ndarray::ArrayD<f32>> = {
             let path = path.clone();
             super::netcdf_thread::call(move || -> Result<Vec<ndarray::ArrayD<f32>>, DataError> {
