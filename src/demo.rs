@@ -27,6 +27,8 @@
 //! lowland, so the surface stays at sea level. No real place or event is
 //! depicted; files in other layouts are read alike (see the reader's tests).
 
+pub mod regional;
+
 use std::path::{Path, PathBuf};
 
 use ndarray::{s, Array2, Array3, Array4, Axis};

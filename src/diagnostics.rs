@@ -306,7 +306,7 @@ impl Case {
         }
         Err(DataError::MissingRole {
             role: "geopotential or geopotential_height".into(),
-            sources: self.dataset.labels().join(", "),
+            sources: self.dataset.labels_with_note("geopotential"),
             found: self.dataset.roles().iter().map(|(r, v)| format!("{} ({v})", r.name())).collect(),
         }
         .into())

@@ -227,6 +227,28 @@ struct ProgramArgs {
     /// The data files (NetCDF), combined into one dataset. A first argument
     /// ending in .baroc is taken as the script.
     files: Vec<PathBuf>,
+    /// Model-level data: what pressures below the lowest model level (below
+    /// ground) give: `missing` (NaN, the default) or `standard-lapse-rate`
+    /// (extrapolated at 6.5 K/km, recorded in the results' metadata).
+    #[arg(long = "below-ground", value_enum, default_value = "missing")]
+    below_ground: BelowGround,
+}
+
+#[derive(Clone, Copy, ValueEnum)]
+enum BelowGround {
+    Missing,
+    StandardLapseRate,
+}
+
+impl BelowGround {
+    /// Sets the choice for every dataset this run opens.
+    fn apply(self) {
+        use baroc::physics::model_levels::BelowLowestLevel;
+        baroc::io::model_level_source::set_below_lowest_level(match self {
+            BelowGround::Missing => BelowLowestLevel::Missing,
+            BelowGround::StandardLapseRate => BelowLowestLevel::StandardLapseRate,
+        });
+    }
 }
 
 /// Writes to stdout; a closed pipe (`baroc ... | head`) ends quietly.
@@ -244,9 +266,15 @@ fn main() -> ExitCode {
     let result = match cli.command {
         Command::Demo { output, time_step } => demo(&output, time_step),
         Command::Inspect { files } => Dataset::open(&files).map(|d| out(&format!("{}\n", baroc::io::describe(&d)))).map_err(|e| format!("error: {e}")),
-        Command::Run { program, output, report, each_time, shard, memory_limit } => run(program, output, report, each_time, shard, memory_limit),
+        Command::Run { program, output, report, each_time, shard, memory_limit } => {
+            program.below_ground.apply();
+            run(program, output, report, each_time, shard, memory_limit)
+        }
         Command::Merge { output, shards, accept_gaps_and_overlaps } => merge(output, shards, accept_gaps_and_overlaps),
-        Command::Table { program, points, regions, format } => table(program, points, regions, format),
+        Command::Table { program, points, regions, format } => {
+            program.below_ground.apply();
+            table(program, points, regions, format)
+        }
         Command::Kernel { connection_file, action } => kernel(connection_file, action),
         Command::Audit { files, format, strict, max_hydrostatic_rms, max_thermal_wind_rms, max_geostrophic_rms, integration, report } => {
             let thresholds = baroc::audit::Thresholds { hydrostatic_rms_metres: max_hydrostatic_rms, thermal_wind_rms: max_thermal_wind_rms, geostrophic_rms: max_geostrophic_rms };
@@ -469,6 +497,11 @@ fn demo_summary_and_report(output: &Path, path: &Path, time_step: Option<usize>)
         Ok(report) => out(&format!("\nwrote the case-study report to {}\n", report.display())),
         Err(e) => return Err(format!("error: the report could not be written: {e}")),
     }
+    let regional = baroc::demo::regional::write(output).map_err(|e| format!("error: {e}"))?;
+    out(&format!(
+        "\nwrote the regional case (GRIB2, Lambert conformal grid, hybrid model levels, grid-relative winds; the invented Saltmere Coast) to {}\n",
+        regional.display()
+    ));
     out(&format!("\n{CAUTION}\n"));
     Ok(())
 }

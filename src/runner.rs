@@ -217,6 +217,20 @@ pub fn write_results(path: &Path, outcome: &RunOutcome, request: &RunRequest) ->
     write_results_with(path, outcome, request, Vec::new())
 }
 
+/// How model-level data were brought to pressure levels (and what below
+/// ground gave), when the data had any (`io::model_level_source`).
+fn model_level_provenance(dataset: Option<&Dataset>) -> Vec<(String, String)> {
+    let mut out: Vec<(String, String)> = Vec::new();
+    for (_, attributes) in dataset.map(|d| d.global_attributes()).unwrap_or_default() {
+        for (key, value) in attributes {
+            if key == crate::io::model_level_source::PROVENANCE_ATTRIBUTE && !out.iter().any(|(_, v)| *v == value) {
+                out.push((key, value));
+            }
+        }
+    }
+    out
+}
+
 /// `write_results` with further global attributes (a shard's record).
 pub fn write_results_with(path: &Path, outcome: &RunOutcome, request: &RunRequest, attributes: Vec<(String, String)>) -> Result<Vec<String>, RunError> {
     let mut fields: Vec<Field> = Vec::new();
@@ -251,7 +265,11 @@ pub fn write_results_with(path: &Path, outcome: &RunOutcome, request: &RunReques
             overrides.join(" "),
             request.data_files.iter().map(|p| p.display().to_string()).collect::<Vec<_>>().join(" ")
         ),
-        global_attributes: [("baroc_script".to_string(), request.source.clone()), (crate::shard::ATTRIBUTE_PARAMETERS.to_string(), overrides.join(" "))].into_iter().chain(attributes).collect(),
+        global_attributes: [("baroc_script".to_string(), request.source.clone()), (crate::shard::ATTRIBUTE_PARAMETERS.to_string(), overrides.join(" "))]
+            .into_iter()
+            .chain(attributes)
+            .chain(model_level_provenance(outcome.dataset.as_deref()))
+            .collect(),
         ..WriteOptions::default()
     };
     write_fields(path, &refs, &options).map_err(|e| RunError(format!("error: {e}")))?;

@@ -31,6 +31,7 @@ fn blocks(text: &str) -> Vec<String> {
 fn session() -> Session {
     let dir = std::env::temp_dir().join(format!("baroc-readme-{}", std::process::id()));
     baroc::demo::write(&dir.join("baroc-demo")).unwrap();
+    baroc::demo::regional::write(&dir.join("baroc-demo")).unwrap();
     let mut s = Session::new();
     s.evaluator_mut().base_directory = dir;
     s

@@ -8,7 +8,9 @@
 
 use std::path::Path;
 
+use super::model_level_source::{ModelLevelStore, OnPressureLevels};
 use super::netcdf_source::NetcdfSource;
+use crate::physics::model_levels::BelowLowestLevel;
 use super::{DataError, DataSource, Selection, VariableInfo};
 use crate::grid::{Field, TimeAxis};
 
@@ -127,6 +129,14 @@ impl Dataset {
     /// variable, time and level), GRIB edition 1 refused by name, anything
     /// else read as NetCDF.
     pub fn open<P: AsRef<Path>>(paths: &[P]) -> Result<Self, DataError> {
+        Self::open_with(paths, super::model_level_source::below_lowest_level())
+    }
+
+    /// As `open` (which takes the front end's choice, by default missing),
+    /// choosing what model-level data give below their lowest
+    /// level (`io::model_level_source`): missing, or extrapolated with the
+    /// standard lapse rate (recorded in the metadata).
+    pub fn open_with<P: AsRef<Path>>(paths: &[P], below: BelowLowestLevel) -> Result<Self, DataError> {
         let mut sources: Vec<Box<dyn DataSource>> = Vec::new();
         let mut grib_paths = Vec::new();
         for p in paths {
@@ -138,11 +148,22 @@ impl Dataset {
                         message: "it is GRIB edition 1, which Baroc does not read (it reads GRIB edition 2 and CF NetCDF)".into(),
                     })
                 }
-                super::grib2::FileKind::Other => sources.push(Box::new(NetcdfSource::open(p)?)),
+                super::grib2::FileKind::Other => {
+                    let source = NetcdfSource::open(p)?;
+                    match super::model_levels::NetcdfModelLevels::open(source)? {
+                        Ok(store) => sources.push(Box::new(OnPressureLevels::new(Box::new(store), below)?)),
+                        Err(source) => sources.push(Box::new(source)),
+                    }
+                }
             }
         }
         if !grib_paths.is_empty() {
-            sources.push(Box::new(super::grib2_source::GribSource::open(&grib_paths)?));
+            let source = super::grib2_source::GribSource::open(&grib_paths)?;
+            if source.model_level_variables().is_empty() {
+                sources.push(Box::new(source));
+            } else {
+                sources.push(Box::new(OnPressureLevels::new(Box::new(source), below)?));
+            }
         }
         Self::from_sources(sources)
     }
@@ -225,6 +246,16 @@ impl Dataset {
         Ok(Self { sources, entries })
     }
 
+    /// The sources' labels, followed by what a source says of why `role`
+    /// is absent (for the error of a role not found).
+    pub fn labels_with_note(&self, role: &str) -> String {
+        let mut text = self.labels().join(", ");
+        for note in self.sources.iter().filter_map(|s| s.missing_note(role)) {
+            text.push_str(&format!(" ({note})"));
+        }
+        text
+    }
+
     pub fn labels(&self) -> Vec<String> {
         self.sources.iter().map(|s| s.label()).collect()
     }
@@ -274,7 +305,7 @@ impl Dataset {
         if let Some(role) = Role::from_name(name) {
             return self.find_role(role).ok_or_else(|| DataError::MissingRole {
                 role: name.into(),
-                sources: self.labels().join(", "),
+                sources: self.labels_with_note(name),
                 found: self.roles().iter().map(|(r, v)| format!("{} ({v})", r.name())).collect(),
             });
         }

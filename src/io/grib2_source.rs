@@ -19,9 +19,11 @@
 //! latitude, the rotated pole the antipode of the template's southern
 //! pole), never read as if it were latitude-longitude; a non-zero angle of
 //! rotation is refused. Hybrid levels (type 105) are indexed with their
-//! level numbers and vertical coordinate values, which the variable's
-//! attributes and `GribSource::hybrid_levels` carry; reading them as
-//! pressure levels is refused.
+//! level numbers and vertical coordinate values (kept in the variable's
+//! attributes and `GribSource::hybrid_levels`); the source is a
+//! `ModelLevelStore`, so the dataset presents them on pressure levels
+//! (`io::model_level_source`), with the surface pressure `sp` (pressure on
+//! the ground).
 
 use std::fs::File;
 use std::os::unix::fs::FileExt;
@@ -32,7 +34,10 @@ use ndarray::{Array4, Axis};
 use rayon::prelude::*;
 
 use super::grib2::{self, FieldIndex, GridDefinition, LatLonGrid, Span};
+use super::model_level_source::{ModelLevelStore, ModelLevelVariable};
 use super::{DataError, DataSource, Selection, VariableInfo};
+use crate::physics::model_levels::HybridCoefficients;
+use crate::physics::sampling::Region;
 use crate::grid::{Field, Grid, TimeAxis};
 
 /// A message and the file it lives in.
@@ -81,6 +86,7 @@ pub struct GribSource {
     files: Vec<File>,
     variables: Vec<VariableInfo>,
     tables: Vec<Table>,
+    model_levels: Vec<ModelLevelVariable>,
     layout: Layout,
     grid: Arc<Grid>,
 }
@@ -477,6 +483,10 @@ impl GribSource {
                 }),
                 grib2::SURFACE_ISOBARIC | grib2::SURFACE_HYBRID => parameter.and_then(|p| p.standard_name),
                 grib2::SURFACE_GROUND if name == "sp" => Some("surface_air_pressure"),
+                // The surface geopotential (or orography) that the
+                // hydrostatic integral on model levels starts from.
+                grib2::SURFACE_GROUND if name == "z_surface" => Some("surface_geopotential"),
+                grib2::SURFACE_GROUND if name == "gh_surface" => Some("surface_altitude"),
                 grib2::SURFACE_MEAN_SEA_LEVEL if name == "prmsl" => Some("air_pressure_at_mean_sea_level"),
                 _ => None,
             };
@@ -506,7 +516,21 @@ impl GribSource {
             });
             tables.push(Table { levels, messages, hybrid });
         }
-        Ok(Self { paths, files, variables, tables, layout, grid })
+        let mut model_levels = Vec::new();
+        for (info, table) in variables.iter().zip(&tables) {
+            let Some(hybrid) = &table.hybrid else { continue };
+            let coefficients = full_level_coefficients(hybrid).map_err(|e| {
+                DataError::Invalid(format!("{}: `{}` ({}): {e}", where_is(&paths, &table.messages[0]), info.name, info.long_name.clone().unwrap_or_default()))
+            })?;
+            let numbers = &hybrid.levels;
+            let description = match (numbers.first(), numbers.last()) {
+                (Some(a), Some(b)) if numbers.len() > 1 => format!("model levels {a} to {b} (GRIB2 fixed surface 105, {} levels)", numbers.len()),
+                (Some(a), _) => format!("model level {a} (GRIB2 fixed surface 105)"),
+                _ => "model levels".into(),
+            };
+            model_levels.push(ModelLevelVariable { info: info.clone(), coefficients, surface_pressure: "sp".into(), description });
+        }
+        Ok(Self { paths, files, variables, tables, model_levels, layout, grid })
     }
 
     /// The hybrid model levels of a variable on them (level numbers and
@@ -613,11 +637,52 @@ pub fn no_pressure_levels(info: &VariableInfo) -> DataError {
     let attribute = |key: &str| info.attributes.iter().find(|(k, _)| k == key).map(|(_, v)| v.split_whitespace().count());
     match (attribute("GRIB2_hybrid_level_numbers"), attribute("GRIB2_hybrid_coefficients")) {
         (Some(levels), Some(coefficients)) => DataError::Invalid(format!(
-            "`{}` is on {levels} hybrid model levels (GRIB2 fixed surface type 105), not pressure levels; Baroc's operators need pressure levels and do not yet interpolate model levels to pressure (its level numbers and {coefficients} hybrid coefficients are kept in the attributes GRIB2_hybrid_level_numbers and GRIB2_hybrid_coefficients)",
+            "`{}` is on {levels} hybrid model levels (GRIB2 fixed surface type 105), not pressure levels; a dataset (`Dataset::open`) presents it on pressure levels, interpolated in ln p (its level numbers and {coefficients} hybrid coefficients are kept in the attributes GRIB2_hybrid_level_numbers and GRIB2_hybrid_coefficients)",
             info.name
         )),
         _ => DataError::NoLevels { variable: info.name.clone() },
     }
+}
+
+/// The coefficients of each full model level from a hybrid variable's
+/// vertical coordinate values: `pv` holds the A (Pa) of the N+1 half levels
+/// then their B; full level n lies between half levels n-1 and n, and its
+/// pressure is their mean, p_n = (A_{n-1} + A_n)/2 + (B_{n-1} + B_n)/2 ps
+/// (ECMWF IFS documentation, Part III, section 2.2: pressure on half
+/// levels p = A + B ps; the full level as the mean of its half levels is
+/// common practice in post-processing). Fails when the values are not A
+/// and B pairs or a level number lies outside them.
+pub fn full_level_coefficients(hybrid: &HybridLevels) -> Result<HybridCoefficients, String> {
+    let pv = &hybrid.pv;
+    if pv.is_empty() {
+        return Err("it is on hybrid levels (fixed surface 105) but its messages carry no vertical coordinate values (PV), so the pressure of its levels is unknown".into());
+    }
+    if !pv.len().is_multiple_of(2) || pv.len() < 4 {
+        return Err(format!(
+            "its {} hybrid coefficients (PV) are not the A and B of two or more half levels (an even count is needed)",
+            pv.len()
+        ));
+    }
+    let half = pv.len() / 2;
+    let (a, b) = pv.split_at(half);
+    let mut ap = Vec::new();
+    let mut bs = Vec::new();
+    for &number in &hybrid.levels {
+        if !(number.fract() == 0.0 && number >= 1.0 && (number as usize) < half) {
+            return Err(format!(
+                "its {} hybrid coefficients describe {} half levels, so model levels 1 to {}, but the data have model level {number} ({} levels in all: {})",
+                pv.len(),
+                half,
+                half - 1,
+                hybrid.levels.len(),
+                join_numbers(&hybrid.levels)
+            ));
+        }
+        let n = number as usize;
+        ap.push(0.5 * (a[n - 1] + a[n]));
+        bs.push(0.5 * (b[n - 1] + b[n]));
+    }
+    HybridCoefficients::from_ap(ap, bs)
 }
 
 fn same_level(a: Option<f64>, b: Option<f64>) -> bool {
@@ -668,7 +733,34 @@ impl DataSource for GribSource {
         // Every GRIB2 variable has a time axis (valid times) and, unless
         // isobaric, one level, so the shared rule applies as it is.
         let (time_indices, level_indices) = super::selected_indices(name, info, selection)?;
+        self.read_table(k, &time_indices, &level_indices, selection.region.as_ref())
+    }
+}
 
+impl ModelLevelStore for GribSource {
+    fn model_level_variables(&self) -> &[ModelLevelVariable] {
+        &self.model_levels
+    }
+
+    fn read_model_levels(&self, name: &str, times: &[usize], levels: &[usize], region: Option<&Region>) -> Result<Field, DataError> {
+        let k = self.variables.iter().position(|v| v.name == name).filter(|&k| self.tables[k].hybrid.is_some());
+        let k = k.ok_or_else(|| DataError::Invalid(format!("{}: `{name}` is not on hybrid model levels", self.label())))?;
+        let count = self.tables[k].levels.len();
+        if let Some(&bad) = levels.iter().find(|&&l| l >= count) {
+            return Err(DataError::Invalid(format!("{}: `{name}` has {count} model levels; level index {bad} asked for", self.label())));
+        }
+        self.read_table(k, times, levels, region)
+    }
+}
+
+impl GribSource {
+    /// Decodes the messages of variable `k` at the given time and level
+    /// indices, [time, level, y, x], over the region.
+    fn read_table(&self, k: usize, time_indices: &[usize], level_indices: &[usize], region: Option<&Region>) -> Result<Field, DataError> {
+        let info = &self.variables[k];
+        let table = &self.tables[k];
+        let name = info.name.as_str();
+        let selection = Selection { times: None, levels: None, region: region.copied() };
         let (nj, ni) = (self.layout.nj, self.layout.ni);
         let wanted: Vec<&Located> =
             time_indices.iter().flat_map(|&t| level_indices.iter().map(move |&l| &table.messages[t * table.levels.len() + l])).collect();
@@ -698,11 +790,36 @@ impl DataSource for GribSource {
             data = data.select(Axis(2), &lat).select(Axis(3), &lon);
             grid = Arc::new(Grid::new(lat.iter().map(|&j| grid.latitudes[j]).collect(), lons));
         }
-        let times = info.times.as_ref().map(|t| t.select(&time_indices));
-        let levels = info.levels.as_ref().map(|l| level_indices.iter().map(|&i| l[i]).collect());
+        let times = info.times.as_ref().map(|t| t.select(time_indices));
+        // Model levels keep their level numbers as the level coordinate.
+        let levels = match &info.levels {
+            Some(l) => Some(level_indices.iter().map(|&i| l[i]).collect()),
+            None if table.hybrid.is_some() => Some(level_indices.iter().map(|&i| table.levels[i].unwrap_or(f64::NAN)).collect()),
+            None => None,
+        };
         let mut field = Field::new(name, info.units.clone(), data, times, levels, grid).map_err(DataError::Invalid)?;
         field.long_name = info.long_name.clone().unwrap_or_else(|| name.to_string());
         field.standard_name = info.standard_name.clone();
         Ok(field)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn full_level_coefficients_are_the_mean_of_the_half_levels() {
+        // By hand: half levels A = 0, 2000, 5000 Pa and B = 0, 0.4, 1;
+        // level 1 -> A 1000, B 0.2; level 2 -> A 3500, B 0.7; over ps =
+        // 1000 hPa: 21000 Pa and 73500 Pa.
+        let hybrid = HybridLevels { levels: vec![1.0, 2.0], pv: vec![0.0, 2000.0, 5000.0, 0.0, 0.4, 1.0] };
+        let c = full_level_coefficients(&hybrid).unwrap();
+        assert_eq!(c.pressure(0, 100_000.0), 21_000.0);
+        assert_eq!(c.pressure(1, 100_000.0), 73_500.0);
+        let bad = HybridLevels { levels: vec![1.0, 2.0, 3.0], pv: hybrid.pv.clone() };
+        assert!(full_level_coefficients(&bad).unwrap_err().contains("model levels 1 to 2, but the data have model level 3"));
+        let odd = HybridLevels { levels: vec![1.0], pv: vec![0.0, 1.0, 2.0] };
+        assert!(full_level_coefficients(&odd).unwrap_err().contains("even count"));
     }
 }

@@ -17,6 +17,7 @@ pub mod grib2;
 pub mod grib2_source;
 pub mod grib2_writer;
 pub mod netcdf_source;
+pub mod model_level_source;
 pub mod model_levels;
 pub mod netcdf_thread;
 pub mod projected;
@@ -83,6 +84,11 @@ pub trait DataSource: Send + Sync {
     fn read(&self, variable: &str, selection: &Selection) -> Result<Field, DataError>;
     /// Global attributes, for provenance.
     fn global_attributes(&self) -> Vec<(String, String)>;
+    /// Why a role is absent when the source can tell (for example what
+    /// computing it would need), added to the error of a role not found.
+    fn missing_note(&self, _role: &str) -> Option<String> {
+        None
+    }
 }
 
 /// Everything that can go wrong getting data; every message says what would

@@ -6,18 +6,30 @@
 //! `physics::model_levels` (ln-p interpolation, below ground missing unless
 //! the standard-lapse-rate option is chosen, recorded in the metadata).
 //! Every error names the file.
+//!
+//! `NetcdfModelLevels` is the `ModelLevelStore` of one NetCDF file: the
+//! file's ordinary variables through `NetcdfSource`, and its variables on
+//! a hybrid sigma-pressure coordinate ([time,] level, y, x, the horizontal
+//! dimensions those of the surface pressure named by formula_terms), read
+//! level by level as stored, which `model_level_source::OnPressureLevels`
+//! presents on pressure levels.
 
 use std::path::Path;
 use std::sync::Arc;
 
 use ndarray::{Array3, Array4, Ix3, Ix4};
 
-use super::{cf, DataError};
+use super::{cf, DataError, DataSource};
 use crate::constants::Constants;
 use crate::grid::{Field, Grid};
 use crate::physics::model_levels::{to_pressure_levels, BelowLowestLevel, HybridCoefficients, Quantity};
 
 pub const STANDARD_NAME: &str = "atmosphere_hybrid_sigma_pressure_coordinate";
+
+/// True for a coordinate variable of hybrid sigma-pressure model levels.
+pub fn is_hybrid_coordinate(variable: &netcdf::Variable) -> bool {
+    cf::attribute_text(variable, "standard_name").as_deref() == Some(STANDARD_NAME)
+}
 
 /// The hybrid description of one vertical coordinate.
 #[derive(Debug, Clone, PartialEq)]
@@ -156,4 +168,242 @@ pub fn read_on_pressure_levels(
         field.attributes.push(("vertical_interpolation".into(), format!("from hybrid sigma-pressure model levels ({}) linearly in ln p; {}", level_dim, below.note())));
         Ok(field)
     })
+}
+
+/// One model-level variable of a NetCDF file: where its dimensions are.
+#[derive(Debug, Clone)]
+struct Stored {
+    has_time: bool,
+    scale_factor: f64,
+    add_offset: f64,
+    fill: Option<f32>,
+    missing: Option<f32>,
+}
+
+/// A NetCDF file with variables on hybrid sigma-pressure levels.
+pub struct NetcdfModelLevels {
+    plain: super::netcdf_source::NetcdfSource,
+    model: Vec<super::model_level_source::ModelLevelVariable>,
+    stored: Vec<Stored>,
+}
+
+impl std::fmt::Debug for NetcdfModelLevels {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.debug_struct("NetcdfModelLevels").field("path", &self.plain.path()).field("model", &self.model.len()).finish()
+    }
+}
+
+impl NetcdfModelLevels {
+    /// The store of the file behind `plain` when it has a hybrid
+    /// sigma-pressure coordinate (`Ok(Ok(store))`), else the plain source
+    /// back (`Ok(Err(plain))`). Fails, naming the file, when the
+    /// coordinate's formula terms or coefficients are wrong.
+    pub fn open(plain: super::netcdf_source::NetcdfSource) -> Result<Result<Self, super::netcdf_source::NetcdfSource>, DataError> {
+        let path = plain.path().to_path_buf();
+        let found = {
+            let path = path.clone();
+            super::netcdf_thread::call(move || -> Result<Vec<(super::model_level_source::ModelLevelVariable, Stored)>, DataError> {
+                let file = netcdf::open(&path).map_err(|e| DataError::Open { path: path.display().to_string(), message: e.to_string() })?;
+                let coordinates: Vec<String> = file
+                    .variables()
+                    .filter(|v| cf::attribute_text(v, "standard_name").as_deref() == Some(STANDARD_NAME) && v.dimensions().len() == 1)
+                    .map(|v| v.dimensions()[0].name())
+                    .collect();
+                let mut found = Vec::new();
+                for level_dim in coordinates {
+                    let levels = HybridLevels::read(&file, &path, &level_dim)?;
+                    for variable in file.variables() {
+                        let dims: Vec<String> = variable.dimensions().iter().map(|d| d.name()).collect();
+                        let Some(position) = dims.iter().position(|d| *d == level_dim) else { continue };
+                        if dims.len() < 3 || variable.name() == level_dim {
+                            continue;
+                        }
+                        let time_dim = (position == 1).then(|| dims[0].clone());
+                        if position > 1 || dims.len() != position + 3 {
+                            return Err(error(&path, &variable.name(), format!(
+                                "its dimensions ({}) are not [time,] {level_dim}, y, x, the order Baroc reads on hybrid levels",
+                                dims.join(", ")
+                            )));
+                        }
+                        let times = match &time_dim {
+                            Some(t) => {
+                                let coordinate = file.variable(t).ok_or_else(|| error(&path, &variable.name(), format!("its time dimension `{t}` has no coordinate variable")))?;
+                                let values = coordinate.get_values::<f64, _>(..).map_err(|e| error(&path, t, e.to_string()))?;
+                                Some(crate::grid::TimeAxis {
+                                    values,
+                                    units: cf::attribute_text(&coordinate, "units").unwrap_or_default(),
+                                    calendar: cf::attribute_text(&coordinate, "calendar").unwrap_or_else(|| "standard".into()),
+                                })
+                            }
+                            None => None,
+                        };
+                        let number = |key: &str| cf::attribute_number(&variable, key).and_then(|v| v.first().copied());
+                        let stored = Stored {
+                            has_time: time_dim.is_some(),
+                            scale_factor: number("scale_factor").unwrap_or(1.0),
+                            add_offset: number("add_offset").unwrap_or(0.0),
+                            fill: number("_FillValue").map(|v| v as f32),
+                            missing: number("missing_value").map(|v| v as f32),
+                        };
+                        let info = VariableInfoParts {
+                            name: variable.name(),
+                            long_name: cf::attribute_text(&variable, "long_name"),
+                            units: cf::attribute_text(&variable, "units").unwrap_or_default(),
+                            standard_name: cf::attribute_text(&variable, "standard_name"),
+                            times,
+                            attributes: cf::all_attributes(&variable),
+                            packed: number("scale_factor").is_some() || number("add_offset").is_some(),
+                        };
+                        let count = levels.coefficients.len();
+                        let model = super::model_level_source::ModelLevelVariable {
+                            info: info.with_grid(Arc::new(Grid::new(Vec::new(), Vec::new()))),
+                            coefficients: levels.coefficients.clone(),
+                            surface_pressure: levels.surface_pressure.clone(),
+                            description: format!("model levels ({level_dim}, {count} levels)"),
+                        };
+                        found.push((model, stored));
+                    }
+                }
+                Ok(found)
+            })?
+        };
+        if found.is_empty() {
+            return Ok(Err(plain));
+        }
+        let mut model = Vec::new();
+        let mut stored = Vec::new();
+        for (mut m, s) in found {
+            // The horizontal grid is the surface pressure's, as the plain
+            // reader built it (lat-lon or projected).
+            let ps = plain.variables().iter().find(|v| v.name == m.surface_pressure).ok_or_else(|| {
+                error(&path, &m.info.name, format!("its hybrid coordinate names the surface pressure `{}`, which is not a variable on the file's grid", m.surface_pressure))
+            })?;
+            m.info.grid = ps.grid.clone();
+            model.push(m);
+            stored.push(s);
+        }
+        Ok(Ok(Self { plain, model, stored }))
+    }
+}
+
+/// A `VariableInfo` but its grid.
+struct VariableInfoParts {
+    name: String,
+    long_name: Option<String>,
+    units: String,
+    standard_name: Option<String>,
+    times: Option<crate::grid::TimeAxis>,
+    attributes: Vec<(String, String)>,
+    packed: bool,
+}
+
+impl VariableInfoParts {
+    fn with_grid(self, grid: Arc<Grid>) -> super::VariableInfo {
+        super::VariableInfo {
+            name: self.name,
+            long_name: self.long_name,
+            units: self.units,
+            standard_name: self.standard_name,
+            levels: None,
+            times: self.times,
+            grid,
+            attributes: self.attributes,
+            packed: self.packed,
+        }
+    }
+}
+
+impl super::DataSource for NetcdfModelLevels {
+    fn label(&self) -> String {
+        self.plain.label()
+    }
+
+    fn variables(&self) -> &[super::VariableInfo] {
+        self.plain.variables()
+    }
+
+    fn read(&self, variable: &str, selection: &super::Selection) -> Result<Field, DataError> {
+        self.plain.read(variable, selection)
+    }
+
+    fn global_attributes(&self) -> Vec<(String, String)> {
+        self.plain.global_attributes()
+    }
+}
+
+impl super::model_level_source::ModelLevelStore for NetcdfModelLevels {
+    fn model_level_variables(&self) -> &[super::model_level_source::ModelLevelVariable] {
+        &self.model
+    }
+
+    fn read_model_levels(&self, name: &str, times: &[usize], levels: &[usize], region: Option<&crate::physics::sampling::Region>) -> Result<Field, DataError> {
+        let path = self.plain.path().to_path_buf();
+        let k = self.model.iter().position(|m| m.info.name == name).ok_or_else(|| error(&path, name, "not on hybrid model levels".into()))?;
+        let (model, stored) = (&self.model[k], self.stored[k].clone());
+        let grid = model.info.grid.clone();
+        let (rows, cols, out_grid) = super::model_level_source::region_indices(&grid, region, name)?;
+        let level_count = model.coefficients.len();
+        if let Some(&bad) = levels.iter().find(|&&l| l >= level_count) {
+            return Err(error(&path, name, format!("has {level_count} model levels; level index {bad} asked for")));
+        }
+        let time_count = model.info.times.as_ref().map_or(1, |t| t.values.len());
+        if let Some(&bad) = times.iter().find(|&&t| t >= time_count) {
+            return Err(DataError::TimeOutOfRange { variable: name.into(), index: bad, last: time_count.saturating_sub(1) });
+        }
+        let times_wanted: Vec<usize> = if stored.has_time { times.to_vec() } else { vec![0] };
+        // The block of rows the region needs and every column (a region
+        // across the seam of a global grid wraps in columns).
+        let nx = grid.longitudes.len();
+        let (row_start, row_end) = (rows.iter().copied().min().unwrap_or(0), rows.iter().copied().max().unwrap_or(0) + 1);
+        let (col_start, col_end) = (0usize, nx);
+        let levels_wanted = levels.to_vec();
+        let name_owned = name.to_string();
+        // Raw slabs on the netCDF thread: one read per time and level.
+        let slabs: Vec<ndarray::ArrayD<f32>> = {
+            let path = path.clone();
+            super::netcdf_thread::call(move || -> Result<Vec<ndarray::ArrayD<f32>>, DataError> {
+                let file = netcdf::open(&path).map_err(|e| DataError::Open { path: path.display().to_string(), message: e.to_string() })?;
+                let variable = file.variable(&name_owned).ok_or_else(|| error(&path, &name_owned, "vanished from the file".into()))?;
+                let mut out = Vec::new();
+                for &t in &times_wanted {
+                    for &l in &levels_wanted {
+                        let mut extents: Vec<netcdf::Extent> = Vec::new();
+                        if stored.has_time {
+                            extents.push((t..t + 1).into());
+                        }
+                        extents.push((l..l + 1).into());
+                        extents.push((row_start..row_end).into());
+                        extents.push((col_start..col_end).into());
+                        out.push(variable.get::<f32, _>(extents).map_err(|e| error(&path, &name_owned, e.to_string()))?);
+                    }
+                }
+                Ok(out)
+            })?
+        };
+        let shape = (times.len(), levels.len(), rows.len(), cols.len());
+        let mut data = Array4::<f32>::from_elem(shape, f32::NAN);
+        let nl = levels.len();
+        for t in 0..times.len() {
+            let source_t = if stored.has_time { t } else { 0 };
+            for l in 0..nl {
+                let slab = &slabs[source_t * nl + l];
+                let slab = slab.view().into_shape_with_order((row_end - row_start, col_end - col_start)).map_err(|e| error(&path, name, e.to_string()))?;
+                for (jo, &j) in rows.iter().enumerate() {
+                    for (io, &i) in cols.iter().enumerate() {
+                        let raw = slab[[j - row_start, i - col_start]];
+                        data[[t, l, jo, io]] = if Some(raw) == stored.fill || Some(raw) == stored.missing || raw.is_nan() {
+                            f32::NAN
+                        } else {
+                            (raw as f64 * stored.scale_factor + stored.add_offset) as f32
+                        };
+                    }
+                }
+            }
+        }
+        let out_times = model.info.times.as_ref().map(|t| t.select(times));
+        let level_numbers = levels.iter().map(|&l| l as f64).collect();
+        let mut field = Field::new(name, model.info.units.clone(), data, out_times, Some(level_numbers), out_grid).map_err(DataError::Invalid)?;
+        field.standard_name = model.info.standard_name.clone();
+        Ok(field)
+    }
 }

@@ -80,6 +80,10 @@ impl NetcdfSource {
             if dims.len() != 1 || dims[0].name() != variable.name() {
                 continue;
             }
+            // Hybrid model levels are read by io::model_levels, not as pressure.
+            if super::model_levels::is_hybrid_coordinate(&variable) {
+                continue;
+            }
             // Vertical coordinates are recognised first (CF 4.3, appendix D),
             // so data on height, sigma or isentropic levels are refused in
             // those words rather than as a missing horizontal coordinate.

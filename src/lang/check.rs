@@ -80,6 +80,9 @@ pub struct DatasetInfo {
     pub latitude_range: Option<(f64, f64)>,
     /// Western and eastern edges of the grid, degrees east.
     pub longitude_range: Option<(f64, f64)>,
+    /// Role name to why the data lack it, when the reader can tell (for
+    /// example what computing geopotential on model levels would need).
+    pub missing_notes: Vec<(String, String)>,
 }
 
 impl DatasetInfo {

@@ -76,11 +76,9 @@ pub fn dataset_info(dataset: &crate::io::Dataset, name: &str) -> DatasetInfo {
             if v.times.is_some() {
                 dimensions.push(Axis::Time);
             }
-            // A variable on GRIB2 hybrid model levels has a level dimension
-            // whose pressures are unknown before reading: the checker lets
-            // it through and the reader says why no pressure can be chosen.
-            let on_model_levels = v.attributes.iter().any(|(key, _)| key == "GRIB2_hybrid_level_numbers");
-            if v.levels.is_some() || on_model_levels {
+            // Model-level variables arrive on pressure levels
+            // (io::model_level_source), so they have levels like any other.
+            if v.levels.is_some() {
                 dimensions.push(Axis::Level);
             }
             dimensions.push(Axis::Latitude);
@@ -101,7 +99,14 @@ pub fn dataset_info(dataset: &crate::io::Dataset, name: &str) -> DatasetInfo {
         }
         None => (None, None),
     };
-    DatasetInfo { name: name.to_string(), variables, roles, times, latitude_range, longitude_range }
+    let missing_notes = ["geopotential", "geopotential_height"]
+        .iter()
+        .filter_map(|role| {
+            let note = dataset.sources().iter().find_map(|s| s.missing_note(role))?;
+            Some((role.to_string(), note))
+        })
+        .collect();
+    DatasetInfo { name: name.to_string(), variables, roles, times, latitude_range, longitude_range, missing_notes }
 }
 
 /// Checks a program before it runs (names, kinds, units), against what the

@@ -204,3 +204,40 @@ def test_recipe_notebook_saves_reruns_and_reports(case_dir, monkeypatch, tmp_pat
     report = case_dir / "notebooks-demo" / "lower-baroclinicity-report.html"
     text = report.read_text()
     assert "not a warning service" in text and "data:image/png;base64" in text and "SHA-256" in text
+
+
+def _column(cell):
+    """The values of a one-column table over time (text/plain), None for
+    missing."""
+    text = cell["outputs"][0]["data"]["text/plain"]
+    values = []
+    for line in text.splitlines():
+        if re.match(r"^\d{4}-\d\d-\d\dT", line):
+            last = line.split()[-1]
+            values.append(None if last == "missing" else float(last))
+    return values
+
+
+def test_regional_model_levels_notebook(case_dir):
+    cells = [c for c in execute(case_dir, "06-regional-model-levels.ipynb") if c.cell_type == "code"]
+    assert "opened the regional case" in cells[0]["outputs"][0]["text"]
+    # 925-500 hPa thickness offshore: hypsometric equation (field guide),
+    # (Rd / g0) ln(925 / 500) Tmean = 18.0 m/K x Tmean; a late-winter
+    # layer mean of 245 to 275 K (common practice, no source) gives 4410 to
+    # 4960 m.
+    offshore = _column(cells[1])
+    assert len(offshore) == 3 and all(x is not None and 4410 < x < 4960 for x in offshore), offshore
+    # Over the Orrin Heights (ground near 850 hPa) the layer is below
+    # ground at every step: missing, not extrapolated.
+    assert _column(cells[2]) == [None, None, None]
+    # 700-400 hPa: 16.4 m/K x a layer mean of 230 to 265 K.
+    assert all(x is not None and 3770 < x < 4340 for x in _column(cells[3])), _column(cells[3])
+    # The case's wind is geostrophic by construction: the model wind (read
+    # grid-relative, turned, interpolated from model levels) differs from
+    # the geostrophic wind of the hydrostatic geopotential by little
+    # (under 2 m/s against winds of 20 to 40 m/s).
+    departures = _column(cells[4])
+    assert len(departures) == 3 and all(x is not None and x < 2.0 for x in departures), departures
+    assert _has_image(cells[5]) and _has_image(cells[6])
+    turning = _column(cells[7])
+    assert turning and all(x is not None and -180 <= x <= 180 for x in turning)

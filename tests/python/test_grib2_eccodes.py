@@ -322,7 +322,9 @@ def test_code_tables_levels_and_times_message_by_message(baroc, tmp_path):
         compare(values[t], lats, lons, r["values"], atol=max(1e-3, step))
 
 
-def test_hybrid_levels_are_indexed_and_refused_as_pressure_levels(baroc, tmp_path):
+def test_hybrid_levels_without_surface_pressure_say_what_is_missing(baroc, tmp_path):
+    # Model levels are read on pressure levels (tests/python/test_model_levels.py);
+    # without a surface pressure their pressure is unknown, and the error says so.
     path = tmp_path / "hybrid.grib2"
     pv = [0.0, 2000.0, 5000.0, 1.0, 0.8, 0.5]  # a of 3 half levels, then b
     handles = [
@@ -343,9 +345,9 @@ def test_hybrid_levels_are_indexed_and_refused_as_pressure_levels(baroc, tmp_pat
     assert [r["typeOfFirstFixedSurface"] for r in eccodes_fields(path)] == [105, 105]
     described = run(baroc, "inspect", path).stdout
     assert re.search(r"^  t_hybrid \[temperature\]: temperature on hybrid model levels", described, re.M), described
-    done = run(baroc, "run", "-e", "let x = temperature at 500 hPa", "-o", tmp_path / "x.nc", path, check=False)
+    done = run(baroc, "run", "-e", "let x = temperature at 850 hPa", "-o", tmp_path / "x.nc", path, check=False)
     assert done.returncode == 1 and "panicked" not in done.stderr
-    assert "`t_hybrid` is on 2 hybrid model levels" in done.stderr, done.stderr
+    assert "`t_hybrid` is on hybrid model levels, whose pressure needs the surface pressure `sp`" in done.stderr, done.stderr
 
 
 def test_own_writer_files_read_by_eccodes_with_the_same_values(baroc, tmp_path):

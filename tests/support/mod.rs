@@ -44,6 +44,7 @@ pub fn case_dataset() -> DatasetInfo {
         times: Some(TimeAxis { count: 5, first: "2026-10-14 00:00".to_string(), last: "2026-10-15 00:00".to_string() }),
         latitude_range: Some((30.0, 70.0)),
         longitude_range: Some((-60.0, 20.0)),
+        missing_notes: Vec::new(),
     }
 }
 
@@ -59,6 +60,7 @@ pub fn winds_dataset() -> DatasetInfo {
         times: None,
         latitude_range: Some((30.0, 70.0)),
         longitude_range: Some((-60.0, 20.0)),
+        missing_notes: Vec::new(),
     }
 }
 

@@ -224,8 +224,15 @@ impl<'e> Checker<'e> {
                 Some(CurrentDataset::Known(info)) => format!("the dataset {} has no {name}", info.name),
                 _ => format!("`{name}` needs an open dataset"),
             };
+            let note = match &self.scope.current {
+                Some(CurrentDataset::Known(info)) => info.missing_notes.iter().find(|(role, _)| role == name).map(|(_, note)| note.clone()),
+                _ => None,
+            };
             let diagnostic = self.error(message, span, "not in the data");
-            diagnostic.help = Some(exists);
+            diagnostic.help = Some(match note {
+                Some(note) => format!("{note}; {exists}"),
+                None => exists,
+            });
             return;
         }
         if KNOWN_UNIT_WORDS.contains(&name) {
