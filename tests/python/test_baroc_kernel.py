@@ -241,3 +241,5 @@ def test_regional_model_levels_notebook(case_dir):
     assert _has_image(cells[5]) and _has_image(cells[6])
     turning = _column(cells[7])
     assert turning and all(x is not None and -180 <= x <= 180 for x in turning)
+    # The map of the projected grid is drawn (in the grid's own projection).
+    assert _has_image(cells[8])
