@@ -221,3 +221,16 @@ fn a_latitude_longitude_box_selects_cells_of_a_grib2_lambert_grid() {
         }
     }
 }
+
+#[test]
+fn a_projected_grid_names_its_axes_y_and_x_when_described() {
+    // CF conventions 4.4/5.6: a projected grid's axes are projection_y_coordinate
+    // and projection_x_coordinate, so `inspect` must not call them latitude
+    // and longitude.
+    let path = scratch("described.grib2");
+    write(&path, 0x40, 0x00);
+    let dataset = Dataset::open(&[&path]).unwrap();
+    let described = dataset.variable("gh").or_else(|| dataset.variables().next()).unwrap().describe_dimensions();
+    assert!(described.ends_with(&format!("y {NY}, x {NX}")), "{described}");
+    assert!(!described.contains("latitude"), "{described}");
+}

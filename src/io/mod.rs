@@ -58,8 +58,12 @@ impl VariableInfo {
         if let Some(l) = &self.levels {
             parts.push(format!("pressure {}", l.len()));
         }
-        parts.push(format!("latitude {}", self.grid.latitudes.len()));
-        parts.push(format!("longitude {}", self.grid.longitudes.len()));
+        // A projected grid's axes are projection coordinates (CF
+        // projection_y_coordinate / projection_x_coordinate), not latitude
+        // and longitude: name them so.
+        let (rows, columns) = if self.grid.projection.is_some() { ("y", "x") } else { ("latitude", "longitude") };
+        parts.push(format!("{rows} {}", self.grid.latitudes.len()));
+        parts.push(format!("{columns} {}", self.grid.longitudes.len()));
         parts.join(", ")
     }
 }
