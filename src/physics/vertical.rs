@@ -414,12 +414,7 @@ pub fn thickness_from_temperature(
     dry_air_gas_constant: f64,
     gravity: f64,
 ) -> Result<Array3<f32>, VerticalError> {
-    let weights = layer_integral_weights(levels, bottom, top)?;
-    let factor = dry_air_gas_constant / gravity;
-    Ok(match specific_humidity {
-        None => apply_weights(temperature, &weights, factor),
-        Some(q) => apply_weights_with(temperature, Some(q), &weights, factor, virtual_temperature),
-    })
+    thickness_from_temperature_by(levels, temperature, specific_humidity, bottom, top, dry_air_gas_constant, gravity, IntegrationRule::Trapezoid)
 }
 
 /// As `thickness_from_temperature` (which keeps the trapezoid rule, for
