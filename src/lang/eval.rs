@@ -936,7 +936,7 @@ impl Evaluator {
             }
             selection.levels = Some(inside);
         }
-        d.dataset.read(&d.variable, &selection).map_err(|e| engine_error(e.into(), span))
+        d.dataset.read_with(&d.variable, &selection, Some(&self.constants)).map_err(|e| engine_error(e.into(), span))
     }
 
     // ----- selection --------------------------------------------------------
