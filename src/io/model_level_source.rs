@@ -41,23 +41,30 @@ use crate::physics::model_levels::{geopotential_on_levels, to_pressure_levels, B
 use crate::physics::sampling::Region;
 
 /// The choice `Dataset::open` makes for model-level data below their
-/// lowest level: 0 missing (the default), 1 the standard lapse rate. Set
-/// once by a front end (the CLI's `--below-ground`); `Dataset::open_with`
-/// chooses per dataset.
+/// lowest level: 0 none made (missing, the default), 1 missing chosen, 2
+/// the standard lapse rate. Set once by a front end (the CLI's
+/// `--below-ground`); `Dataset::open_with` chooses per dataset, and a
+/// program's `setting below_ground` must agree with a front end's choice.
 static BELOW_LOWEST_LEVEL: std::sync::atomic::AtomicU8 = std::sync::atomic::AtomicU8::new(0);
 
 pub fn set_below_lowest_level(below: BelowLowestLevel) {
     let code = match below {
-        BelowLowestLevel::Missing => 0,
-        BelowLowestLevel::StandardLapseRate => 1,
+        BelowLowestLevel::Missing => 1,
+        BelowLowestLevel::StandardLapseRate => 2,
     };
     BELOW_LOWEST_LEVEL.store(code, std::sync::atomic::Ordering::Relaxed);
 }
 
 pub fn below_lowest_level() -> BelowLowestLevel {
+    chosen_below_lowest_level().unwrap_or(BelowLowestLevel::Missing)
+}
+
+/// The front end's choice, if it made one.
+pub fn chosen_below_lowest_level() -> Option<BelowLowestLevel> {
     match BELOW_LOWEST_LEVEL.load(std::sync::atomic::Ordering::Relaxed) {
-        1 => BelowLowestLevel::StandardLapseRate,
-        _ => BelowLowestLevel::Missing,
+        1 => Some(BelowLowestLevel::Missing),
+        2 => Some(BelowLowestLevel::StandardLapseRate),
+        _ => None,
     }
 }
 
