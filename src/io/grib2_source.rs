@@ -124,6 +124,7 @@ fn place(field: &FieldIndex) -> Placement {
         grib2::SURFACE_GROUND | grib2::SURFACE_HYBRID if base == "lnsp" => (base, None, 2),
         grib2::SURFACE_HYBRID => (format!("{base}_hybrid"), surface.value, 1),
         grib2::SURFACE_GROUND if base == "pres" => ("sp".to_string(), None, 2),
+        grib2::SURFACE_GROUND if base == "lsm" => (base, None, 2),
         grib2::SURFACE_GROUND => (format!("{base}_surface"), None, 2),
         grib2::SURFACE_MEAN_SEA_LEVEL if base == "prmsl" => (base, None, 2),
         grib2::SURFACE_MEAN_SEA_LEVEL => (format!("{base}_mean_sea_level"), None, 2),
@@ -490,6 +491,8 @@ impl GribSource {
                 // hydrostatic integral on model levels starts from.
                 grib2::SURFACE_GROUND if name == "z_surface" => Some("surface_geopotential"),
                 grib2::SURFACE_GROUND if name == "gh_surface" => Some("surface_altitude"),
+                // The land-sea mask the maps draw coastlines from.
+                grib2::SURFACE_GROUND if name == "lsm" => Some("land_binary_mask"),
                 grib2::SURFACE_MEAN_SEA_LEVEL if name == "prmsl" => Some("air_pressure_at_mean_sea_level"),
                 _ => None,
             };
