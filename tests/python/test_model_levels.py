@@ -435,3 +435,32 @@ def test_below_ground_setting_after_open_in_a_notebook_style_program(baroc, tmp_
     p_lowest = p[-1]
     want = np.where(p_lowest >= 90_000.0, T0, T0 * (90_000.0 / p_lowest) ** (RD * GAMMA / G0))
     np.testing.assert_allclose(t900, want, atol=2e-3)
+
+
+def test_cf_log_of_surface_pressure_serves_when_ps_is_absent(baroc, tmp_path):
+    # The CF file of `write_cf`, its surface pressure replaced by the
+    # natural logarithm (of the pressure in Pa) under the name ECMWF-style
+    # files give it, `lnsp`: CF has no standard name for it, so the
+    # formula_terms still name `ps`, which is absent.
+    path = tmp_path / "hybrid-lnsp.nc"
+    zs, ps, p = write_cf(path)
+    with netCDF4.Dataset(path, "a") as ds:
+        ds.renameVariable("ps", "lnsp")
+        v = ds["lnsp"]
+        v.delncattr("standard_name")
+        v.units = "1"
+        v.long_name = "logarithm of surface pressure"
+        v[0] = np.log(ps)
+    got = run_script(
+        baroc,
+        tmp_path,
+        path,
+        {
+            "z500": "geopotential at 500 hPa",
+            "thick": "thickness(1000 hPa to 500 hPa) with route geopotential",
+            "u850": "eastward_wind at 850 hPa",
+        },
+    )
+    # ps = exp(lnsp): the same checks as with ps itself (f4 storage of
+    # ln ps, about 11.5, keeps ps to some 0.01 %).
+    check_isothermal_case(got, zs, ps, p[-1])
