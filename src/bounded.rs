@@ -156,7 +156,7 @@ pub fn streams_by_time(program: &Program) -> bool {
             expression_streams(value, &functions)
         }
         StatementKind::Expression(value) => expression_streams(value, &functions),
-        StatementKind::Recipe { .. } | StatementKind::About { .. } => true,
+        StatementKind::Recipe { .. } | StatementKind::About { .. } | StatementKind::Setting { .. } => true,
     })
 }
 

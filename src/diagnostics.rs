@@ -150,7 +150,34 @@ impl Case {
 
     /// Reads a variable (by name or role) over all its levels.
     pub fn field(&self, name: &str) -> Result<Field> {
-        Ok(self.dataset.read(name, &self.selection)?)
+        Ok(self.read_data(name, &self.selection)?)
+    }
+
+    /// Reads from the dataset with this case's constants (model-level data
+    /// use them in the hydrostatic integral).
+    fn read_data(&self, name: &str, selection: &Selection) -> std::result::Result<Field, crate::io::DataError> {
+        self.dataset.read_with(name, selection, Some(&self.constants))
+    }
+
+    /// The levels of a variable with `extra` pressures inserted, when the
+    /// data give any pressure straight from model levels (one ln-p
+    /// interpolation from the model levels rather than two, through the
+    /// presented standard levels); its own levels otherwise. `with` names
+    /// variables read on the same levels, which must read any pressure too.
+    fn levels_including(&self, name: &str, with: &[&str], extra: &[f64]) -> Result<Vec<f64>> {
+        let mut levels = self.levels_of(name)?;
+        if levels.len() < 2 || !self.dataset.reads_any_pressure(name) || !with.iter().all(|w| self.dataset.reads_any_pressure(w)) {
+            return Ok(levels);
+        }
+        let descending = levels[0] > levels[levels.len() - 1];
+        let (low, high) = levels.iter().fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), &p| (a.min(p), b.max(p)));
+        for &p in extra {
+            if p >= low && p <= high && !levels.iter().any(|&l| (l - p).abs() <= 1e-6 * p) {
+                levels.push(p);
+            }
+        }
+        levels.sort_by(|a, b| if descending { b.total_cmp(a) } else { a.total_cmp(b) });
+        Ok(levels)
     }
 
     /// The levels (Pa) of a variable, by name or role.
@@ -162,11 +189,16 @@ impl Case {
     /// Reads only the data levels that `weights` need, returning the field
     /// and the weights re-indexed onto the levels read.
     fn read_weighted(&self, name: &str, weights: &vertical::LevelWeights) -> Result<(Field, vertical::LevelWeights)> {
-        let levels = self.levels_of(name)?;
+        self.read_weighted_on(name, &self.levels_of(name)?, weights)
+    }
+
+    /// As `read_weighted`, the weights indexing `levels` (which may hold
+    /// pressures besides the variable's own, see `levels_including`).
+    fn read_weighted_on(&self, name: &str, levels: &[f64], weights: &vertical::LevelWeights) -> Result<(Field, vertical::LevelWeights)> {
         let mut needed: Vec<usize> = weights.terms.iter().map(|t| t.0).collect();
         needed.sort_unstable();
         needed.dedup();
-        let field = self.dataset.read(name, &self.selection_with_levels(Some(needed.iter().map(|&k| levels[k]).collect())))?;
+        let field = self.read_data(name, &self.selection_with_levels(Some(needed.iter().map(|&k| levels[k]).collect())))?;
         let remapped = vertical::LevelWeights {
             terms: weights.terms.iter().map(|&(k, w)| (needed.iter().position(|&n| n == k).expect("needed"), w)).collect(),
         };
@@ -187,9 +219,9 @@ impl Case {
                 return self.geopotential_at(pressure, mask_below_ground);
             }
         }
-        let levels = self.levels_of(name)?;
+        let levels = self.levels_including(name, &[], &[pressure])?;
         let weights = vertical::interpolation_weights(&levels, pressure)?;
-        let (field, weights) = self.read_weighted(name, &weights)?;
+        let (field, weights) = self.read_weighted_on(name, &levels, &weights)?;
         let mut data = vertical::apply_weights(field.data.view(), &weights, 1.0);
         if mask_below_ground {
             if let Some(ps) = self.surface_pressure()? {
@@ -215,6 +247,28 @@ impl Case {
 
     fn geopotential_at_computed(&self, pressure: f64, mask_below_ground: bool) -> Result<Field> {
         let (name, kind) = self.geopotential_source()?;
+        if self.dataset.reads_any_pressure(&name) {
+            // Model-level data: the geopotential at any pressure comes
+            // straight from the model levels (the hydrostatic integral or
+            // the stored geopotential there, one ln-p interpolation).
+            let levels = self.levels_including(&name, &[], &[pressure])?;
+            let weights = vertical::interpolation_weights(&levels, pressure)?;
+            let (z, weights) = self.read_weighted_on(&name, &levels, &weights)?;
+            let mut data = vertical::apply_weights(z.data.view(), &weights, 1.0);
+            if mask_below_ground {
+                if let Some(ps) = self.surface_pressure()? {
+                    vertical::mask_below_ground(&mut data, ps.data.index_axis(ndarray::Axis(1), 0), pressure);
+                }
+            }
+            let mut out = z.derived_without_levels(&z.name, &z.units, expand(data)).map_err(DiagnosticError::Unsupported)?;
+            out.long_name = z.long_name.clone();
+            out.standard_name = z.standard_name.clone();
+            out.attributes.push(("pressure_level".into(), format!("{} hPa", trim(pressure / 100.0))));
+            if !out.attributes.iter().any(|(k, _)| k == "vertical_interpolation") {
+                out.attributes.push(("vertical_interpolation".into(), "straight from the model levels, linearly in ln p".into()));
+            }
+            return Ok(out);
+        }
         let z_levels = self.levels_of(&name)?;
         let temperature = match self.dataset.find_role(Role::Temperature) {
             Some(t) => t.levels.clone().map(|l| (t.name.clone(), l)),
@@ -285,7 +339,7 @@ impl Case {
             None => Ok(None),
             Some(info) => {
                 let name = info.name.clone();
-                let mut field = self.dataset.read(&name, &self.selection)?;
+                let mut field = self.read_data(&name, &self.selection)?;
                 let factor = crate::io::cf::pressure_factor(&field.units).unwrap_or(1.0);
                 if factor != 1.0 {
                     field.data.mapv_inplace(|p| (p as f64 * factor) as f32);
@@ -358,21 +412,25 @@ impl Case {
         let (data, template, method) = match route {
             ThicknessRoute::Temperature | ThicknessRoute::DryTemperature => {
                 let t_name = self.role_name(Role::Temperature)?;
-                let levels = self.levels_of(&t_name)?;
+                let own_levels = self.levels_of(&t_name)?;
                 let humidity_name = match route {
                     ThicknessRoute::Temperature => match self.dataset.find_role(Role::SpecificHumidity) {
-                        Some(q) if q.levels.as_ref().is_some_and(|l| *l == levels) => Some(q.name.clone()),
+                        Some(q) if q.levels.as_ref().is_some_and(|l| *l == own_levels) => Some(q.name.clone()),
                         _ => None,
                     },
                     _ => None,
                 };
+                // Model-level data: the layer's bounds come straight from
+                // the model levels when they are not presented levels.
+                let along: Vec<&str> = humidity_name.iter().map(String::as_str).collect();
+                let levels = self.levels_including(&t_name, &along, &[layer.bottom, layer.top])?;
                 let factor = c.dry_air_gas_constant / c.gravity;
                 // Reads the levels a rule needs and integrates over them.
                 let integrate = |weights: &vertical::LevelWeights| -> Result<(Array3<f32>, Field)> {
-                    let (t, w) = self.read_weighted(&t_name, weights)?;
+                    let (t, w) = self.read_weighted_on(&t_name, &levels, weights)?;
                     let data = match &humidity_name {
                         Some(q_name) => {
-                            let q = self.read_weighted(q_name, weights)?.0;
+                            let q = self.read_weighted_on(q_name, &levels, weights)?.0;
                             vertical::apply_weights_with(t.data.view(), Some(q.data.view()), &w, factor, vertical::virtual_temperature)
                         }
                         None => vertical::apply_weights(t.data.view(), &w, factor),

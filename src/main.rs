@@ -229,9 +229,11 @@ struct ProgramArgs {
     files: Vec<PathBuf>,
     /// Model-level data: what pressures below the lowest model level (below
     /// ground) give: `missing` (NaN, the default) or `standard-lapse-rate`
-    /// (extrapolated at 6.5 K/km, recorded in the results' metadata).
-    #[arg(long = "below-ground", value_enum, default_value = "missing")]
-    below_ground: BelowGround,
+    /// (extrapolated at 6.5 K/km, recorded in the results' metadata). A
+    /// program may choose with `setting below_ground ...`; given both, they
+    /// must agree.
+    #[arg(long = "below-ground", value_enum)]
+    below_ground: Option<BelowGround>,
 }
 
 #[derive(Clone, Copy, ValueEnum)]
@@ -267,12 +269,12 @@ fn main() -> ExitCode {
         Command::Demo { output, time_step } => demo(&output, time_step),
         Command::Inspect { files } => Dataset::open(&files).map(|d| out(&format!("{}\n", baroc::io::describe(&d)))).map_err(|e| format!("error: {e}")),
         Command::Run { program, output, report, each_time, shard, memory_limit } => {
-            program.below_ground.apply();
+            program.below_ground.map(BelowGround::apply);
             run(program, output, report, each_time, shard, memory_limit)
         }
         Command::Merge { output, shards, accept_gaps_and_overlaps } => merge(output, shards, accept_gaps_and_overlaps),
         Command::Table { program, points, regions, format } => {
-            program.below_ground.apply();
+            program.below_ground.map(BelowGround::apply);
             table(program, points, regions, format)
         }
         Command::Kernel { connection_file, action } => kernel(connection_file, action),

@@ -110,10 +110,17 @@ fn collect(evaluator: &Evaluator, shown: Vec<(lang::Span, Value)>) -> Vec<NamedR
 /// along time; otherwise the whole program runs once.
 pub fn run(request: &RunRequest) -> Result<RunOutcome, RunError> {
     let program = lang::parse(&request.source).map_err(|d| rendered(&d, &request.source))?;
+    // The program's `setting below_ground`, if any, agreeing with the
+    // command line's: the data are opened once, with that choice.
+    let below = lang::settings::below_ground_of(&program, crate::io::model_level_source::chosen_below_lowest_level()).map_err(|d| rendered(&[d], &request.source))?;
     let dataset = if request.data_files.is_empty() {
         None
     } else {
-        Some(Arc::new(Dataset::open(&request.data_files).map_err(|e| RunError(format!("error: {e}")))?))
+        let opened = match below {
+            Some(below) => Dataset::open_with(&request.data_files, below),
+            None => Dataset::open(&request.data_files),
+        };
+        Some(Arc::new(opened.map_err(|e| RunError(format!("error: {e}")))?))
     };
     let all_steps = dataset.as_ref().and_then(|d| d.variables().find_map(|v| v.times.as_ref().map(|t| t.values.len()))).unwrap_or(1);
     let step_list: Vec<usize> = request.time_steps.clone().unwrap_or_else(|| (0..all_steps).collect());
@@ -124,6 +131,8 @@ pub fn run(request: &RunRequest) -> Result<RunOutcome, RunError> {
         let mut shown = evaluator.run(&program, &request.source).map_err(|d| rendered(&[d], &request.source))?;
         crate::report::carry_out(&evaluator, shown.iter_mut().map(|(_, v)| v)).map_err(|d| rendered(&[d], &request.source))?;
         let results = collect(&evaluator, shown);
+        // Data the program opened itself (`open`) carry its provenance too.
+        let dataset = dataset.or_else(|| evaluator.current_dataset().cloned());
         return Ok(RunOutcome { results, header: evaluator.recipe.clone(), dataset });
     }
     let bar = request.progress.then(|| {

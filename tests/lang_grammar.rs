@@ -62,6 +62,9 @@ fn statement_sexpr(statement: &Statement) -> String {
         StatementKind::Output { name, value, documentation } => {
             format!("(output {} {} {:?})", name.name, sexpr(value), documentation.as_ref().map(|doc| &doc.value))
         }
+        StatementKind::Setting { options } => {
+            format!("(setting {})", options.iter().map(|o| format!("{} {}", o.name.name, sexpr(&o.value))).collect::<Vec<_>>().join(" "))
+        }
         StatementKind::Expression(expr) => sexpr(expr),
     }
 }
@@ -483,4 +486,16 @@ fn nesting_just_under_the_limits_is_accepted_in_a_small_stack() {
     deep_in_small_stack(mixed).unwrap();
     let sum = format!("x{}", " + x".repeat(150));
     deep_in_small_stack(sum).unwrap();
+}
+
+#[test]
+fn a_setting_is_written_like_the_options_of_a_call() {
+    // `setting` takes name-value pairs as `with` does after a call, and
+    // prints back the same way.
+    assert_eq!(program("setting below_ground standard_lapse_rate"), vec!["(setting below_ground standard_lapse_rate)"]);
+    let source = "setting below_ground missing\nlet t = temperature at 900 hPa";
+    let parsed = parse(source).unwrap();
+    assert_eq!(parsed.to_string().trim_end(), source);
+    // `setting` is a reserved word.
+    assert!(parse("let setting = 1").is_err());
 }

@@ -23,6 +23,8 @@
 //!   rising to the Orrin Heights (1400 m); the surface pressure is the
 //!   pressure of the same column at the terrain height, so model levels
 //!   follow the terrain and pressures below it are underground;
+//! - the land-sea mask: 1 east of the same coastline, 0 west of it (GRIB2
+//!   discipline 2, category 0, number 0), so maps draw the coast;
 //! - winds: the geostrophic wind of those heights on each model level's
 //!   pressure, computed along the grid's x and y with the map factor and
 //!   each point's Coriolis parameter (f = 2 Omega sin(latitude)).
@@ -103,11 +105,24 @@ fn sea_level_temperature(x: f64, y: f64) -> f64 {
     283.0 - 10.0 * (y - 0.3 * x) / 1_000_000.0
 }
 
+/// The coastline's x (m) at y: the Saltmere Coast is land east of it.
+fn coast(y: f64) -> f64 {
+    80_000.0 + 60_000.0 * (y / 180_000.0).sin()
+}
+
+/// Land cover: 1 on land (east of the coastline), 0 at sea.
+pub fn land_cover(x: f64, y: f64) -> f32 {
+    if x > coast(y) {
+        1.0
+    } else {
+        0.0
+    }
+}
+
 /// Terrain height (m): land east of a wavy coastline, rising inland to the
 /// Orrin Heights.
 pub fn terrain(x: f64, y: f64) -> f64 {
-    let coast = 80_000.0 + 60_000.0 * (y / 180_000.0).sin();
-    let inland = x - coast;
+    let inland = x - coast(y);
     if inland <= 0.0 {
         return 0.0;
     }
@@ -265,6 +280,21 @@ pub fn write(directory: &Path) -> Result<PathBuf, String> {
         values: &terrain_geopotential,
         bits: 16,
     });
+    // The land-sea mask (GRIB2 discipline 2, category 0, number 0, "land
+    // cover (1=land, 0=sea)"), from the same coastline as the terrain, so
+    // maps of the case draw the coast.
+    let land: Vec<f32> = (0..NY).flat_map(|j| (0..NX).map(move |i| position(i, j))).map(|(x, y)| land_cover(x, y)).collect();
+    messages.push(Message {
+        discipline: 2,
+        category: 0,
+        number: 0,
+        reference_time: REFERENCE_TIME,
+        forecast_hours: 0,
+        level: Level::Ground,
+        grid: &grid,
+        values: &land,
+        bits: 8,
+    });
     let path = directory.join(FILE_NAME);
     write_file(&path, &messages)?;
     Ok(path)
@@ -273,6 +303,44 @@ pub fn write(directory: &Path) -> Result<PathBuf, String> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn the_land_sea_mask_reads_back_as_the_coast_of_the_terrain() {
+        let directory = std::env::temp_dir().join(format!("baroc-regional-mask-{}", std::process::id()));
+        let path = write(&directory).unwrap();
+        let dataset = crate::io::Dataset::open(&[&path]).unwrap();
+        // Found as the land-sea mask by its GRIB2 parameter (WMO code table
+        // 4.2, discipline 2, category 0, number 0: land cover, 1 = land,
+        // 0 = sea), on the case's own Lambert grid.
+        let info = dataset.variables().find(|v| v.standard_name.as_deref() == Some("land_binary_mask")).expect("a land-sea mask");
+        assert_eq!(info.name, "lsm");
+        assert!(info.grid.projection.is_some());
+        let mask = dataset.read("lsm", &crate::io::Selection::default()).unwrap();
+        let (mut land, mut sea) = (0, 0);
+        for j in 0..NY {
+            for i in 0..NX {
+                let (x, y) = position(i, j);
+                let value = mask.data[[0, 0, j, i]];
+                // Land wherever the terrain stands above sea level; sea
+                // has no terrain.
+                if terrain(x, y) > 0.0 {
+                    assert_eq!(value, 1.0, "row {j}, column {i}");
+                }
+                if value == 0.0 {
+                    assert_eq!(terrain(x, y), 0.0);
+                    sea += 1;
+                } else {
+                    assert_eq!(value, 1.0);
+                    land += 1;
+                }
+            }
+        }
+        assert!(land > NX * NY / 10 && sea > NX * NY / 10, "{land} land and {sea} sea points");
+        // The map of a field on the grid gets the coastline from it.
+        let on_map = crate::figures::land_mask_for(&dataset, &mask.grid).expect("the mask on the map's grid");
+        assert_eq!(on_map.iter().filter(|&&v| v == 1.0).count(), land);
+        std::fs::remove_dir_all(&directory).ok();
+    }
 
     #[test]
     fn the_written_case_reads_back_balanced_with_the_ground_respected() {

@@ -109,6 +109,9 @@ struct Entry {
 pub struct Dataset {
     sources: Vec<Box<dyn DataSource>>,
     entries: Vec<Entry>,
+    /// The files it was opened from (empty when built from sources), so
+    /// that a program's below-ground setting can open them again.
+    paths: Vec<std::path::PathBuf>,
 }
 
 impl std::fmt::Debug for Dataset {
@@ -165,7 +168,39 @@ impl Dataset {
                 sources.push(Box::new(OnPressureLevels::new(Box::new(source), below)?));
             }
         }
-        Self::from_sources(sources)
+        let mut dataset = Self::from_sources(sources)?;
+        dataset.paths = paths.iter().map(|p| p.as_ref().to_path_buf()).collect();
+        Ok(dataset)
+    }
+
+    /// What the dataset's model-level data give below their lowest level
+    /// (None when it holds no model-level data).
+    pub fn below_lowest_level(&self) -> Option<BelowLowestLevel> {
+        self.sources.iter().find_map(|s| s.below_lowest_level())
+    }
+
+    /// The same files opened again with another below-ground choice; the
+    /// dataset itself when it holds no model-level data or already makes
+    /// that choice. Fails for a dataset not opened from files.
+    pub fn reopened_with(self: &std::sync::Arc<Self>, below: BelowLowestLevel) -> Result<std::sync::Arc<Self>, DataError> {
+        match self.below_lowest_level() {
+            None => Ok(self.clone()),
+            Some(b) if b == below => Ok(self.clone()),
+            Some(_) if self.paths.is_empty() => Err(DataError::Invalid(format!(
+                "{}: this dataset was not opened from files, so its model-level data cannot be opened again with another below-ground choice",
+                self.labels().join(", ")
+            ))),
+            Some(_) => Ok(std::sync::Arc::new(Self::open_with(&self.paths, below)?)),
+        }
+    }
+
+    /// Whether `name` (a variable or role) may be read at any pressure in
+    /// its range straight from the data (model-level data), not only at its
+    /// listed levels.
+    pub fn reads_any_pressure(&self, name: &str) -> bool {
+        let Ok(info) = self.resolve(name) else { return false };
+        let Some(entry) = self.entries.iter().find(|e| e.info.name == info.name) else { return false };
+        entry.parts.iter().all(|(s, _)| self.sources[*s].reads_any_pressure(&info.name))
     }
 
     /// Combines sources. Fails when two sources' grids disagree, or when a
@@ -243,7 +278,7 @@ impl Dataset {
                 }
             }
         }
-        Ok(Self { sources, entries })
+        Ok(Self { sources, entries, paths: Vec::new() })
     }
 
     /// The sources' labels, followed by what a source says of why `role`
@@ -318,14 +353,21 @@ impl Dataset {
     /// Reads a selection of a variable (by name or role), joining the parts
     /// of a variable split across files along time.
     pub fn read(&self, name: &str, selection: &Selection) -> Result<Field, DataError> {
-        let field = self.read_as_stored(name, selection)?;
-        self.to_earth_relative(field, selection)
+        self.read_with(name, selection, None)
+    }
+
+    /// As `read`, with the physical constants of the program asking (used
+    /// where a source computes a variable, such as the hydrostatic integral
+    /// on model levels; None: the default constants).
+    pub fn read_with(&self, name: &str, selection: &Selection, constants: Option<&crate::constants::Constants>) -> Result<Field, DataError> {
+        let field = self.read_as_stored(name, selection, constants)?;
+        self.to_earth_relative(field, selection, constants)
     }
 
     /// A grid-relative wind component (x_wind, y_wind, grid_eastward_wind,
     /// grid_northward_wind) on a projected grid becomes the eastward or
     /// northward component, using its partner; anything else is unchanged.
-    fn to_earth_relative(&self, field: Field, selection: &Selection) -> Result<Field, DataError> {
+    fn to_earth_relative(&self, field: Field, selection: &Selection, constants: Option<&crate::constants::Constants>) -> Result<Field, DataError> {
         use super::projected::{rotate_component, GRID_RELATIVE_X, GRID_RELATIVE_Y};
         let Some(standard_name) = field.standard_name.clone() else { return Ok(field) };
         let along_x = match (GRID_RELATIVE_X.iter().position(|s| *s == standard_name), GRID_RELATIVE_Y.iter().position(|s| *s == standard_name)) {
@@ -339,16 +381,20 @@ impl Dataset {
         let partner = self.variables().find(|v| v.standard_name.as_deref() == Some(along_x.1)).map(|v| v.name.clone()).ok_or_else(|| {
             DataError::Invalid(format!("{} is a grid-relative wind component ({standard_name}); turning it to earth-relative needs its partner ({}), which is not in the data", field.name, along_x.1))
         })?;
-        let partner = self.read_as_stored(&partner, selection)?;
+        let partner = self.read_as_stored(&partner, selection, constants)?;
         rotate_component(field, &partner, along_x.0).map_err(DataError::Invalid)
     }
 
-    fn read_as_stored(&self, name: &str, selection: &Selection) -> Result<Field, DataError> {
+    fn read_as_stored(&self, name: &str, selection: &Selection, constants: Option<&crate::constants::Constants>) -> Result<Field, DataError> {
         let info = self.resolve(name)?.clone();
+        let read_source = |s: usize, selection: &Selection| match constants {
+            Some(c) => self.sources[s].read_with_constants(&info.name, selection, c),
+            None => self.sources[s].read(&info.name, selection),
+        };
         let entry = self.entries.iter().find(|e| e.info.name == info.name).expect("resolved names exist");
         if entry.parts.len() == 1 {
             let (s, _) = &entry.parts[0];
-            return self.sources[*s].read(&info.name, selection);
+            return read_source(*s, selection);
         }
         // Map global time indices onto (source, local index).
         let flat: Vec<(usize, usize)> = entry.parts.iter().flat_map(|(s, idx)| idx.iter().map(move |&i| (*s, i))).collect();
@@ -357,7 +403,7 @@ impl Dataset {
         for &g in &wanted {
             let &(s, i) = flat.get(g).ok_or(DataError::TimeOutOfRange { variable: info.name.clone(), index: g, last: flat.len() - 1 })?;
             let local = Selection { times: Some(vec![i]), ..selection.clone() };
-            pieces.push(self.sources[s].read(&info.name, &local)?);
+            pieces.push(read_source(s, &local)?);
         }
         let views: Vec<_> = pieces.iter().map(|p| p.data.view()).collect();
         let data = ndarray::concatenate(ndarray::Axis(0), &views).map_err(|e| DataError::Invalid(e.to_string()))?;

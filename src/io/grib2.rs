@@ -701,6 +701,12 @@ pub fn parameter(discipline: u8, category: u8, number: u8) -> Option<Parameter> 
         (0, 3, 1) => p("prmsl", "Pa", "pressure reduced to mean sea level", Some("air_pressure_at_mean_sea_level")),
         (0, 3, 4) => p("z", "m2 s-2", "geopotential", Some("geopotential")),
         (0, 3, 5) => p("gh", "m", "geopotential height", Some("geopotential_height")),
+        // "Natural logarithm of pressure in Pa" (units "Numeric"); on the
+        // ground or hybrid level 1 it is the log of surface pressure.
+        (0, 3, 25) => p("lnsp", "1", "natural logarithm of surface pressure in Pa", None),
+        // Discipline 2 (land surface products), category 0 (vegetation and
+        // biomass), number 0: "land cover (1=land, 0=sea)".
+        (2, 0, 0) => p("lsm", "1", "land cover (1=land, 0=sea)", Some("land_binary_mask")),
         _ => None,
     }
 }

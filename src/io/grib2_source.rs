@@ -119,8 +119,12 @@ fn place(field: &FieldIndex) -> Placement {
     let number = |v: Option<f64>| v.map_or("missing".to_string(), |v| format!("{v}"));
     let (name, level, rank) = match surface.kind {
         grib2::SURFACE_ISOBARIC => (base, surface.value, 0),
+        // The log of surface pressure is a surface field, whether on the
+        // ground or (as ECMWF writes it) on hybrid level 1.
+        grib2::SURFACE_GROUND | grib2::SURFACE_HYBRID if base == "lnsp" => (base, None, 2),
         grib2::SURFACE_HYBRID => (format!("{base}_hybrid"), surface.value, 1),
         grib2::SURFACE_GROUND if base == "pres" => ("sp".to_string(), None, 2),
+        grib2::SURFACE_GROUND if base == "lsm" => (base, None, 2),
         grib2::SURFACE_GROUND => (format!("{base}_surface"), None, 2),
         grib2::SURFACE_MEAN_SEA_LEVEL if base == "prmsl" => (base, None, 2),
         grib2::SURFACE_MEAN_SEA_LEVEL => (format!("{base}_mean_sea_level"), None, 2),
@@ -435,7 +439,7 @@ impl GribSource {
                 };
                 messages.push(located);
             }
-            let hybrid = if surface_kind == grib2::SURFACE_HYBRID {
+            let hybrid = if surface_kind == grib2::SURFACE_HYBRID && name != "lnsp" {
                 let pv = messages[0].field.product.pv.clone();
                 if let Some(other) = messages.iter().find(|m| m.field.product.pv != pv) {
                     return Err(DataError::Invalid(format!(
@@ -487,6 +491,8 @@ impl GribSource {
                 // hydrostatic integral on model levels starts from.
                 grib2::SURFACE_GROUND if name == "z_surface" => Some("surface_geopotential"),
                 grib2::SURFACE_GROUND if name == "gh_surface" => Some("surface_altitude"),
+                // The land-sea mask the maps draw coastlines from.
+                grib2::SURFACE_GROUND if name == "lsm" => Some("land_binary_mask"),
                 grib2::SURFACE_MEAN_SEA_LEVEL if name == "prmsl" => Some("air_pressure_at_mean_sea_level"),
                 _ => None,
             };
@@ -495,7 +501,7 @@ impl GribSource {
             variables.push(VariableInfo {
                 name: name.clone(),
                 long_name: Some(match (parameter, surface_kind) {
-                    (Some(p), grib2::SURFACE_HYBRID) => format!("{} on hybrid model levels", p.long_name),
+                    (Some(p), grib2::SURFACE_HYBRID) if name != "lnsp" => format!("{} on hybrid model levels", p.long_name),
                     (Some(p), _) => p.long_name.to_string(),
                     (None, _) => format!(
                         "GRIB2 parameter discipline {}, category {}, number {}",
@@ -516,6 +522,9 @@ impl GribSource {
             });
             tables.push(Table { levels, messages, hybrid });
         }
+        // Surface pressure for the hybrid coefficients: `sp`, or else the
+        // log of surface pressure (ps = exp(lnsp)).
+        let surface_pressure = if variables.iter().any(|v| v.name == "sp") || !variables.iter().any(|v| v.name == "lnsp") { "sp" } else { "lnsp" };
         let mut model_levels = Vec::new();
         for (info, table) in variables.iter().zip(&tables) {
             let Some(hybrid) = &table.hybrid else { continue };
@@ -528,7 +537,7 @@ impl GribSource {
                 (Some(a), _) => format!("model level {a} (GRIB2 fixed surface 105)"),
                 _ => "model levels".into(),
             };
-            model_levels.push(ModelLevelVariable { info: info.clone(), coefficients, surface_pressure: "sp".into(), description });
+            model_levels.push(ModelLevelVariable { info: info.clone(), coefficients, surface_pressure: surface_pressure.into(), description });
         }
         Ok(Self { paths, files, variables, tables, model_levels, layout, grid })
     }

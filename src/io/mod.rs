@@ -93,6 +93,23 @@ pub trait DataSource: Send + Sync {
     fn missing_note(&self, _role: &str) -> Option<String> {
         None
     }
+    /// Reads as `read`, with the physical constants of the program asking
+    /// (a source that computes from the data, such as the hydrostatic
+    /// integral on model levels, uses them; stored data ignore them).
+    fn read_with_constants(&self, variable: &str, selection: &Selection, _constants: &crate::constants::Constants) -> Result<Field, DataError> {
+        self.read(variable, selection)
+    }
+    /// Whether a read may ask for any pressure within the variable's range,
+    /// not only its listed levels, and get it from the data in one step
+    /// (model-level data interpolated straight from the model levels).
+    fn reads_any_pressure(&self, _variable: &str) -> bool {
+        false
+    }
+    /// What model-level data give below their lowest level, for a source
+    /// holding model-level data; None otherwise.
+    fn below_lowest_level(&self) -> Option<crate::physics::model_levels::BelowLowestLevel> {
+        None
+    }
 }
 
 /// Everything that can go wrong getting data; every message says what would

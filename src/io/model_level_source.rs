@@ -41,23 +41,30 @@ use crate::physics::model_levels::{geopotential_on_levels, to_pressure_levels, B
 use crate::physics::sampling::Region;
 
 /// The choice `Dataset::open` makes for model-level data below their
-/// lowest level: 0 missing (the default), 1 the standard lapse rate. Set
-/// once by a front end (the CLI's `--below-ground`); `Dataset::open_with`
-/// chooses per dataset.
+/// lowest level: 0 none made (missing, the default), 1 missing chosen, 2
+/// the standard lapse rate. Set once by a front end (the CLI's
+/// `--below-ground`); `Dataset::open_with` chooses per dataset, and a
+/// program's `setting below_ground` must agree with a front end's choice.
 static BELOW_LOWEST_LEVEL: std::sync::atomic::AtomicU8 = std::sync::atomic::AtomicU8::new(0);
 
 pub fn set_below_lowest_level(below: BelowLowestLevel) {
     let code = match below {
-        BelowLowestLevel::Missing => 0,
-        BelowLowestLevel::StandardLapseRate => 1,
+        BelowLowestLevel::Missing => 1,
+        BelowLowestLevel::StandardLapseRate => 2,
     };
     BELOW_LOWEST_LEVEL.store(code, std::sync::atomic::Ordering::Relaxed);
 }
 
 pub fn below_lowest_level() -> BelowLowestLevel {
+    chosen_below_lowest_level().unwrap_or(BelowLowestLevel::Missing)
+}
+
+/// The front end's choice, if it made one.
+pub fn chosen_below_lowest_level() -> Option<BelowLowestLevel> {
     match BELOW_LOWEST_LEVEL.load(std::sync::atomic::Ordering::Relaxed) {
-        1 => BelowLowestLevel::StandardLapseRate,
-        _ => BelowLowestLevel::Missing,
+        1 => Some(BelowLowestLevel::Missing),
+        2 => Some(BelowLowestLevel::StandardLapseRate),
+        _ => None,
     }
 }
 
@@ -106,8 +113,9 @@ enum Making {
     /// Interpolated from the model-level variable with this index.
     Interpolated(usize),
     /// The hydrostatic integral: temperature and humidity indices, the
-    /// surface geopotential variable and the factor to m2 s-2.
-    Hydrostatic { temperature: usize, humidity: Option<usize>, surface: String, factor: f64 },
+    /// surface geopotential variable, and whether it is an altitude (m,
+    /// times the program's g0) rather than a geopotential.
+    Hydrostatic { temperature: usize, humidity: Option<usize>, surface: String, altitude: bool },
 }
 
 /// A `ModelLevelStore` seen as a plain source on pressure levels.
@@ -159,12 +167,12 @@ impl OnPressureLevels {
         if !has_geopotential {
             if let Some(t) = temperature {
                 let surface = store.variables().iter().find_map(|v| match v.standard_name.as_deref() {
-                    Some("surface_geopotential") => Some((v.name.clone(), 1.0)),
-                    Some("surface_altitude") => Some((v.name.clone(), constants.gravity)),
+                    Some("surface_geopotential") => Some((v.name.clone(), false)),
+                    Some("surface_altitude") => Some((v.name.clone(), true)),
                     _ => None,
                 });
                 match surface {
-                    Some((surface, factor)) => {
+                    Some((surface, altitude)) => {
                         let humidity = model.iter().position(|m| m.info.standard_name.as_deref() == Some("specific_humidity"));
                         let base = &model[t];
                         let mut info = base.info.clone();
@@ -189,7 +197,7 @@ impl OnPressureLevels {
                             ),
                         ];
                         variables.push(info);
-                        making.push(Some(Making::Hydrostatic { temperature: t, humidity, surface, factor }));
+                        making.push(Some(Making::Hydrostatic { temperature: t, humidity, surface, altitude }));
                     }
                     None => {
                         missing = Some(format!(
@@ -224,13 +232,19 @@ impl OnPressureLevels {
         })?;
         let selection = Selection { times: info.times.as_ref().map(|_| times.to_vec()), levels: None, region: region.copied() };
         let field = self.store.read(&model.surface_pressure, &selection)?;
-        let factor = super::cf::pressure_factor(&field.units).ok_or_else(|| DataError::NotAPressure {
+        let logarithm = is_log_surface_pressure(info);
+        let factor = if logarithm { Some(1.0) } else { super::cf::pressure_factor(&field.units) };
+        let factor = factor.ok_or_else(|| DataError::NotAPressure {
             path: self.store.label(),
             variable: model.surface_pressure.clone(),
             units: field.units.clone(),
         })?;
         let mut ps = field.data.index_axis(Axis(1), 0).to_owned();
-        if factor != 1.0 {
+        if logarithm {
+            // ps = exp(ln ps), ln ps of the pressure in Pa (WMO code table
+            // 4.2, discipline 0, category 3, number 25).
+            ps.mapv_inplace(|v| (v as f64).exp() as f32);
+        } else if factor != 1.0 {
             ps.mapv_inplace(|v| (v as f64 * factor) as f32);
         }
         // A surface pressure without time serves every time.
@@ -261,6 +275,18 @@ impl OnPressureLevels {
         }
         Ok(data)
     }
+}
+
+/// Whether a variable holds the natural logarithm of surface pressure (of
+/// the pressure in Pa): GRIB2 discipline 0, category 3, number 25 (WMO
+/// code table 4.2), or in CF NetCDF a variable named `lnsp` or whose
+/// long_name says "logarithm of surface pressure" (CF has no standard name
+/// for it). Serves as surface pressure, ps = exp(ln ps).
+pub fn is_log_surface_pressure(info: &VariableInfo) -> bool {
+    let attribute = |key: &str| info.attributes.iter().find(|(k, _)| k == key).map(|(_, v)| v.as_str());
+    let grib = attribute("GRIB2_discipline") == Some("0") && attribute("GRIB2_parameter_category") == Some("3") && attribute("GRIB2_parameter_number") == Some("25");
+    let long_name = info.long_name.as_deref().map(str::to_ascii_lowercase).unwrap_or_default();
+    grib || info.name.eq_ignore_ascii_case("lnsp") || long_name.contains("logarithm of surface pressure")
 }
 
 /// The standard isobaric levels at or below the model's top (at a surface
@@ -346,7 +372,23 @@ impl DataSource for OnPressureLevels {
         matches!(role, "geopotential" | "geopotential_height").then(|| self.missing.clone()).flatten()
     }
 
+    fn reads_any_pressure(&self, name: &str) -> bool {
+        self.index_of(name).is_ok_and(|k| self.making[k].is_some())
+    }
+
+    fn below_lowest_level(&self) -> Option<BelowLowestLevel> {
+        (!self.store.model_level_variables().is_empty()).then_some(self.below)
+    }
+
     fn read(&self, name: &str, selection: &Selection) -> Result<Field, DataError> {
+        self.read_with_constants(name, selection, &self.constants)
+    }
+
+    /// Any pressure in `selection.levels` is interpolated straight from the
+    /// model levels (one ln-p interpolation), whether or not it is one of
+    /// the presented standard levels; `constants` (the program's) go into
+    /// the hydrostatic integral and the standard-lapse-rate extrapolation.
+    fn read_with_constants(&self, name: &str, selection: &Selection, constants: &Constants) -> Result<Field, DataError> {
         let k = self.index_of(name)?;
         let Some(making) = &self.making[k] else { return self.store.read(name, selection) };
         let info = &self.variables[k];
@@ -384,11 +426,11 @@ impl DataSource for OnPressureLevels {
                     (Some("geopotential"), Some(t)) => Quantity::Geopotential { temperature: t.view() },
                     _ => Quantity::Other,
                 };
-                let out = to_pressure_levels(data.view(), pressure.view(), &targets, self.below, quantity, &self.constants)
+                let out = to_pressure_levels(data.view(), pressure.view(), &targets, self.below, quantity, constants)
                     .map_err(|e| DataError::Invalid(format!("{}: `{name}`: {e}", self.store.label())))?;
                 (out, grid)
             }
-            Making::Hydrostatic { temperature, humidity, surface, factor } => {
+            Making::Hydrostatic { temperature, humidity, surface, altitude } => {
                 let model = &models[*temperature];
                 let (ps, grid) = self.surface_pressure(model, &times, region)?;
                 let Some((ps_min, ps_max)) = finite_range(&ps) else {
@@ -412,11 +454,12 @@ impl DataSource for OnPressureLevels {
                     None => None,
                 };
                 let surface_selection = Selection { times: surface_times, levels: None, region: region.copied() };
+                let factor = if *altitude { constants.gravity } else { 1.0 };
                 let zs = self.store.read(surface, &surface_selection)?.data.index_axis(Axis(1), 0).mapv(|v| (v as f64 * factor) as f32);
-                let phi = geopotential_on_levels(zs.view(), ps.view(), pressure.view(), t.view(), q.as_ref().map(|q| q.view()), &self.constants)
+                let phi = geopotential_on_levels(zs.view(), ps.view(), pressure.view(), t.view(), q.as_ref().map(|q| q.view()), constants)
                     .map_err(|e| DataError::Invalid(format!("{}: {HYDROSTATIC_GEOPOTENTIAL}: {e}", self.store.label())))?;
                 let quantity = Quantity::Geopotential { temperature: t.view() };
-                let out = to_pressure_levels(phi.view(), pressure.view(), &targets, self.below, quantity, &self.constants)
+                let out = to_pressure_levels(phi.view(), pressure.view(), &targets, self.below, quantity, constants)
                     .map_err(|e| DataError::Invalid(format!("{}: {HYDROSTATIC_GEOPOTENTIAL}: {e}", self.store.label())))?;
                 (out, grid)
             }

@@ -275,6 +275,14 @@ impl NetcdfModelLevels {
         for (mut m, s) in found {
             // The horizontal grid is the surface pressure's, as the plain
             // reader built it (lat-lon or projected).
+            // Without the surface pressure formula_terms name, the log of
+            // surface pressure serves (ps = exp(lnsp)), as ECMWF-style
+            // files carry it.
+            if !plain.variables().iter().any(|v| v.name == m.surface_pressure) {
+                if let Some(log) = plain.variables().iter().find(|v| super::model_level_source::is_log_surface_pressure(v)) {
+                    m.surface_pressure = log.name.clone();
+                }
+            }
             let ps = plain.variables().iter().find(|v| v.name == m.surface_pressure).ok_or_else(|| {
                 error(&path, &m.info.name, format!("its hybrid coordinate names the surface pressure `{}`, which is not a variable on the file's grid", m.surface_pressure))
             })?;

@@ -718,6 +718,16 @@ impl<'e> Checker<'e> {
                 self.scope.bindings.insert(name.name.clone(), Binding { kind: kind.clone(), span: name.span });
                 Some(StatementKindInfo { span: statement.span, name: Some(name.name.clone()), kind })
             }
+            StatementKind::Setting { options } => {
+                // The words are choices, not names: read them, never look
+                // them up.
+                for option in options {
+                    if let Err(d) = super::settings::read_setting(option) {
+                        self.report(d);
+                    }
+                }
+                None
+            }
             StatementKind::Expression(expr) => {
                 let kind = self.expr(expr);
                 Some(StatementKindInfo { span: statement.span, name: None, kind })

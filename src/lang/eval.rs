@@ -73,6 +73,7 @@ pub struct Snapshot {
     outputs: Vec<(String, Value)>,
     definitions: Vec<(String, String)>,
     check_scope: super::check::Scope,
+    below_ground: Option<crate::physics::model_levels::BelowLowestLevel>,
 }
 
 /// Selection state passed down an expression.
@@ -120,6 +121,8 @@ pub struct Evaluator {
     /// `crate::sharing`); emptied at the start of every run, so nothing
     /// computed in one cell is served in another.
     pub shared: Arc<crate::sharing::SharedResults>,
+    /// The program's `setting below_ground`, once made.
+    pub below_ground: Option<crate::physics::model_levels::BelowLowestLevel>,
 }
 
 impl Default for Evaluator {
@@ -183,6 +186,7 @@ impl Evaluator {
             definitions: Vec::new(),
             describe: describe_value,
             shared: Arc::new(crate::sharing::SharedResults::default()),
+            below_ground: None,
         }
     }
 
@@ -199,6 +203,7 @@ impl Evaluator {
             outputs: self.outputs.clone(),
             definitions: self.definitions.clone(),
             check_scope: self.check_scope.clone(),
+            below_ground: self.below_ground,
         }
     }
 
@@ -213,6 +218,7 @@ impl Evaluator {
         self.outputs = s.outputs;
         self.definitions = s.definitions;
         self.check_scope = s.check_scope;
+        self.below_ground = s.below_ground;
         self.locals.clear();
         self.depth = 0;
     }
@@ -228,6 +234,36 @@ impl Evaluator {
         self.datasets.retain(|(n, _)| n != name);
         self.datasets.push((name.to_string(), dataset.clone()));
         self.current = Some(dataset);
+    }
+
+    /// The program's below-ground choice for model-level data (`setting
+    /// below_ground ...`): datasets opened afterwards use it, and those
+    /// already open are opened again with it where they hold model-level
+    /// data read with the other choice.
+    fn set_below_ground(&mut self, below: crate::physics::model_levels::BelowLowestLevel, span: Span) -> Result<()> {
+        self.below_ground = Some(below);
+        let mut reopened: Vec<(String, Arc<Dataset>)> = Vec::new();
+        for (name, dataset) in &self.datasets {
+            let again = dataset.reopened_with(below).map_err(|e| engine_error(e.into(), span))?;
+            if !Arc::ptr_eq(&again, dataset) {
+                reopened.push((name.clone(), again));
+            }
+        }
+        for (name, again) in reopened {
+            let old = self.datasets.iter().find(|(n, _)| *n == name).map(|(_, d)| d.clone());
+            if let (Some(old), Some(current)) = (&old, &self.current) {
+                if Arc::ptr_eq(old, current) {
+                    self.current = Some(again.clone());
+                }
+            }
+            if let Some(entry) = self.datasets.iter_mut().find(|(n, _)| *n == name) {
+                entry.1 = again.clone();
+            }
+            if matches!(self.globals.get(&name), Some(Value::Dataset(_))) {
+                self.globals.insert(name, Value::Dataset(again));
+            }
+        }
+        Ok(())
     }
 
     pub fn current_dataset(&self) -> Option<&Arc<Dataset>> {
@@ -294,6 +330,7 @@ impl Evaluator {
             StatementKind::Let { name, .. } | StatementKind::Function { name, .. } | StatementKind::Parameter { name, .. } | StatementKind::Output { name, .. } => name.name.clone(),
             StatementKind::Recipe { .. } => "recipe".into(),
             StatementKind::About { .. } => "about".into(),
+            StatementKind::Setting { options } => format!("setting {}", options.iter().map(|o| o.name.name.as_str()).collect::<Vec<_>>().join(" ")),
             StatementKind::Open { .. } | StatementKind::Expression(_) => return,
         };
         let text = self.text_of(statement.span);
@@ -347,7 +384,11 @@ impl Evaluator {
             }
             StatementKind::Open { paths, alias } => {
                 let resolved: Vec<PathBuf> = paths.iter().map(|p| self.resolve_path(&p.value)).collect();
-                let dataset = Dataset::open(&resolved).map_err(|e| {
+                let dataset = match self.below_ground {
+                    Some(below) => Dataset::open_with(&resolved, below),
+                    None => Dataset::open(&resolved),
+                };
+                let dataset = dataset.map_err(|e| {
                     let span = paths.first().map_or(statement.span, |p| p.span);
                     engine_error(e.into(), span)
                 })?;
@@ -365,6 +406,14 @@ impl Evaluator {
             }
             StatementKind::About { text } => {
                 self.recipe.about = Some(text.value.clone());
+                Ok(None)
+            }
+            StatementKind::Setting { options } => {
+                for option in options {
+                    let super::settings::Setting::BelowGround(below) = super::settings::read_setting(option)?;
+                    super::settings::agree_with_front_end(option, below, crate::io::model_level_source::chosen_below_lowest_level())?;
+                    self.set_below_ground(below, option.value.span)?;
+                }
                 Ok(None)
             }
             StatementKind::Parameter { name, default, documentation } => {
@@ -936,7 +985,7 @@ impl Evaluator {
             }
             selection.levels = Some(inside);
         }
-        d.dataset.read(&d.variable, &selection).map_err(|e| engine_error(e.into(), span))
+        d.dataset.read_with(&d.variable, &selection, Some(&self.constants)).map_err(|e| engine_error(e.into(), span))
     }
 
     // ----- selection --------------------------------------------------------

@@ -23,6 +23,7 @@ pub mod diagnostic;
 pub mod eval;
 pub mod parser;
 pub mod recipe;
+pub mod settings;
 pub mod syntax;
 pub mod value;
 

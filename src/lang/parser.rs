@@ -216,7 +216,7 @@ enum Previous {
 
 const CONTINUING_WORDS: &[&str] = &[
     "let", "function", "open", "as", "at", "over", "in", "during", "to", "with", "if", "then", "else",
-    "and", "or", "not", "recipe", "about", "parameter", "output",
+    "and", "or", "not", "recipe", "about", "parameter", "output", "setting",
 ];
 
 /// Finds brackets, strings and the nesting depth. The depth is an upper
@@ -411,6 +411,7 @@ fn describe_rule(rule: &Rule) -> String {
         about_keyword => "`about`",
         parameter_keyword => "`parameter`",
         output_keyword => "`output`",
+        setting_keyword | setting_statement => "`setting`",
         true_keyword | false_keyword | boolean => "`true` or `false`",
         north_keyword | south_keyword | east_keyword | west_keyword => "`north`, `south`, `east` or `west`",
         parenthesized => "`(`",
@@ -458,7 +459,7 @@ fn found_at(source: &str, position: usize) -> (String, Span) {
 
 const KEYWORDS: &[&str] = &[
     "let", "function", "open", "as", "at", "over", "in", "during", "to", "with", "if", "then", "else",
-    "and", "or", "not", "recipe", "about", "parameter", "output", "true", "false", "north", "south",
+    "and", "or", "not", "recipe", "about", "parameter", "output", "setting", "true", "false", "north", "south",
     "east", "west",
 ];
 
@@ -717,6 +718,18 @@ impl Builder {
                 } else {
                     StatementKind::Output { name, value: value.expr, documentation }
                 }
+            }
+            Rule::setting_statement => {
+                parts.next(); // `setting`
+                let mut options = Vec::new();
+                for option in parts.filter(|part| part.as_rule() == Rule::option) {
+                    let mut pieces = option.into_inner();
+                    let name = identifier(pieces.next().expect("a setting has a name"));
+                    let value = self.term(pieces.next().expect("a setting has a value").into_inner())?;
+                    depth = depth.max(value.depth);
+                    options.push(CallOption { name, value: value.expr });
+                }
+                StatementKind::Setting { options }
             }
             Rule::expression_statement => {
                 let value = self.expression(parts.next().expect("an expression"))?;

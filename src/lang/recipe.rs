@@ -149,6 +149,7 @@ pub fn call_recipe(
     }
     let mut sub = Evaluator::new();
     sub.constants = evaluator.constants;
+    sub.below_ground = evaluator.below_ground;
     sub.recipe_folders = evaluator.recipe_folders.clone();
     sub.describe = evaluator.describe;
     for (n, d) in evaluator.datasets() {

@@ -88,6 +88,9 @@ pub enum StatementKind {
     Parameter { name: Identifier, default: Expr, documentation: Option<StringLiteral> },
     /// `output name = expr "documentation"`
     Output { name: Identifier, value: Expr, documentation: Option<StringLiteral> },
+    /// `setting below_ground standard_lapse_rate`: choices for the whole
+    /// program, written like a call's options.
+    Setting { options: Vec<CallOption> },
     /// An expression whose value is shown.
     Expression(Expr),
 }
@@ -353,6 +356,12 @@ fn clear_statement(statement: &mut Statement) {
                 documentation.span = Span::default();
             }
         }
+        StatementKind::Setting { options } => {
+            for option in options {
+                option.name.span = Span::default();
+                clear_expr(&mut option.value);
+            }
+        }
         StatementKind::Expression(expr) => clear_expr(expr),
     }
 }
@@ -511,6 +520,14 @@ impl Printer {
                 self.expr(value, 0, level);
                 if let Some(documentation) = documentation {
                     let _ = write!(self.out, " {}", quote_string(&documentation.value));
+                }
+            }
+            StatementKind::Setting { options } => {
+                for (index, option) in options.iter().enumerate() {
+                    self.out.push_str(if index == 0 { "setting " } else { ", " });
+                    self.out.push_str(&option.name.name);
+                    self.out.push(' ');
+                    self.term(&option.value, false, level);
                 }
             }
             StatementKind::Expression(expr) => self.expr(expr, 0, level),

@@ -241,5 +241,9 @@ def test_regional_model_levels_notebook(case_dir):
     assert _has_image(cells[5]) and _has_image(cells[6])
     turning = _column(cells[7])
     assert turning and all(x is not None and -180 <= x <= 180 for x in turning)
-    # The map of the projected grid is drawn (in the grid's own projection).
+    # The map of the projected grid is drawn (in the grid's own projection),
+    # with the coastline of the case's land-sea mask (GRIB2 discipline 2,
+    # category 0, number 0, written by Baroc's own writer).
     assert _has_image(cells[8])
+    described = " ".join(o.get("data", {}).get("text/plain", "") for o in _outputs(cells[8]))
+    assert "coastline from the land-sea mask" in described, described

@@ -303,3 +303,164 @@ def test_grib2_without_surface_geopotential_says_what_is_missing(baroc, tmp_path
     done = run(baroc, "run", "-e", "let x = geopotential at 500 hPa", "-o", tmp_path / "x.nc", path, check=False)
     assert done.returncode != 0 and "panicked" not in done.stderr
     assert "surface_geopotential" in done.stderr and "no-orography.grib2" in done.stderr, done.stderr
+
+
+def write_grib_with_log_surface_pressure(path, surface_type):
+    """The hybrid file of `write_grib`, its surface pressure given only as
+    its natural logarithm, as ECMWF writes it: shortName lnsp (WMO code
+    table 4.2: discipline 0, category 3, number 25, "natural logarithm of
+    pressure in Pa") on hybrid level 1 (or on the ground)."""
+    zs, ps = surface()
+    a, b = grib_half_levels()
+    pv = np.concatenate([a, b])
+    handles = []
+    full = {}
+    for n in range(1, LEVELS + 1):
+        p = 0.5 * (a[n - 1] + a[n]) + 0.5 * (b[n - 1] + b[n]) * ps
+        full[n] = p
+        handles.append(grib_message(np.full(ps.shape, T0), short_name="t", surface_type=105, level=n, pv=pv))
+        handles.append(grib_message(u_of(p), short_name="u", surface_type=105, level=n, pv=pv))
+        handles.append(grib_message(0.5 * u_of(p), short_name="v", surface_type=105, level=n, pv=pv))
+    on_level_one = surface_type == 105
+    handles.append(
+        grib_message(np.log(ps), short_name="lnsp", surface_type=surface_type, level=1 if on_level_one else 0, pv=pv if on_level_one else None)
+    )
+    handles.append(grib_message(G0 * zs, short_name="z", surface_type=1))
+    with open(path, "wb") as f:
+        for h in handles:
+            ec.codes_write(h, f)
+            ec.codes_release(h)
+    return zs, ps, full
+
+
+def test_grib2_log_of_surface_pressure_serves_as_surface_pressure(baroc, tmp_path):
+    for surface_type in (105, 1):
+        path = tmp_path / f"lnsp-{surface_type}.grib2"
+        zs, ps, full = write_grib_with_log_surface_pressure(path, surface_type)
+        # ecCodes itself files the field under code table 4.2 (0, 3, 25).
+        with open(path, "rb") as f:
+            while True:
+                h = ec.codes_grib_new_from_file(f)
+                if h is None:
+                    raise AssertionError("no lnsp message")
+                parameter = (ec.codes_get_long(h, "discipline"), ec.codes_get_long(h, "parameterCategory"), ec.codes_get_long(h, "parameterNumber"))
+                found = parameter == (0, 3, 25)
+                if found:
+                    assert ec.codes_get_long(h, "typeOfFirstFixedSurface") == surface_type
+                    if surface_type == 105:
+                        # ecCodes names it lnsp on model level 1.
+                        assert ec.codes_get(h, "shortName") == "lnsp" and ec.codes_get_long(h, "level") == 1
+                ec.codes_release(h)
+                if found:
+                    break
+        got = run_script(
+            baroc,
+            tmp_path,
+            path,
+            {
+                "z500": "geopotential at 500 hPa",
+                "thick": "thickness(950 hPa to 500 hPa) with route geopotential",
+                "u850": "eastward_wind at 850 hPa",
+            },
+        )
+        # ps = exp(lnsp): the same isothermal checks as with sp itself.
+        check_isothermal_case(got, zs, ps, full[LEVELS], bottom=95_000.0)
+        described = run(baroc, "inspect", path).stdout
+        assert "lnsp" in described and "u_hybrid" in described, described
+
+
+def lapse_rate_script(tmp_path, setting):
+    script = tmp_path / "setting.baroc"
+    script.write_text(f"{setting}let t900 = temperature at 900 hPa\n")
+    return script
+
+
+def read_t900(out):
+    with netCDF4.Dataset(out) as ds:
+        t900 = np.ma.filled(ds["t900"][:].astype("f8"), np.nan).reshape(LATS.size, LONS.size)
+        # The run's provenance records the choice, as for --below-ground.
+        recorded = str(ds.getncattr("model_levels_to_pressure"))
+    return t900, recorded
+
+
+def test_below_ground_setting_in_the_program_agrees_with_the_command_line_option(baroc, tmp_path):
+    path = tmp_path / "hybrid.nc"
+    zs, ps, p = write_cf(path)
+    p_lowest = p[-1]
+    # Below the lowest level: T = T_L (p / p_L)^(Rd gamma / g0) (U.S.
+    # Standard Atmosphere 1976 lapse rate); above it: T0.
+    want = np.where(p_lowest >= 90_000.0, T0, T0 * (90_000.0 / p_lowest) ** (RD * GAMMA / G0))
+    assert (p_lowest < 90_000.0).any()
+    # The program's own setting, as a recipe or notebook writes it.
+    script = lapse_rate_script(tmp_path, "setting below_ground standard_lapse_rate\n")
+    out = tmp_path / "setting.nc"
+    run(baroc, "run", script, "-o", out, path)
+    t900, recorded = read_t900(out)
+    np.testing.assert_allclose(t900, want, atol=2e-3)
+    assert "standard lapse rate" in recorded, recorded
+    # The same choice given both ways is accepted.
+    out_both = tmp_path / "both.nc"
+    run(baroc, "run", script, "-o", out_both, "--below-ground", "standard-lapse-rate", path)
+    np.testing.assert_allclose(read_t900(out_both)[0], want, atol=2e-3)
+    # Opposite choices are an error at the setting, naming both.
+    done = run(baroc, "run", script, "-o", tmp_path / "conflict.nc", "--below-ground", "missing", path, check=False)
+    assert done.returncode != 0 and "panicked" not in done.stderr
+    assert "below_ground standard_lapse_rate" in done.stderr and "--below-ground missing" in done.stderr, done.stderr
+    assert "^" in done.stderr, done.stderr
+    assert not (tmp_path / "conflict.nc").exists()
+    # Without any choice, below ground stays missing.
+    plain = lapse_rate_script(tmp_path, "")
+    out_plain = tmp_path / "plain.nc"
+    run(baroc, "run", plain, "-o", out_plain, path)
+    t900_plain, recorded_plain = read_t900(out_plain)
+    assert np.isnan(t900_plain[p_lowest < 90_000.0]).all()
+    assert "missing" in recorded_plain, recorded_plain
+    # A mistyped choice: the caret and the valid choices.
+    bad = lapse_rate_script(tmp_path, "setting below_ground extrapolate\n")
+    done = run(baroc, "run", bad, "-o", tmp_path / "bad.nc", path, check=False)
+    assert done.returncode != 0 and "panicked" not in done.stderr
+    assert "`missing` or `standard_lapse_rate`" in done.stderr and "^^^^^^^^^^^" in done.stderr, done.stderr
+
+
+def test_below_ground_setting_after_open_in_a_notebook_style_program(baroc, tmp_path):
+    # A notebook opens its data itself; the setting may come after `open`
+    # and applies to the dataset already open (it is read again).
+    path = tmp_path / "hybrid.nc"
+    zs, ps, p = write_cf(path)
+    program = f'open "{path}"\nsetting below_ground standard_lapse_rate\nlet t900 = temperature at 900 hPa\n'
+    out = tmp_path / "notebook.nc"
+    run(baroc, "run", "-e", program, "-o", out)
+    t900, recorded = read_t900(out)
+    assert "standard lapse rate" in recorded, recorded
+    p_lowest = p[-1]
+    want = np.where(p_lowest >= 90_000.0, T0, T0 * (90_000.0 / p_lowest) ** (RD * GAMMA / G0))
+    np.testing.assert_allclose(t900, want, atol=2e-3)
+
+
+def test_cf_log_of_surface_pressure_serves_when_ps_is_absent(baroc, tmp_path):
+    # The CF file of `write_cf`, its surface pressure replaced by the
+    # natural logarithm (of the pressure in Pa) under the name ECMWF-style
+    # files give it, `lnsp`: CF has no standard name for it, so the
+    # formula_terms still name `ps`, which is absent.
+    path = tmp_path / "hybrid-lnsp.nc"
+    zs, ps, p = write_cf(path)
+    with netCDF4.Dataset(path, "a") as ds:
+        ds.renameVariable("ps", "lnsp")
+        v = ds["lnsp"]
+        v.delncattr("standard_name")
+        v.units = "1"
+        v.long_name = "logarithm of surface pressure"
+        v[0] = np.log(ps)
+    got = run_script(
+        baroc,
+        tmp_path,
+        path,
+        {
+            "z500": "geopotential at 500 hPa",
+            "thick": "thickness(1000 hPa to 500 hPa) with route geopotential",
+            "u850": "eastward_wind at 850 hPa",
+        },
+    )
+    # ps = exp(lnsp): the same checks as with ps itself (f4 storage of
+    # ln ps, about 11.5, keeps ps to some 0.01 %).
+    check_isothermal_case(got, zs, ps, p[-1])

@@ -140,6 +140,7 @@ impl<'e> Checker<'e> {
                         StatementKind::Recipe { .. } => "recipe",
                         StatementKind::About { .. } => "about",
                         StatementKind::Parameter { .. } => "parameter",
+                        StatementKind::Setting { .. } => "setting",
                         _ => "output",
                     };
                     self.error(format!("`{word}` belongs at the top level, not inside a block"), statement.span, "inside a block")
