@@ -8,12 +8,17 @@
 use std::path::{Path, PathBuf};
 use std::process::Command;
 
+/// The demo case, written once per test process: the tests run in parallel
+/// threads, and two writers of the same folder at once would race.
 fn directory() -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("baroc-streaming-tests-{}", std::process::id()));
-    if !dir.join("baroc-demo").join(baroc::demo::FILE_NAME).exists() {
-        baroc::demo::write(&dir.join("baroc-demo")).expect("demo case writes");
-    }
-    dir
+    static WRITTEN: std::sync::OnceLock<PathBuf> = std::sync::OnceLock::new();
+    WRITTEN
+        .get_or_init(|| {
+            let dir = std::env::temp_dir().join(format!("baroc-streaming-tests-{}", std::process::id()));
+            baroc::demo::write(&dir.join("baroc-demo")).expect("demo case writes");
+            dir
+        })
+        .clone()
 }
 
 fn run(limit: &str, recipe: &Path, data: &Path, out: &Path) -> String {
