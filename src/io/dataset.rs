@@ -318,8 +318,11 @@ impl Dataset {
     /// Reads a selection of a variable (by name or role), joining the parts
     /// of a variable split across files along time.
     pub fn read(&self, name: &str, selection: &Selection) -> Result<Field, DataError> {
+        let started = std::time::Instant::now();
         let field = self.read_as_stored(name, selection)?;
-        self.to_earth_relative(field, selection)
+        let field = self.to_earth_relative(field, selection)?;
+        super::timings::record_read(name, selection, started.elapsed(), (field.data.len() * std::mem::size_of::<f32>()) as u64);
+        Ok(field)
     }
 
     /// A grid-relative wind component (x_wind, y_wind, grid_eastward_wind,
