@@ -144,13 +144,22 @@ impl Case {
         }
     }
 
+    /// Reads through the run's store when sharing (the same variable and
+    /// selection read once per run, `SharedResults::read`), else directly.
+    fn read_data(&self, name: &str, selection: &Selection) -> Result<Field> {
+        Ok(match &self.shared {
+            Some(store) => store.read(&self.dataset, name, selection)?,
+            None => self.dataset.read(name, selection)?,
+        })
+    }
+
     fn selection_with_levels(&self, levels: Option<Vec<f64>>) -> Selection {
         Selection { levels, ..self.selection.clone() }
     }
 
     /// Reads a variable (by name or role) over all its levels.
     pub fn field(&self, name: &str) -> Result<Field> {
-        Ok(self.dataset.read(name, &self.selection)?)
+        self.read_data(name, &self.selection)
     }
 
     /// The levels (Pa) of a variable, by name or role.
@@ -166,7 +175,7 @@ impl Case {
         let mut needed: Vec<usize> = weights.terms.iter().map(|t| t.0).collect();
         needed.sort_unstable();
         needed.dedup();
-        let field = self.dataset.read(name, &self.selection_with_levels(Some(needed.iter().map(|&k| levels[k]).collect())))?;
+        let field = self.read_data(name, &self.selection_with_levels(Some(needed.iter().map(|&k| levels[k]).collect())))?;
         let remapped = vertical::LevelWeights {
             terms: weights.terms.iter().map(|&(k, w)| (needed.iter().position(|&n| n == k).expect("needed"), w)).collect(),
         };
@@ -285,7 +294,7 @@ impl Case {
             None => Ok(None),
             Some(info) => {
                 let name = info.name.clone();
-                let mut field = self.dataset.read(&name, &self.selection)?;
+                let mut field = self.read_data(&name, &self.selection)?;
                 let factor = crate::io::cf::pressure_factor(&field.units).unwrap_or(1.0);
                 if factor != 1.0 {
                     field.data.mapv_inplace(|p| (p as f64 * factor) as f32);
