@@ -423,6 +423,8 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
         if timings {
             eprintln!("timings: write {:.3} s", started.elapsed().as_secs_f64());
             eprintln!("timings: run command total {:.3} s", run_started.elapsed().as_secs_f64());
+            let (fresh, reused) = baroc::memory::large_block_bytes();
+            eprintln!("timings: large blocks {:.0} MB mapped fresh, {:.0} MB reused (src/memory.rs)", fresh as f64 / 1e6, reused as f64 / 1e6);
         }
         written.push(format!("wrote {} to {}\n", names.join(", "), path.display()));
     }

@@ -24,6 +24,17 @@
 //! Values are never affected: this decides only where bytes live.
 
 use std::alloc::{GlobalAlloc, Layout, System};
+use std::sync::atomic::{AtomicUsize, Ordering};
+
+static FRESH_BYTES: AtomicUsize = AtomicUsize::new(0);
+static REUSED_BYTES: AtomicUsize = AtomicUsize::new(0);
+
+/// Bytes of large blocks mapped fresh and bytes handed out again from the
+/// kept blocks, by every `Recycling` allocator of the process so far (for
+/// the split `BAROC_TIMINGS=1` prints).
+pub fn large_block_bytes() -> (usize, usize) {
+    (FRESH_BYTES.load(Ordering::Relaxed), REUSED_BYTES.load(Ordering::Relaxed))
+}
 
 /// Blocks from this size on are mapped and recycled here.
 pub const LARGE: usize = 1 << 20;
@@ -87,10 +98,14 @@ impl Recycling {
     /// A kept block of exactly `length` bytes, taken out of the store.
     fn take(&self, length: usize) -> Option<*mut u8> {
         let mut kept = self.lock();
-        let slot = kept.blocks.iter().position(|&(_, l)| l == length)?;
+        let Some(slot) = kept.blocks.iter().position(|&(_, l)| l == length) else {
+            FRESH_BYTES.fetch_add(length, Ordering::Relaxed);
+            return None;
+        };
         let (address, _) = kept.blocks[slot];
         kept.blocks[slot] = (0, 0);
         kept.bytes -= length;
+        REUSED_BYTES.fetch_add(length, Ordering::Relaxed);
         Some(address as *mut u8)
     }
 
