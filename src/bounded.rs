@@ -225,9 +225,14 @@ pub fn blocks_needed(request: &RunRequest, limit: u64) -> Result<usize, RunError
         return Ok(1);
     }
     let dataset = Dataset::open(&request.data_files).map_err(|e| RunError(format!("error: {e}")))?;
+    Ok(blocks_needed_for(&dataset, request, limit))
+}
+
+/// `blocks_needed` for the request's data already opened (`runner::open_data`).
+pub fn blocks_needed_for(dataset: &Dataset, request: &RunRequest, limit: u64) -> usize {
     let total = dataset.variables().find_map(|v| v.times.as_ref().map(|t| t.values.len())).unwrap_or(1);
     let steps = request.time_steps.as_ref().map_or(total, |s| s.len());
-    Ok(steps.div_ceil(steps_per_block(limit, time_step_bytes(&dataset))).max(1))
+    steps.div_ceil(steps_per_block(limit, time_step_bytes(dataset))).max(1)
 }
 
 #[cfg(test)]

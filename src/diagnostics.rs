@@ -144,6 +144,17 @@ impl Case {
         }
     }
 
+    /// Reads through the run's store when sharing (the same variable and
+    /// selection read once per run, `SharedResults::read`), else directly.
+    fn read_data(&self, name: &str, selection: &Selection) -> Result<Field> {
+        Ok(match &self.shared {
+            // With this case's constants: model-level data use them in the
+            // hydrostatic integral.
+            Some(store) => store.read(&self.dataset, name, selection, Some(&self.constants))?,
+            None => self.dataset.read_with(name, selection, Some(&self.constants))?,
+        })
+    }
+
     fn selection_with_levels(&self, levels: Option<Vec<f64>>) -> Selection {
         Selection { levels, ..self.selection.clone() }
     }
@@ -151,12 +162,6 @@ impl Case {
     /// Reads a variable (by name or role) over all its levels.
     pub fn field(&self, name: &str) -> Result<Field> {
         Ok(self.read_data(name, &self.selection)?)
-    }
-
-    /// Reads from the dataset with this case's constants (model-level data
-    /// use them in the hydrostatic integral).
-    fn read_data(&self, name: &str, selection: &Selection) -> std::result::Result<Field, crate::io::DataError> {
-        self.dataset.read_with(name, selection, Some(&self.constants))
     }
 
     /// The levels of a variable with `extra` pressures inserted, when the

@@ -17,6 +17,7 @@ pub mod figures;
 pub mod grid;
 pub mod io;
 pub mod lang;
+pub mod memory;
 pub mod kernel;
 pub mod mime;
 pub mod physics;

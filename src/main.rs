@@ -11,6 +11,11 @@ use baroc::diagnostics::{Case, Layer};
 use baroc::io::{Dataset, Selection};
 use baroc::runner::{RunRequest, TableFormat};
 
+// Large arrays on huge pages and recycled within the process (src/memory.rs):
+// page faults on fresh memory were most of a run's time.
+#[global_allocator]
+static ALLOCATOR: baroc::memory::Recycling = baroc::memory::Recycling::new();
+
 const CAUTION: &str = "Baroc is an analysis tool, not a warning service. For forecasts and warnings, defer to your national meteorological service and local practice.";
 
 #[derive(Parser)]
@@ -328,6 +333,7 @@ fn request(program: ProgramArgs, each_time: bool) -> Result<RunRequest, String> 
 }
 
 fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, each_time: bool, shard: Option<String>, memory_limit: Option<String>) -> Result<(), String> {
+    let run_started = std::time::Instant::now();
     // Every output is checked before anything is computed, and written
     // only when all of them were made: a run that fails leaves none.
     let targets: Vec<(&str, &Path)> = [("the NetCDF output", output.as_deref()), ("the report", report.as_deref())].into_iter().filter_map(|(what, p)| Some((what, p?))).collect();
@@ -346,15 +352,21 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
     // Without --memory-limit, a run writing a file streams by blocks of
     // time steps when its data would not fit in memory at once and its
     // program picks no time (src/bounded.rs); otherwise it runs whole.
+    // The data opened to size the blocks serve the run itself when it runs whole.
+    let mut opened = None;
     let memory_limit = match memory_limit {
         Some(text) => Some(baroc::bounded::parse_size(&text)?),
         None if output.is_some() && report.is_none() && !request.each_time && baroc::lang::parse(&request.source).is_ok_and(|p| baroc::bounded::streams_by_time(&p)) => {
             let limit = baroc::bounded::default_limit()?;
-            (baroc::bounded::blocks_needed(&request, limit).map_err(|e| e.0)? > 1).then_some(limit)
+            let dataset = baroc::runner::open_data(&request).map_err(|e| e.0)?;
+            let blocks = dataset.as_deref().map_or(1, |d| baroc::bounded::blocks_needed_for(d, &request, limit));
+            opened = Some(dataset);
+            (blocks > 1).then_some(limit)
         }
         None => None,
     };
     if let Some(limit) = memory_limit {
+        drop(opened.take());
         let Some(path) = &output else {
             return Err("error: --memory-limit writes the results block by block to a file: add --output, for example -o results.nc".into());
         };
@@ -363,6 +375,9 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
         }
         let attributes = shard_plan.as_ref().map(|p| p.attributes()).unwrap_or_default();
         let summary = baroc::bounded::run_to_file(&request, path, limit, attributes).map_err(|e| e.0)?;
+        if std::env::var_os("BAROC_TIMINGS").is_some_and(|v| !v.is_empty() && v != "0") {
+            eprintln!("timings: path: streaming, {} blocks of at most {} time steps; run command total {:.3} s", summary.blocks, summary.steps_per_block, run_started.elapsed().as_secs_f64());
+        }
         out(&format!(
             "wrote {} to {} ({} time steps in {} block{} of at most {})\n",
             summary.names.join(", "),
@@ -378,9 +393,27 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
     // benches/end_to_end.py (reading is lazy, so it falls inside evaluate).
     let timings = std::env::var_os("BAROC_TIMINGS").is_some_and(|v| !v.is_empty() && v != "0");
     let started = std::time::Instant::now();
-    let outcome = baroc::runner::run(&request).map_err(|e| e.0)?;
     if timings {
-        eprintln!("timings: evaluate (read + compute) {:.3} s", started.elapsed().as_secs_f64());
+        eprintln!("timings: path: whole run in memory (no streaming blocks)");
+        eprintln!("timings: before evaluating (arguments, sizing) {:.3} s", run_started.elapsed().as_secs_f64());
+    }
+    let outcome = match opened {
+        Some(dataset) => baroc::runner::run_opened(&request, dataset),
+        None => baroc::runner::run(&request),
+    }
+    .map_err(|e| e.0)?;
+    if timings {
+        let evaluate = started.elapsed().as_secs_f64();
+        let read = baroc::io::timings::totals();
+        eprintln!("timings: evaluate (read + compute) {evaluate:.3} s");
+        eprintln!(
+            "timings: read/unpack {:.3} s ({} reads, {:.1} MB, {} from the read cache), compute {:.3} s",
+            read.seconds,
+            read.reads,
+            read.bytes as f64 / 1e6,
+            read.cached,
+            (evaluate - read.seconds).max(0.0)
+        );
     }
     let mut outputs = baroc::atomic::Outputs::new();
     let mut written = Vec::new();
@@ -391,6 +424,9 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
         let names = baroc::runner::write_results_with(&staged, &outcome, &request, attributes).map_err(|e| e.0.replace(&staged.display().to_string(), &path.display().to_string()))?;
         if timings {
             eprintln!("timings: write {:.3} s", started.elapsed().as_secs_f64());
+            eprintln!("timings: run command total {:.3} s", run_started.elapsed().as_secs_f64());
+            let (fresh, reused) = baroc::memory::large_block_bytes();
+            eprintln!("timings: large blocks {:.0} MB mapped fresh, {:.0} MB reused (src/memory.rs)", fresh as f64 / 1e6, reused as f64 / 1e6);
         }
         written.push(format!("wrote {} to {}\n", names.join(", "), path.display()));
     }

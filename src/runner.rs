@@ -9,7 +9,7 @@ use std::sync::Arc;
 use rayon::prelude::*;
 
 use crate::grid::Field;
-use crate::io::writer::{write_fields, WriteOptions};
+use crate::io::writer::{write_named_fields, WriteOptions};
 use crate::io::{Dataset, Selection};
 use crate::lang::eval::{Evaluator, RecipeHeader};
 use crate::lang::value::{Series, Value};
@@ -109,19 +109,29 @@ fn collect(evaluator: &Evaluator, shown: Vec<(lang::Span, Value)>) -> Vec<NamedR
 /// own (in parallel, two at a time on two cores) and the fields joined
 /// along time; otherwise the whole program runs once.
 pub fn run(request: &RunRequest) -> Result<RunOutcome, RunError> {
+    run_opened(request, open_data(request)?)
+}
+
+/// Opens the request's data files as one dataset (None without files),
+/// with the program's `setting below_ground`, if any, agreeing with the
+/// command line's: the data are opened once, with that choice.
+pub fn open_data(request: &RunRequest) -> Result<Option<Arc<Dataset>>, RunError> {
+    if request.data_files.is_empty() {
+        return Ok(None);
+    }
     let program = lang::parse(&request.source).map_err(|d| rendered(&d, &request.source))?;
-    // The program's `setting below_ground`, if any, agreeing with the
-    // command line's: the data are opened once, with that choice.
     let below = lang::settings::below_ground_of(&program, crate::io::model_level_source::chosen_below_lowest_level()).map_err(|d| rendered(&[d], &request.source))?;
-    let dataset = if request.data_files.is_empty() {
-        None
-    } else {
-        let opened = match below {
-            Some(below) => Dataset::open_with(&request.data_files, below),
-            None => Dataset::open(&request.data_files),
-        };
-        Some(Arc::new(opened.map_err(|e| RunError(format!("error: {e}")))?))
+    let opened = match below {
+        Some(below) => Dataset::open_with(&request.data_files, below),
+        None => Dataset::open(&request.data_files),
     };
+    Ok(Some(Arc::new(opened.map_err(|e| RunError(format!("error: {e}")))?)))
+}
+
+/// `run` on the request's data already opened by `open_data` (so a caller
+/// that opened them to size the run does not open them again).
+pub fn run_opened(request: &RunRequest, dataset: Option<Arc<Dataset>>) -> Result<RunOutcome, RunError> {
+    let program = lang::parse(&request.source).map_err(|d| rendered(&d, &request.source))?;
     let all_steps = dataset.as_ref().and_then(|d| d.variables().find_map(|v| v.times.as_ref().map(|t| t.values.len()))).unwrap_or(1);
     let step_list: Vec<usize> = request.time_steps.clone().unwrap_or_else(|| (0..all_steps).collect());
     let steps = step_list.len();
@@ -242,19 +252,14 @@ fn model_level_provenance(dataset: Option<&Dataset>) -> Vec<(String, String)> {
 
 /// `write_results` with further global attributes (a shard's record).
 pub fn write_results_with(path: &Path, outcome: &RunOutcome, request: &RunRequest, attributes: Vec<(String, String)>) -> Result<Vec<String>, RunError> {
-    let mut fields: Vec<Field> = Vec::new();
+    // Each result is written under its name as it stands (no copy of the data).
+    let mut fields: Vec<(String, &Field)> = Vec::new();
     for r in &outcome.results {
         match &r.value {
-            Value::Scalar(f) => {
-                let mut f = (**f).clone();
-                f.name = r.name.clone();
-                fields.push(f);
-            }
+            Value::Scalar(f) => fields.push((r.name.clone(), &**f)),
             Value::Vector(w) => {
                 for (component, f) in [("eastward", &w.eastward), ("northward", &w.northward)] {
-                    let mut f = f.clone();
-                    f.name = format!("{}_{component}", r.name);
-                    fields.push(f);
+                    fields.push((format!("{}_{component}", r.name), f));
                 }
             }
             _ => {}
@@ -263,7 +268,7 @@ pub fn write_results_with(path: &Path, outcome: &RunOutcome, request: &RunReques
     if fields.is_empty() {
         return Err(RunError("error: the script produced no field to write (bind one with `let`, or declare an `output`)".into()));
     }
-    let refs: Vec<&Field> = fields.iter().collect();
+    let refs: Vec<(&str, &Field)> = fields.iter().map(|(name, f)| (name.as_str(), *f)).collect();
     let overrides: Vec<String> = request.overrides.iter().map(|(k, v)| format!("--set {k}={v}")).collect();
     let options = WriteOptions {
         history: format!(
@@ -281,8 +286,8 @@ pub fn write_results_with(path: &Path, outcome: &RunOutcome, request: &RunReques
             .collect(),
         ..WriteOptions::default()
     };
-    write_fields(path, &refs, &options).map_err(|e| RunError(format!("error: {e}")))?;
-    Ok(fields.iter().map(|f| f.name.clone()).collect())
+    write_named_fields(path, &refs, &options).map_err(|e| RunError(format!("error: {e}")))?;
+    Ok(fields.into_iter().map(|(name, _)| name).collect())
 }
 
 /// How tables are printed.

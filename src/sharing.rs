@@ -25,13 +25,18 @@ use std::sync::atomic::{AtomicU64, Ordering};
 use std::sync::{Arc, Mutex};
 
 use crate::grid::{Field, VectorField};
-use crate::io::Dataset;
+use crate::io::{DataError, Dataset, Selection};
 
 /// Default bound on the bytes of field data kept for sharing: enough for
 /// every intermediate of the thermal-wind budget over a few time steps of a
 /// global 0.25-degree grid (about 4 MB per field and time step), small
 /// beside the memory such a run needs anyway.
 pub const DEFAULT_BUDGET: u64 = 1 << 30;
+
+/// Reads larger than `budget / READ_SHARE` bytes are not kept: a read of
+/// many levels is rarely asked for twice with the same levels, and keeping
+/// it would hold its memory for the rest of the run.
+pub const READ_SHARE: u64 = 16;
 
 /// A stored value.
 #[derive(Clone)]
@@ -110,6 +115,33 @@ impl SharedResults {
     /// constants and settings, written out in full by the caller).
     pub fn key(dataset: &Arc<Dataset>, context: &str, operation: &str) -> String {
         format!("{:p}|{context}|{operation}", Arc::as_ptr(dataset))
+    }
+
+    /// A read of `name` (a variable or a role) under `selection`: served
+    /// from the store when this run has read the same variable, levels,
+    /// times and region of the same dataset before (the same bits: a read
+    /// is deterministic and the store is emptied between runs), otherwise
+    /// read and kept when it fits (see `READ_SHARE`).
+    pub fn read(&self, dataset: &Arc<Dataset>, name: &str, selection: &Selection, constants: Option<&crate::constants::Constants>) -> Result<Field, DataError> {
+        let variable = dataset.resolve(name)?.name.clone();
+        // The constants belong to the key: model-level data computed by the
+        // hydrostatic integral depend on them.
+        let key = Self::key(dataset, &format!("{selection:?} {constants:?}"), &format!("read {variable:?}"));
+        if let Some(Shared::Field(field)) = self.lock().values.get(&key).cloned() {
+            crate::io::timings::record_cached(&variable, selection);
+            return Ok(field);
+        }
+        let field = dataset.read_with(&variable, selection, constants)?;
+        let mut s = self.lock();
+        let size = (field.data.len() * std::mem::size_of::<f32>()) as u64;
+        if size <= self.budget / READ_SHARE && s.bytes + size <= self.budget && !s.values.contains_key(&key) {
+            if !s.datasets.iter().any(|d| Arc::ptr_eq(d, dataset)) {
+                s.datasets.push(dataset.clone());
+            }
+            s.bytes += size;
+            s.values.insert(key, Shared::Field(field.clone()));
+        }
+        Ok(field)
     }
 
     /// The stored value for `key`, or `compute()`'s, stored when it fits.

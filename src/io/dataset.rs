@@ -360,8 +360,11 @@ impl Dataset {
     /// where a source computes a variable, such as the hydrostatic integral
     /// on model levels; None: the default constants).
     pub fn read_with(&self, name: &str, selection: &Selection, constants: Option<&crate::constants::Constants>) -> Result<Field, DataError> {
+        let started = std::time::Instant::now();
         let field = self.read_as_stored(name, selection, constants)?;
-        self.to_earth_relative(field, selection, constants)
+        let field = self.to_earth_relative(field, selection, constants)?;
+        super::timings::record_read(name, selection, started.elapsed(), (field.data.len() * std::mem::size_of::<f32>()) as u64);
+        Ok(field)
     }
 
     /// A grid-relative wind component (x_wind, y_wind, grid_eastward_wind,

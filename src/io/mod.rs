@@ -21,6 +21,7 @@ pub mod model_level_source;
 pub mod model_levels;
 pub mod netcdf_thread;
 pub mod projected;
+pub mod timings;
 pub mod writer;
 
 pub use dataset::{Dataset, Role};

@@ -242,6 +242,45 @@ impl NetcdfSource {
     }
 }
 
+/// The position of an axis in the canonical order [time, level, latitude,
+/// longitude].
+fn canonical(axis: Axis) -> usize {
+    match axis {
+        Axis::Time => 0,
+        Axis::Pressure => 1,
+        Axis::Latitude => 2,
+        Axis::Longitude => 3,
+    }
+}
+
+/// The extents of a selection that one read delivers in canonical order:
+/// every wanted index set is one increasing contiguous run, and the
+/// variable's dimensions come in canonical order (ignored singleton
+/// dimensions anywhere). None otherwise.
+fn direct_extents(layout: &Layout, indices: [&[usize]; 4]) -> Option<Vec<Extent>> {
+    let mut last = None;
+    let mut extents = Vec::with_capacity(layout.axes.len());
+    for axis in &layout.axes {
+        match axis {
+            None => extents.push(Extent::from(0..1)),
+            Some(axis) => {
+                let position = canonical(*axis);
+                if last.is_some_and(|l| l >= position) {
+                    return None;
+                }
+                last = Some(position);
+                let wanted = indices[position];
+                let first = *wanted.first()?;
+                if wanted.windows(2).any(|w| w[1] != w[0] + 1) {
+                    return None;
+                }
+                extents.push(Extent::from(first..first + wanted.len()));
+            }
+        }
+    }
+    Some(extents)
+}
+
 /// Contiguous runs of indices, as (first index, length).
 fn runs(indices: &[usize]) -> Vec<(usize, usize)> {
     let mut out: Vec<(usize, usize)> = Vec::new();
@@ -343,22 +382,40 @@ impl NetcdfSource {
         let file = netcdf::open(&self.path).map_err(|e| netcdf_error(&self.path, e))?;
         let variable = file.variable(name).ok_or_else(|| netcdf_error(&self.path, format!("variable {name} vanished")))?;
         let shape = (time_indices.len(), level_indices.len(), lat_indices.len(), lon_indices.len());
-        let mut data = Array4::<f32>::zeros(shape);
-
-        let wanted = |axis: Axis| -> &Vec<usize> {
-            match axis {
-                Axis::Time => &time_indices,
-                Axis::Pressure => &level_indices,
-                Axis::Latitude => &lat_indices,
-                Axis::Longitude => &lon_indices,
+        let indices: [&[usize]; 4] = [&time_indices, &level_indices, &lat_indices, &lon_indices];
+        let data = match direct_extents(layout, indices) {
+            // The common case: one block, dimensions in canonical order. The
+            // library writes straight into the array's own buffer (never
+            // zeroed), in the array's order: no second buffer, no copy.
+            Some(extents) => {
+                let values: Vec<f32> = variable.get_values::<f32, _>(extents).map_err(|e| netcdf_error(&self.path, e))?;
+                Array4::from_shape_vec(shape, values).map_err(|e| netcdf_error(&self.path, e))?
             }
+            None => self.read_blocks(&variable, layout, shape, indices)?,
         };
-        let canonical = |axis: Axis| match axis {
-            Axis::Time => 0,
-            Axis::Pressure => 1,
-            Axis::Latitude => 2,
-            Axis::Longitude => 3,
+
+        let times = info.times.as_ref().map(|t| t.select(&time_indices));
+        let levels = info.levels.as_ref().map(|l| level_indices.iter().map(|&i| l[i]).collect());
+        let out_grid = if let (Some(_), Some(projected)) = (&selection.region, &grid.projection) {
+            Arc::new(super::projected::sub_grid(projected, &lat_indices, &lon_indices))
+        } else if selection.region.is_some() {
+            Arc::new(Grid::new(lat_indices.iter().map(|&j| grid.latitudes[j]).collect(), out_lons))
+        } else {
+            grid.clone()
         };
+        let mut field = Field::new(name, info.units.clone(), data, times, levels, out_grid).map_err(DataError::Invalid)?;
+        field.long_name = info.long_name.clone().unwrap_or_else(|| name.to_string());
+        field.standard_name = info.standard_name.clone();
+        Ok((field, packing))
+    }
+
+    /// Reads a selection made of several blocks (a box across the seam of
+    /// the longitudes, levels that are not neighbours) or stored in another
+    /// order than [time, level, latitude, longitude]: one read per block,
+    /// each placed into the array at its offsets.
+    fn read_blocks(&self, variable: &netcdf::Variable, layout: &Layout, shape: (usize, usize, usize, usize), indices: [&[usize]; 4]) -> Result<Array4<f32>, DataError> {
+        let mut data = Array4::<f32>::zeros(shape);
+        let wanted = |axis: Axis| -> &[usize] { indices[canonical(axis)] };
         // The runs along each file dimension, and the Cartesian product of
         // them: one read per block.
         let dim_runs: Vec<Vec<(usize, usize)>> = layout.axes.iter().map(|a| a.map_or(vec![(0, 1)], |a| runs(wanted(a)))).collect();
@@ -424,20 +481,7 @@ impl NetcdfSource {
                 break;
             }
         }
-
-        let times = info.times.as_ref().map(|t| t.select(&time_indices));
-        let levels = info.levels.as_ref().map(|l| level_indices.iter().map(|&i| l[i]).collect());
-        let out_grid = if let (Some(_), Some(projected)) = (&selection.region, &grid.projection) {
-            Arc::new(super::projected::sub_grid(projected, &lat_indices, &lon_indices))
-        } else if selection.region.is_some() {
-            Arc::new(Grid::new(lat_indices.iter().map(|&j| grid.latitudes[j]).collect(), out_lons))
-        } else {
-            grid.clone()
-        };
-        let mut field = Field::new(name, info.units.clone(), data, times, levels, out_grid).map_err(DataError::Invalid)?;
-        field.long_name = info.long_name.clone().unwrap_or_else(|| name.to_string());
-        field.standard_name = info.standard_name.clone();
-        Ok((field, packing))
+        Ok(data)
     }
 }
 
@@ -452,6 +496,10 @@ fn unpack(data: &mut Array4<f32>, packing: Packing) {
     let missing = packing.missing_value.map(|v| v as f32);
     let (lo, hi) = (packing.valid_min.unwrap_or(f64::NEG_INFINITY), packing.valid_max.unwrap_or(f64::INFINITY));
     let trivial = scale == 1.0 && offset == 0.0;
+    if trivial && fill.is_none() && missing.is_none() && lo == f64::NEG_INFINITY && hi == f64::INFINITY {
+        // Nothing to unpack or mask: every value would map to itself.
+        return;
+    }
     data.par_mapv_inplace(|raw| {
         if Some(raw) == fill || Some(raw) == missing || (raw as f64) < lo || (raw as f64) > hi {
             f32::NAN

@@ -43,31 +43,39 @@ fn write_error(path: &Path, e: impl std::fmt::Display) -> DataError {
 /// axis gets its own dimension (`pressure`, `pressure_2`, ...). Fails, leaving
 /// no file behind, on a grid mismatch, a duplicate name, or an I/O error.
 pub fn write_fields(path: &Path, fields: &[&Field], options: &WriteOptions) -> Result<(), DataError> {
-    let Some(first) = fields.first() else {
+    let named: Vec<(&str, &Field)> = fields.iter().map(|f| (f.name.as_str(), *f)).collect();
+    write_named_fields(path, &named, options)
+}
+
+/// As `write_fields`, each field written under the name given beside it
+/// (the field itself is not renamed, so results are written without a copy).
+pub fn write_named_fields(path: &Path, named: &[(&str, &Field)], options: &WriteOptions) -> Result<(), DataError> {
+    let Some(&(first_name, first)) = named.first() else {
         return Err(DataError::Invalid("nothing to write: no fields".into()));
     };
-    for f in fields {
+    for &(name, f) in named {
         if f.grid != first.grid {
             return Err(DataError::GridMismatch {
-                first: first.name.clone(),
+                first: first_name.to_string(),
                 first_grid: first.grid.describe(),
-                second: f.name.clone(),
+                second: name.to_string(),
                 second_grid: f.grid.describe(),
             });
         }
     }
-    for (i, a) in fields.iter().enumerate() {
-        if fields[..i].iter().any(|b| b.name == a.name) {
-            return Err(DataError::Invalid(format!("two results are both named `{}`", a.name)));
+    for (i, (a, _)) in named.iter().enumerate() {
+        if named[..i].iter().any(|(b, _)| b == a) {
+            return Err(DataError::Invalid(format!("two results are both named `{a}`")));
         }
     }
     let temporary = crate::atomic::temporary_beside(path).map_err(|e| write_error(path, e))?;
-    super::netcdf_thread::call(|| write_into(&temporary, fields, options).map_err(|e| e.to_string())).map_err(|e| write_error(path, e))?;
+    super::netcdf_thread::call(|| write_into(&temporary, named, options).map_err(|e| e.to_string())).map_err(|e| write_error(path, e))?;
     crate::atomic::publish(temporary, path).map_err(|e| write_error(path, e))?;
     Ok(())
 }
 
-fn write_into(path: &Path, fields: &[&Field], options: &WriteOptions) -> Result<(), Box<dyn std::error::Error>> {
+fn write_into(path: &Path, named: &[(&str, &Field)], options: &WriteOptions) -> Result<(), Box<dyn std::error::Error>> {
+    let fields: Vec<&Field> = named.iter().map(|&(_, f)| f).collect();
     let mut file = match options.format {
         Format::Netcdf4 => netcdf::create(path)?,
         Format::Classic => netcdf::create_with(path, netcdf::Options::empty())?,
@@ -90,7 +98,7 @@ fn write_into(path: &Path, fields: &[&Field], options: &WriteOptions) -> Result<
     // Distinct level sets and time axes each get a dimension.
     let mut level_sets: Vec<Vec<f64>> = Vec::new();
     let mut time_axes: Vec<crate::grid::TimeAxis> = Vec::new();
-    for f in fields {
+    for f in &fields {
         if let Some(l) = &f.levels {
             if !level_sets.contains(l) {
                 level_sets.push(l.clone());
@@ -163,7 +171,7 @@ fn write_into(path: &Path, fields: &[&Field], options: &WriteOptions) -> Result<
         v.put_attribute("axis", "T")?;
     }
     let mut dims_of: Vec<Vec<String>> = Vec::new();
-    for f in fields {
+    for &(name, f) in named {
         let mut dims = Vec::new();
         if let Some(t) = &f.times {
             dims.push(suffixed("time", time_axes.iter().position(|x| x == t).expect("collected")));
@@ -174,8 +182,16 @@ fn write_into(path: &Path, fields: &[&Field], options: &WriteOptions) -> Result<
         dims.push("latitude".into());
         dims.push("longitude".into());
         let dim_refs: Vec<&str> = dims.iter().map(String::as_str).collect();
-        let mut v = file.add_variable::<f32>(&f.name, &dim_refs)?;
-        v.set_fill_value(FILL_VALUE)?;
+        let mut v = file.add_variable::<f32>(name, &dim_refs)?;
+        // Every value of the variable is written below, so netCDF's
+        // pre-filling of its storage with the fill value would be written
+        // only to be overwritten: no-fill mode. _FillValue is still set as
+        // an attribute, so readers see the missing values as missing.
+        // SAFETY (of set_nofill, which the netcdf crate marks unsafe because
+        // unwritten parts of a no-fill variable read as whatever the disk
+        // held): the loop below writes the whole variable before closing.
+        unsafe { v.set_nofill()? };
+        v.put_attribute("_FillValue", FILL_VALUE)?;
         v.put_attribute("units", crate::units::spelling(&f.units).as_str())?;
         v.put_attribute("long_name", f.long_name.as_str())?;
         if let Some(s) = &f.standard_name {
@@ -201,9 +217,9 @@ fn write_into(path: &Path, fields: &[&Field], options: &WriteOptions) -> Result<
     for (i, t) in time_axes.iter().enumerate() {
         file.variable_mut(&suffixed("time", i)).expect("defined").put_values(&t.values, ..)?;
     }
-    for f in fields {
+    for &(name, f) in named {
         let filled = f.data.mapv(|x| if x.is_nan() { FILL_VALUE } else { x });
-        let mut v = file.variable_mut(&f.name).expect("defined");
+        let mut v = file.variable_mut(name).expect("defined");
         match (f.times.is_some(), f.levels.is_some()) {
             (true, true) => v.put(filled.view(), ..)?,
             (true, false) => v.put(filled.index_axis(ndarray::Axis(1), 0), ..)?,

@@ -1,0 +1,76 @@
+//! What reading cost in this process: wall time spent in `Dataset::read`
+//! (the netCDF or GRIB2 read and its unpacking), the bytes delivered, and how
+//! many reads were served from the run's read cache instead. For the split a
+//! `baroc run` prints under `BAROC_TIMINGS=1` (benches/end_to_end.py); with
+//! `BAROC_TIMINGS=2` every read is also listed on stderr as it ends.
+//!
+//! Counters only: nothing here changes what is read or computed.
+
+use std::sync::atomic::{AtomicU64, Ordering};
+use std::time::Duration;
+
+use super::Selection;
+
+static NANOSECONDS: AtomicU64 = AtomicU64::new(0);
+static BYTES: AtomicU64 = AtomicU64::new(0);
+static READS: AtomicU64 = AtomicU64::new(0);
+static CACHED: AtomicU64 = AtomicU64::new(0);
+
+/// Totals since the process started.
+#[derive(Debug, Clone, Copy, PartialEq, Default)]
+pub struct ReadTotals {
+    /// Wall time inside reads, summed over reads (reads from several threads
+    /// at once would count twice; a run reads from one thread at a time).
+    pub seconds: f64,
+    /// Bytes of field data delivered by reads from the files.
+    pub bytes: u64,
+    /// Reads that went to the files.
+    pub reads: u64,
+    /// Reads served from the run's read cache.
+    pub cached: u64,
+}
+
+fn verbose() -> bool {
+    std::env::var_os("BAROC_TIMINGS").is_some_and(|v| v == "2")
+}
+
+/// Records one read that went to the files.
+pub fn record_read(name: &str, selection: &Selection, elapsed: Duration, bytes: u64) {
+    NANOSECONDS.fetch_add(elapsed.as_nanos() as u64, Ordering::Relaxed);
+    BYTES.fetch_add(bytes, Ordering::Relaxed);
+    READS.fetch_add(1, Ordering::Relaxed);
+    if verbose() {
+        eprintln!("read: {name} {} ({:.1} MB) in {:.3} s", describe(selection), bytes as f64 / 1e6, elapsed.as_secs_f64());
+    }
+}
+
+/// Records one read served from the run's read cache.
+pub fn record_cached(name: &str, selection: &Selection) {
+    CACHED.fetch_add(1, Ordering::Relaxed);
+    if verbose() {
+        eprintln!("read: {name} {} from the read cache", describe(selection));
+    }
+}
+
+fn describe(selection: &Selection) -> String {
+    let levels = match &selection.levels {
+        Some(l) => format!("{} level{}", l.len(), if l.len() == 1 { "" } else { "s" }),
+        None => "all levels".into(),
+    };
+    let times = match &selection.times {
+        Some(t) => format!("{} time step{}", t.len(), if t.len() == 1 { "" } else { "s" }),
+        None => "all times".into(),
+    };
+    let region = if selection.region.is_some() { ", a region" } else { "" };
+    format!("{levels}, {times}{region}")
+}
+
+/// The totals so far.
+pub fn totals() -> ReadTotals {
+    ReadTotals {
+        seconds: NANOSECONDS.load(Ordering::Relaxed) as f64 * 1e-9,
+        bytes: BYTES.load(Ordering::Relaxed),
+        reads: READS.load(Ordering::Relaxed),
+        cached: CACHED.load(Ordering::Relaxed),
+    }
+}
