@@ -387,9 +387,13 @@ fn spread_over_bitmap(bits: &[u8], out: &mut [f32], values: usize) {
 fn unpack_simple(simple: &Simple, payload: &[u8], out: &mut [f32]) -> Result<(), UnpackError> {
     let Simple { scale, bits, .. } = *simple;
     if bits == 0 {
-        // A constant field: every value is the reference (template 5.0
-        // note: bits 0 packs nothing in section 7).
-        out.fill(scale.apply(0.0));
+        // A constant field: nothing is packed in section 7 and every value
+        // is the reference value R itself, unscaled. Regulation 92.9.4
+        // would give R / 10^D, but ecCodes writes a constant field as R =
+        // the value whatever D says, and reads it back as R; Baroc reads
+        // such files as ecCodes does (checked in
+        // tests/python/test_grib2_eccodes.py with D = 3).
+        out.fill(scale.reference as f32);
         return Ok(());
     }
     let needed = (out.len() * bits as usize).div_ceil(8);
@@ -631,8 +635,9 @@ fn unpack_ccsds(simple: &Simple, section5: &[u8], payload: &[u8], out: &mut [f32
     let block_size = octet(section5, 23)? as usize;
     let interval = unsigned(section5, 24, 2)? as usize;
     if bits == 0 {
-        // A constant field; nothing is coded (as for simple packing).
-        out.fill(scale.apply(0.0));
+        // A constant field; nothing is coded, the value is R (as for
+        // simple packing, and as ecCodes reads it).
+        out.fill(scale.reference as f32);
         return Ok(());
     }
     if out.is_empty() {
@@ -957,10 +962,11 @@ mod tests {
 
     #[test]
     fn constant_fields_and_bitmaps_give_the_reference_and_nan() {
-        // Bits 0: every value is R / 10^D (template 5.0, no packed data).
+        // Bits 0: every value is R itself, as ecCodes reads it (see
+        // `unpack_simple`), even with D set.
         let present = [true, false, true, true, false, false, true, true, true, false, true];
         let n = present.iter().filter(|&&p| p).count();
-        let s5 = section5(0, n, 273.15, 0, 0, 0, &[]);
+        let s5 = section5(0, n, 273.15, 0, 2, 0, &[]);
         let got = ours(&s5, &bitmap(&present), &section(7, &[]), present.len()).unwrap();
         for (g, &p) in got.iter().zip(&present) {
             assert!(if p { *g == 273.15f32 } else { g.is_nan() });
