@@ -299,6 +299,17 @@ impl<'a> BitReader<'a> {
         }
     }
 
+    /// Moves to `bit` bits from the start.
+    fn seek(&mut self, bit: usize) {
+        self.next = bit >> 3;
+        self.window = 0;
+        self.have = 0;
+        self.refill();
+        let skip = (bit & 7) as u32;
+        self.window <<= skip;
+        self.have -= skip;
+    }
+
     /// Skips to the next byte boundary.
     fn align(&mut self) {
         let skip = self.have % 8;
@@ -744,16 +755,20 @@ fn unpack_ccsds(simple: &Simple, section5: &[u8], payload: &[u8], out: &mut [f32
                 residuals[0] = reader.read(bits);
                 first = 1;
             }
+            // Refilled only when a codeword runs past the window (the
+            // slow path), not checked per sample.
+            reader.refill();
             for r in residuals[first..block_size].iter_mut() {
-                if reader.have < 32 {
-                    reader.refill();
-                }
                 *r = reader.fundamental_sequence()?;
             }
             if k > 0 {
-                for r in residuals[first..block_size].iter_mut() {
-                    *r = (*r << k) | reader.read(k);
+                // The k low bits of each sample follow one another: read
+                // each from its own offset (no chain through the reader).
+                let start = reader.position();
+                for (i, r) in residuals[first..block_size].iter_mut().enumerate() {
+                    *r = (*r << k) | bits_at(payload, start + i * k as usize, k);
                 }
+                reader.seek(start + (block_size - first) * k as usize);
             }
         }
         if reader.overrun() {
