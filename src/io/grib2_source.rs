@@ -28,12 +28,14 @@
 use std::fs::File;
 use std::os::unix::fs::FileExt;
 use std::path::{Path, PathBuf};
+use std::sync::atomic::{AtomicUsize, Ordering};
 use std::sync::Arc;
 
 use ndarray::{Array4, Axis};
 use rayon::prelude::*;
 
 use super::grib2::{self, FieldIndex, GridDefinition, LatLonGrid, Span};
+use super::grib2_unpack;
 use super::model_level_source::{ModelLevelStore, ModelLevelVariable};
 use super::{DataError, DataSource, Selection, VariableInfo};
 use crate::physics::model_levels::HybridCoefficients;
@@ -557,17 +559,26 @@ impl GribSource {
     }
 
     fn read_span(&self, file: usize, span: Span) -> Result<Vec<u8>, DataError> {
-        let mut buffer = vec![0u8; span.length as usize];
-        self.files[file].read_exact_at(&mut buffer, span.offset).map_err(|e| DataError::Open {
-            path: self.paths[file].display().to_string(),
-            message: format!("reading bytes {}..{}: {e}", span.offset, span.offset + span.length),
-        })?;
+        let mut buffer = Vec::new();
+        self.read_span_into(file, span, &mut buffer)?;
         Ok(buffer)
     }
 
+    /// Reads a span into a buffer reused across messages.
+    fn read_span_into(&self, file: usize, span: Span, buffer: &mut Vec<u8>) -> Result<(), DataError> {
+        buffer.resize(span.length as usize, 0);
+        self.files[file].read_exact_at(buffer, span.offset).map_err(|e| DataError::Open {
+            path: self.paths[file].display().to_string(),
+            message: format!("reading bytes {}..{}: {e}", span.offset, span.offset + span.length),
+        })
+    }
+
     /// Decodes one message into `out` (one horizontal slice, in the grid's
-    /// order).
-    fn decode_into(&self, located: &Located, out: &mut [f32]) -> Result<(), DataError> {
+    /// order): with Baroc's own unpackers (`grib2_unpack`) for simple,
+    /// complex, spatially differenced and CCSDS packing, through the `grib`
+    /// crate for the others (JPEG 2000, PNG, run-length) and for what the
+    /// own unpackers do not implement. Damaged data are an error either way.
+    fn decode_into(&self, located: &Located, out: &mut [f32], scratch: &mut DecodeScratch) -> Result<(), DataError> {
         let field = &located.field;
         let fail = |e: String| {
             DataError::Invalid(format!(
@@ -579,6 +590,41 @@ impl GribSource {
         };
         let Layout { ni, nj, reverse_columns, column_major, reverse_rows } = self.layout;
         let points = ni * nj;
+        let in_order = !reverse_columns && !column_major && !reverse_rows;
+        if grib2_unpack::covers(field.packing) {
+            // Sections 5 to 7 usually follow each other: one read.
+            let (s5, s6, s7) = (field.section5, field.section6, field.section7);
+            let contiguous = s5.offset + s5.length == s6.offset && s6.offset + s6.length == s7.offset;
+            let (section5, section6, section7): (&[u8], &[u8], &[u8]) = if contiguous {
+                self.read_span_into(located.file, Span { offset: s5.offset, length: s5.length + s6.length + s7.length }, &mut scratch.bytes)?;
+                let (a, rest) = scratch.bytes.split_at(s5.length as usize);
+                let (b, c) = rest.split_at(s6.length as usize);
+                (a, b, c)
+            } else {
+                self.read_span_into(located.file, s5, &mut scratch.bytes)?;
+                self.read_span_into(located.file, s6, &mut scratch.bitmap)?;
+                self.read_span_into(located.file, s7, &mut scratch.data)?;
+                (&scratch.bytes, &scratch.bitmap, &scratch.data)
+            };
+            let target: &mut [f32] = if in_order {
+                out
+            } else {
+                scratch.values.resize(points, 0.0);
+                &mut scratch.values
+            };
+            match grib2_unpack::unpack(section5, section6, section7, target, &mut scratch.unpack) {
+                Ok(()) => {
+                    OWN_UNPACKER_MESSAGES.fetch_add(1, Ordering::Relaxed);
+                    if !in_order {
+                        reorder(&self.layout, scratch.values.iter().copied(), out);
+                    }
+                    return Ok(());
+                }
+                Err(grib2_unpack::UnpackError::Damaged(e)) => return Err(fail(e)),
+                // Not implemented here: the grib crate may read it.
+                Err(grib2_unpack::UnpackError::Unsupported(_)) => {}
+            }
+        }
         let mut section5 = self.read_span(located.file, field.section5)?;
         let section7 = self.read_span(located.file, field.section7)?;
         if field.packing == 41 {
@@ -588,25 +634,56 @@ impl GribSource {
             .map_err(|e| fail(e.to_string()))?;
         let values = decoder.dispatch().map_err(|e| fail(e.to_string()))?;
         let mut count = 0usize;
-        if !reverse_columns && !column_major && !reverse_rows {
+        if in_order {
             for (slot, v) in out.iter_mut().zip(values) {
                 *slot = v;
                 count += 1;
             }
         } else {
-            for (p, v) in values.take(points).enumerate() {
-                let (j, i) = if column_major { (p % nj, p / nj) } else { (p / ni, p % ni) };
-                let column = if reverse_columns { ni - 1 - i } else { i };
-                let row = if reverse_rows { nj - 1 - j } else { j };
-                out[row * ni + column] = v;
-                count += 1;
-            }
+            count = reorder(&self.layout, values.take(points), out);
         }
         if count != points {
             return Err(fail(format!("it holds {count} values for a grid of {points} points")));
         }
+        CRATE_UNPACKER_MESSAGES.fetch_add(1, Ordering::Relaxed);
         Ok(())
     }
+}
+
+/// Buffers one decoding thread reuses from message to message.
+#[derive(Default)]
+struct DecodeScratch {
+    bytes: Vec<u8>,
+    bitmap: Vec<u8>,
+    data: Vec<u8>,
+    /// Values in scan order, when the scan differs from the grid's order.
+    values: Vec<f32>,
+    unpack: grib2_unpack::Scratch,
+}
+
+/// Messages decoded so far in this process by Baroc's own unpackers and by
+/// the `grib` crate (for benchmarks and tests: which unpacker ran).
+static OWN_UNPACKER_MESSAGES: AtomicUsize = AtomicUsize::new(0);
+static CRATE_UNPACKER_MESSAGES: AtomicUsize = AtomicUsize::new(0);
+
+/// (messages unpacked by `io::grib2_unpack`, messages unpacked by the
+/// `grib` crate) since the process started.
+pub fn unpacker_counts() -> (usize, usize) {
+    (OWN_UNPACKER_MESSAGES.load(Ordering::Relaxed), CRATE_UNPACKER_MESSAGES.load(Ordering::Relaxed))
+}
+
+/// Puts values in scan order into the grid's order; returns how many.
+fn reorder(layout: &Layout, values: impl Iterator<Item = f32>, out: &mut [f32]) -> usize {
+    let Layout { ni, nj, reverse_columns, column_major, reverse_rows } = *layout;
+    let mut count = 0;
+    for (p, v) in values.enumerate() {
+        let (j, i) = if column_major { (p % nj, p / nj) } else { (p / ni, p % ni) };
+        let column = if reverse_columns { ni - 1 - i } else { i };
+        let row = if reverse_rows { nj - 1 - j } else { j };
+        out[row * ni + column] = v;
+        count += 1;
+    }
+    count
 }
 
 /// PNG packing (template 5.41) stores each value as one pixel, and a PNG
@@ -773,9 +850,15 @@ impl GribSource {
         let (nj, ni) = (self.layout.nj, self.layout.ni);
         let wanted: Vec<&Located> =
             time_indices.iter().flat_map(|&t| level_indices.iter().map(move |&l| &table.messages[t * table.levels.len() + l])).collect();
-        let mut data = Array4::<f32>::from_elem((time_indices.len(), level_indices.len(), nj, ni), f32::NAN);
+        // Zeros from fresh pages, huge pages asked for (no pass writing
+        // them, fewer page faults); every slice is
+        // then overwritten by its message or the read fails.
+        let mut data: Array4<f32> = crate::physics::allocation::zeroed((time_indices.len(), level_indices.len(), nj, ni));
         let slices = data.as_slice_mut().expect("a new array is contiguous");
-        slices.par_chunks_mut(nj * ni).zip(wanted.par_iter()).try_for_each(|(out, located)| self.decode_into(located, out))?;
+        slices
+            .par_chunks_mut(nj * ni)
+            .zip(wanted.par_iter())
+            .try_for_each_init(DecodeScratch::default, |scratch, (out, located)| self.decode_into(located, out, scratch))?;
 
         let mut grid = self.grid.clone();
         if let (Some(region), Some(projected)) = (&selection.region, &self.grid.projection) {

@@ -15,6 +15,7 @@ pub mod dataset;
 pub mod file_check;
 pub mod grib2;
 pub mod grib2_source;
+pub mod grib2_unpack;
 pub mod grib2_writer;
 pub mod netcdf_source;
 pub mod model_level_source;

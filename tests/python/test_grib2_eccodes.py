@@ -25,7 +25,7 @@ A = 6_371_000.0  # IUGG mean radius, as Baroc's constants
 MISSING = 9999.0
 
 
-def latlon_message(sample, lats, lons, values, *, packing="grid_simple", bits=16, scan_south_first=False, scan_west=False, **keys):
+def latlon_message(sample, lats, lons, values, *, packing="grid_simple", bits=16, scan_south_first=False, scan_west=False, packing_keys=None, **keys):
     """An ecCodes message on a regular lat-lon grid. `values` is [lat, lon]
     in the order of `lats` and `lons` (north first, west to east); the
     message scans as asked. NaN values become bitmap-missing."""
@@ -67,6 +67,12 @@ def latlon_message(sample, lats, lons, values, *, packing="grid_simple", bits=16
     # set on an empty message).
     if packing != "grid_simple":
         ec.codes_set(h, "packingType", packing)
+    # Keys that exist only in the packing's template (CCSDS block size,
+    # order of spatial differencing): set, then the values packed again.
+    if packing_keys:
+        for key, value in packing_keys.items():
+            ec.codes_set(h, key, value)
+        ec.codes_set_values(h, data.ravel())
     return h
 
 
@@ -199,6 +205,126 @@ def test_every_packing_decodes_as_ecCodes_does_with_missing_values_as_nan(baroc,
         mask = ~np.isnan(want)
         np.testing.assert_array_equal(np.isnan(values[0]), ~mask)
         assert np.nanmax(np.abs(values[0][mask] - want[mask])) <= step + 1e-3, r["packingType"]
+
+
+def compare_to_f32_rounding(baroc_values, lats, lons, reference, label):
+    """Baroc's f32 values against ecCodes' doubles: equal to the double
+    rounded to f32, within one unit in the last place of f32 (Baroc's
+    unpackers do ecCodes' arithmetic in f64 and round once)."""
+    got = np.array([[baroc_values[j, i] for i in range(len(lons))] for j in range(len(lats))])
+    want = np.array([[reference[(round(float(a), 6), round(float(o), 6))] for o in lons] for a in lats])
+    np.testing.assert_array_equal(np.isnan(got), np.isnan(want), err_msg=f"{label}: missing points differ")
+    present = ~np.isnan(want)
+    want32 = want[present].astype("f4")
+    ulp = np.spacing(np.abs(want32))
+    worst = np.max(np.abs(got[present].astype("f4") - want32) / ulp) if present.any() else 0.0
+    assert worst <= 1.0, f"{label}: Baroc differs from ecCodes by {worst} f32 units in the last place"
+
+
+# A finer grid for the unpacker checks: 7381 points, enough for many CCSDS
+# blocks and reference sample intervals.
+FINE_LATS = np.arange(60.0, -0.1, -1.0)
+FINE_LONS = np.arange(-60.0, 60.1, 1.0)
+
+
+def unpacker_field(seed, *, constant=False, missing=False):
+    """Smooth, noisy, with a band of equal values (runs of zero-residual
+    blocks for CCSDS, width-0 groups for complex packing) crossing block and
+    interval boundaries, and a patch of wide noise (blocks that do not
+    compress)."""
+    if constant:
+        return np.full((FINE_LATS.size, FINE_LONS.size), 287.5)
+    values = smooth_field(FINE_LATS, FINE_LONS, 250.0, 30.0, seed)
+    values[10:16, :] = 251.0
+    rng = np.random.default_rng(seed + 100)
+    values[30:33, 5:90] = 250.0 + 60.0 * rng.random((3, 85))
+    if missing:
+        values[3, 4:40] = np.nan
+        values[40:45, 100] = np.nan
+        values[-1, -1] = np.nan
+    return values
+
+
+# (packing, bits per value, extra ecCodes keys, constant field, missing
+# points): every packing Baroc unpacks itself, odd widths from 0 (constant
+# fields) to 32, spatial differencing of orders 1 and 2, CCSDS block sizes
+# 8 to 64 and reference sample intervals from 1 to 4000 blocks.
+UNPACKER_CASES = [
+    ("grid_simple", 0, {}, True, False),
+    ("grid_simple", 1, {}, False, True),
+    ("grid_simple", 7, {}, False, False),
+    ("grid_simple", 13, {}, False, True),
+    ("grid_simple", 16, {}, False, False),
+    ("grid_simple", 27, {}, False, True),
+    ("grid_simple", 32, {}, False, False),
+    ("grid_complex", 11, {}, False, True),
+    ("grid_complex", 16, {}, True, False),
+    ("grid_complex", 25, {}, False, False),
+    ("grid_complex_spatial_differencing", 9, {"orderOfSpatialDifferencing": 1}, False, True),
+    ("grid_complex_spatial_differencing", 16, {"orderOfSpatialDifferencing": 1}, False, False),
+    ("grid_complex_spatial_differencing", 16, {"orderOfSpatialDifferencing": 2}, False, True),
+    ("grid_complex_spatial_differencing", 24, {"orderOfSpatialDifferencing": 2}, False, False),
+    ("grid_complex_spatial_differencing", 12, {}, True, False),
+    ("grid_ccsds", 0, {}, True, False),
+    ("grid_ccsds", 5, {"ccsdsBlockSize": 8, "ccsdsRsi": 4}, False, True),
+    ("grid_ccsds", 12, {"ccsdsBlockSize": 16, "ccsdsRsi": 1}, False, False),
+    ("grid_ccsds", 16, {"ccsdsBlockSize": 32, "ccsdsRsi": 128}, False, True),
+    ("grid_ccsds", 17, {"ccsdsBlockSize": 64, "ccsdsRsi": 3}, False, False),
+    ("grid_ccsds", 24, {"ccsdsBlockSize": 32, "ccsdsRsi": 4000}, False, False),
+    ("grid_ccsds", 29, {"ccsdsBlockSize": 16, "ccsdsRsi": 32}, False, True),
+    ("grid_ccsds", 32, {"ccsdsBlockSize": 8, "ccsdsRsi": 64}, False, False),
+    # Decimal scaling (10^-D formed as ecCodes forms it).
+    ("grid_simple", 16, {"changeDecimalPrecision": 2}, False, True),
+    ("grid_simple", 0, {"decimalScaleFactor": 3}, True, False),
+    ("grid_complex", 0, {"decimalScaleFactor": 2}, True, False),
+    ("grid_complex_spatial_differencing", 20, {"changeDecimalPrecision": 1}, False, True),
+    ("grid_complex_spatial_differencing", 0, {"decimalScaleFactor": 2}, True, False),
+    ("grid_ccsds", 0, {"decimalScaleFactor": 1}, True, False),
+]
+
+
+def test_own_unpackers_match_eccodes_to_f32_rounding_for_every_packing_width_and_option(baroc, tmp_path):
+    """Baroc's own unpackers (src/io/grib2_unpack.rs) against the ecCodes
+    Python bindings' decode of files ecCodes wrote, message by message:
+    templates 5.0, 5.2, 5.3 (orders 1 and 2) and 5.42, constant fields,
+    bitmaps, widths 0 to 32, CCSDS block sizes and intervals (WMO-No. 306
+    templates 5.x/7.x; CCSDS 121.0-B for 5.42)."""
+    path = tmp_path / "unpackers.grib2"
+    handles = []
+    levels = {}
+    for k, (packing, bits, keys, constant, missing) in enumerate(UNPACKER_CASES):
+        level = 100 + 10 * k
+        levels[level] = (packing, bits, keys, constant, missing)
+        values = unpacker_field(k, constant=constant, missing=missing)
+        handles.append(latlon_message("regular_ll_pl_grib2", FINE_LATS, FINE_LONS, values, packing=packing, bits=max(bits, 1), level=level, packing_keys=keys))
+    write_messages(path, handles)
+    reference = eccodes_fields(path)
+    with open(path, "rb") as f:
+        written = []
+        while (h := ec.codes_grib_new_from_file(f)) is not None:
+            written.append({key: ec.codes_get(h, key) for key in ["packingType", "bitsPerValue", "level", "decimalScaleFactor", "binaryScaleFactor"]})
+            if ec.codes_get(h, "packingType") == "grid_ccsds":
+                written[-1].update({key: ec.codes_get(h, key) for key in ["ccsdsBlockSize", "ccsdsRsi"]})
+            if ec.codes_get(h, "packingType") == "grid_complex_spatial_differencing":
+                written[-1]["order"] = ec.codes_get(h, "orderOfSpatialDifferencing")
+            ec.codes_release(h)
+    # ecCodes wrote what each case asks for (a constant field at 0 bits).
+    for w in written:
+        packing, bits, keys, constant, _ = levels[w["level"]]
+        assert w["packingType"] == packing, w
+        # Complex packing: ecCodes picks the width of the group references
+        # itself from the values' range.
+        # So does decimal precision mode (changeDecimalPrecision).
+        if (packing in ("grid_simple", "grid_ccsds") or constant) and "changeDecimalPrecision" not in keys:
+            assert w["bitsPerValue"] == (0 if constant else bits), w
+        if packing == "grid_ccsds":
+            assert (w["ccsdsBlockSize"], w["ccsdsRsi"]) == (keys.get("ccsdsBlockSize", w["ccsdsBlockSize"]), keys.get("ccsdsRsi", w["ccsdsRsi"])), w
+        if "orderOfSpatialDifferencing" in keys:
+            assert w["order"] == keys["orderOfSpatialDifferencing"], w
+    got = baroc_fields(baroc, tmp_path, [path], {f"p{level}": f"t at {level} hPa" for level in levels})
+    for r in reference:
+        values, lats, lons, _ = got[f"p{r['level']}"]
+        compare_to_f32_rounding(values[0], lats, lons, r["values"], f"{levels[r['level']]}")
 
 
 @pytest.mark.parametrize("bits", [4, 6, 12, 16])
