@@ -137,10 +137,18 @@ fn point_coefficients(grid: &ProjectedGrid, f: impl Fn(f64, f64, f64, f64, f64) 
     out
 }
 
+/// Rows per parallel task of `combine_derivatives`: the band's four
+/// coefficient rows (16 rows of 560 points: 143 KB) stay in a core's L2
+/// cache while every level of the band is done, and each level's output is
+/// written as one contiguous block of the band's rows, not row by row at a
+/// stride of a whole level (which defeats the processor's prefetching and,
+/// on 4 KiB pages, its address translation cache).
+const ROWS_PER_BAND: usize = 16;
+
 /// Two outputs, each a per-point combination of the derivatives along the
-/// grid's axes. Parallel over rows, with every level of a row done in turn,
-/// so that the row's coefficients stay in cache across levels (they are
-/// read once per row, not once per level and row).
+/// grid's axes. Parallel over bands of rows, every level of a band done in
+/// turn, so that the band's coefficients are read from memory once, not
+/// once per level.
 fn combine_derivatives(grid: &ProjectedGrid, field: ArrayView3<f32>, coefficients: &[Vec<f32>; 4]) -> (Array3<f32>, Array3<f32>) {
     let st = GridStencils::new(grid);
     let (ns, ny, nx) = field.dim();
@@ -149,22 +157,28 @@ fn combine_derivatives(grid: &ProjectedGrid, field: ArrayView3<f32>, coefficient
     let flat = data.as_slice().expect("standard layout");
     let mut first = super::allocation::zeroed((ns, ny, nx));
     let mut second = super::allocation::zeroed((ns, ny, nx));
+    if first.is_empty() {
+        return (first, second);
+    }
     first
-        .axis_iter_mut(Axis(1))
+        .axis_chunks_iter_mut(Axis(1), ROWS_PER_BAND)
         .into_par_iter()
-        .zip(second.axis_iter_mut(Axis(1)).into_par_iter())
+        .zip(second.axis_chunks_iter_mut(Axis(1), ROWS_PER_BAND).into_par_iter())
         .enumerate()
-        .for_each(|(j, (mut first_row, mut second_row))| {
-            let range = j * nx..(j + 1) * nx;
-            let [a, b, c, d] = coefficients.each_ref().map(|v| &v[range.clone()]);
-            let sy = &st.y[j];
+        .for_each(|(band, (mut first_band, mut second_band))| {
+            let rows_here = first_band.dim().1;
             for s in 0..ns {
                 let slice = &flat[s * ny * nx..(s + 1) * ny * nx];
-                let rows = [0, 1, 2].map(|k| &slice[sy.index[k] * nx..(sy.index[k] + 1) * nx]);
-                let row = &slice[range.clone()];
-                let out1 = first_row.row_mut(s).into_slice().expect("contiguous row");
-                let out2 = second_row.row_mut(s).into_slice().expect("contiguous row");
-                row_kernel(&st, row, rows, sy.weight, [a, b, c, d], out1, out2);
+                for r in 0..rows_here {
+                    let j = band * ROWS_PER_BAND + r;
+                    let range = j * nx..(j + 1) * nx;
+                    let [a, b, c, d] = coefficients.each_ref().map(|v| &v[range.clone()]);
+                    let sy = &st.y[j];
+                    let rows = [0, 1, 2].map(|k| &slice[sy.index[k] * nx..(sy.index[k] + 1) * nx]);
+                    let out1 = first_band.slice_mut(ndarray::s![s, r, ..]).into_slice().expect("contiguous row");
+                    let out2 = second_band.slice_mut(ndarray::s![s, r, ..]).into_slice().expect("contiguous row");
+                    row_kernel(&st, &slice[range], rows, sy.weight, [a, b, c, d], out1, out2);
+                }
             }
         });
     (first, second)
@@ -315,6 +329,23 @@ mod tests {
     fn interior(g: &ProjectedGrid) -> impl Iterator<Item = (usize, usize)> {
         let (ny, nx) = g.shape();
         (2..ny - 2).flat_map(move |j| (2..nx - 2).map(move |i| (j, i)))
+    }
+
+    #[test]
+    fn each_level_gives_the_bits_it_gives_alone() {
+        // Bands of rows across levels are a matter of memory order only:
+        // three levels at once (81 rows: bands end inside the grid) give
+        // each level's values as computing it alone does (the values
+        // themselves are checked against analytic gradients below).
+        let g = &grids()[0];
+        let base = sample(g, |lat, lon| 1000.0 * lat.sin() + 50.0 * lon.cos());
+        let levels = ndarray::concatenate(Axis(0), &[base.view(), (&base * 0.5).view(), (&base + 7.0).view()]).unwrap();
+        let (all_e, all_n) = gradient(g, levels.view());
+        for k in 0..3 {
+            let (e, n) = gradient(g, levels.slice(ndarray::s![k..k + 1, .., ..]));
+            let same = |a: &Array3<f32>, b: &Array3<f32>| a.index_axis(Axis(0), k).iter().zip(b.iter()).all(|(x, y)| x.to_bits() == y.to_bits());
+            assert!(same(&all_e, &e) && same(&all_n, &n), "level {k}");
+        }
     }
 
     #[test]
