@@ -160,6 +160,10 @@ fn combine_derivatives(grid: &ProjectedGrid, field: ArrayView3<f32>, coefficient
     if first.is_empty() {
         return (first, second);
     }
+    // Whether the coefficients are those of a rotation (see `interior`).
+    let [a, b, c, d] = coefficients;
+    let same_bits = |x: &[f32], y: &[f32], sign: f32| x.len() == y.len() && x.iter().zip(y).all(|(p, q)| p.to_bits() == (sign * *q).to_bits());
+    let rotation = same_bits(a, d, 1.0) && same_bits(c, b, -1.0);
     first
         .axis_chunks_iter_mut(Axis(1), ROWS_PER_BAND)
         .into_par_iter()
@@ -177,7 +181,7 @@ fn combine_derivatives(grid: &ProjectedGrid, field: ArrayView3<f32>, coefficient
                     let rows = [0, 1, 2].map(|k| &slice[sy.index[k] * nx..(sy.index[k] + 1) * nx]);
                     let out1 = first_band.slice_mut(ndarray::s![s, r, ..]).into_slice().expect("contiguous row");
                     let out2 = second_band.slice_mut(ndarray::s![s, r, ..]).into_slice().expect("contiguous row");
-                    row_kernel(&st, &slice[range], rows, sy.weight, [a, b, c, d], out1, out2);
+                    row_kernel(&st, &slice[range], rows, sy.weight, [a, b, c, d], rotation, out1, out2);
                 }
             }
         });
@@ -187,7 +191,8 @@ fn combine_derivatives(grid: &ProjectedGrid, field: ArrayView3<f32>, coefficient
 /// One row: the interior as one contiguous loop (vectorisable, and built
 /// for AVX2 where the processor has it), the two edge columns with their
 /// one-sided stencils.
-fn row_kernel(st: &GridStencils, row: &[f32], rows: [&[f32]; 3], y_weights: [f64; 3], coefficients: [&[f32]; 4], out1: &mut [f32], out2: &mut [f32]) {
+#[allow(clippy::too_many_arguments)]
+fn row_kernel(st: &GridStencils, row: &[f32], rows: [&[f32]; 3], y_weights: [f64; 3], coefficients: [&[f32]; 4], rotation: bool, out1: &mut [f32], out2: &mut [f32]) {
     let n = row.len();
     let point = |i: usize, dx: f64| {
         let dy = y_weights[0] * rows[0][i] as f64 + y_weights[1] * rows[1][i] as f64 + y_weights[2] * rows[2][i] as f64;
@@ -206,14 +211,15 @@ fn row_kernel(st: &GridStencils, row: &[f32], rows: [&[f32]; 3], y_weights: [f64
     #[cfg(target_arch = "x86_64")]
     if std::arch::is_x86_feature_detected!("avx2") {
         // SAFETY: the processor has AVX2 (checked just above).
-        unsafe { interior_avx2(st, row, rows, y_weights, coefficients, out1, out2) };
+        unsafe { interior_avx2(st, row, rows, y_weights, coefficients, rotation, out1, out2) };
         return;
     }
-    interior(st, row, rows, y_weights, coefficients, out1, out2);
+    interior(st, row, rows, y_weights, coefficients, rotation, out1, out2);
 }
 
 #[inline(always)]
-fn interior(st: &GridStencils, row: &[f32], rows: [&[f32]; 3], y_weights: [f64; 3], coefficients: [&[f32]; 4], out1: &mut [f32], out2: &mut [f32]) {
+#[allow(clippy::too_many_arguments)]
+fn interior(st: &GridStencils, row: &[f32], rows: [&[f32]; 3], y_weights: [f64; 3], coefficients: [&[f32]; 4], rotation: bool, out1: &mut [f32], out2: &mut [f32]) {
     let m = row.len() - 2;
     let (left, centre, right) = (&row[..m], &row[1..m + 1], &row[2..m + 2]);
     let [w0, w1, w2] = st.x_weights.each_ref().map(|w| &w[1..m + 1]);
@@ -221,6 +227,20 @@ fn interior(st: &GridStencils, row: &[f32], rows: [&[f32]; 3], y_weights: [f64; 
     let [a, b, c, d] = coefficients.map(|v| &v[1..m + 1]);
     let (o1, o2) = (&mut out1[1..m + 1], &mut out2[1..m + 1]);
     let [v0, v1, v2] = y_weights;
+    if let (Some([u0, u1, u2]), true) = (st.uniform_x, rotation) {
+        // Evenly spaced x and coefficients of a rotation (a conformal
+        // projection: c = -b, d = a at every point): two coefficient rows
+        // instead of four, the same products and sums (c dx is -(b dx)
+        // exactly), so the same values.
+        for i in 0..m {
+            let dx = u0 * left[i] as f64 + u1 * centre[i] as f64 + u2 * right[i] as f64;
+            let dy = v0 * r0[i] as f64 + v1 * r1[i] as f64 + v2 * r2[i] as f64;
+            let (a, b) = (a[i] as f64, b[i] as f64);
+            o1[i] = (a * dx + b * dy) as f32;
+            o2[i] = (-b * dx + a * dy) as f32;
+        }
+        return;
+    }
     if let Some([u0, u1, u2]) = st.uniform_x {
         // Evenly spaced x (every projected file seen): one set of weights.
         for i in 0..m {
@@ -241,8 +261,9 @@ fn interior(st: &GridStencils, row: &[f32], rows: [&[f32]; 3], y_weights: [f64; 
 
 #[cfg(target_arch = "x86_64")]
 #[target_feature(enable = "avx2")]
-fn interior_avx2(st: &GridStencils, row: &[f32], rows: [&[f32]; 3], y_weights: [f64; 3], coefficients: [&[f32]; 4], out1: &mut [f32], out2: &mut [f32]) {
-    interior(st, row, rows, y_weights, coefficients, out1, out2)
+#[allow(clippy::too_many_arguments)]
+fn interior_avx2(st: &GridStencils, row: &[f32], rows: [&[f32]; 3], y_weights: [f64; 3], coefficients: [&[f32]; 4], rotation: bool, out1: &mut [f32], out2: &mut [f32]) {
+    interior(st, row, rows, y_weights, coefficients, rotation, out1, out2)
 }
 
 /// Grid components divided by the matching inverse scale: (h_x u, h_x v)
@@ -329,6 +350,29 @@ mod tests {
     fn interior(g: &ProjectedGrid) -> impl Iterator<Item = (usize, usize)> {
         let (ny, nx) = g.shape();
         (2..ny - 2).flat_map(move |j| (2..nx - 2).map(move |i| (j, i)))
+    }
+
+    #[test]
+    fn the_two_coefficient_rows_of_a_rotation_give_the_bits_of_four() {
+        // A conformal projection's gradient coefficients are a rotation
+        // times the map factor (c = -b, d = a): the shorter loop must give
+        // the general loop's values exactly.
+        let g = &grids()[0];
+        let (ny, nx) = g.shape();
+        let st = GridStencils::new(g);
+        let field = sample(g, |lat, lon| 1000.0 * lat.sin() + 50.0 * (3.0 * lon).cos());
+        let flat = field.as_slice().unwrap();
+        let coefficients = g.gradient_coefficients.get_or_init(|| point_coefficients(g, |_, sx, sy, c, s| [sx * c, sy * s, -sx * s, sy * c]));
+        for j in [1, ny / 2, ny - 2] {
+            let range = j * nx..(j + 1) * nx;
+            let rows = [j - 1, j, j + 1].map(|k| &flat[k * nx..(k + 1) * nx]);
+            let cs = coefficients.each_ref().map(|v| &v[range.clone()]);
+            let (mut fast, mut general) = ((vec![0.0f32; nx], vec![0.0f32; nx]), (vec![0.0f32; nx], vec![0.0f32; nx]));
+            super::interior(&st, &flat[range.clone()], rows, st.y[j].weight, cs, true, &mut fast.0, &mut fast.1);
+            super::interior(&st, &flat[range.clone()], rows, st.y[j].weight, cs, false, &mut general.0, &mut general.1);
+            let same = |a: &[f32], b: &[f32]| a.iter().zip(b).all(|(x, y)| x.to_bits() == y.to_bits());
+            assert!(same(&fast.0, &general.0) && same(&fast.1, &general.1), "row {j}");
+        }
     }
 
     #[test]
