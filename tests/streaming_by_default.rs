@@ -9,11 +9,16 @@ use std::path::{Path, PathBuf};
 use std::process::Command;
 
 fn directory() -> PathBuf {
-    let dir = std::env::temp_dir().join(format!("baroc-streaming-tests-{}", std::process::id()));
-    if !dir.join("baroc-demo").join(baroc::demo::FILE_NAME).exists() {
+    // Written once per process: the tests run on parallel threads, and two
+    // threads writing the demo at once (netCDF-C is not thread-safe) could
+    // leave a damaged file.
+    static DIR: std::sync::OnceLock<PathBuf> = std::sync::OnceLock::new();
+    DIR.get_or_init(|| {
+        let dir = std::env::temp_dir().join(format!("baroc-streaming-tests-{}", std::process::id()));
         baroc::demo::write(&dir.join("baroc-demo")).expect("demo case writes");
-    }
-    dir
+        dir
+    })
+    .clone()
 }
 
 fn run(limit: &str, recipe: &Path, data: &Path, out: &Path) -> String {
