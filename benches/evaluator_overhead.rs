@@ -59,4 +59,35 @@ fn main() {
         println!("{code:<52} {e:>10.2} {l:>10.2} {:>7.2}x", l / e);
     }
     println!("(the language path includes parsing; checking is timed by `cargo bench --bench lang_parse_check`)");
+
+    // Many layers asked for by one program: with the run's shared store
+    // the evaluator computes them in one pass (src/lang/eval_layers.rs);
+    // with a store that keeps nothing, one layer at a time. The counts say
+    // which path ran.
+    let levels = baroc::demo::LEVELS_HPA;
+    let mut program_text = String::new();
+    for (k, pair) in levels.windows(2).enumerate() {
+        program_text.push_str(&format!("let thickness_{k} = thickness({} hPa to {} hPa)\nlet thermal_{k} = thermal_wind({} hPa to {} hPa)\n", pair[0], pair[1], pair[0], pair[1]));
+    }
+    let program = baroc::lang::parse(&program_text).unwrap();
+    println!();
+    println!("{:<52} {:>10} {:>22}", format!("thickness and thermal wind of {} adjacent layers", levels.len() - 1), "ms", "path");
+    for (label, keep) in [("one program, shared store (many-layer kernel)", true), ("one program, store keeping nothing", false)] {
+        let mut session = Session::new();
+        let evaluator = session.evaluator_mut();
+        evaluator.attach_dataset("data", dataset.clone());
+        evaluator.shared = Arc::new(if keep { baroc::sharing::SharedResults::default() } else { baroc::sharing::SharedResults::with_budget(0) });
+        evaluator.run(&program, &program_text).unwrap();
+        let before = evaluator.shared.many_layer_counts();
+        let mut times = Vec::new();
+        for _ in 0..runs {
+            let t = Instant::now();
+            std::hint::black_box(evaluator.run(&program, &program_text).unwrap());
+            times.push(t.elapsed());
+        }
+        let after = evaluator.shared.many_layer_counts();
+        let (passes, layers) = ((after.0 - before.0) / runs as u64, (after.1 - before.1) / runs as u64);
+        let path = if passes > 0 { format!("{passes} pass(es), {layers} layers") } else { "one layer at a time".to_string() };
+        println!("{label:<52} {:>10.2} {path:>22}", median(times).as_secs_f64() * 1e3);
+    }
 }

@@ -16,6 +16,9 @@ use crate::physics::sampling::{self, AreaStatistics, Region};
 use crate::sharing::{Shared, SharedResults};
 use crate::physics::{advection, differences, smoothing, stability, thermal_wind, vertical};
 
+mod many_layers;
+pub use many_layers::LayerRequest;
+
 /// A pressure layer, bottom (larger pressure) to top, in Pa.
 #[derive(Debug, Clone, Copy, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct Layer {
@@ -48,6 +51,25 @@ impl Layer {
     pub fn tag(&self) -> String {
         format!("{}_{}hPa", trim(self.bottom / 100.0), trim(self.top / 100.0)).replace('.', "p")
     }
+}
+
+/// The sharing keys of a layer's thickness and thermal wind.
+fn thickness_key(layer: Layer, route: ThicknessRoute) -> String {
+    format!("thickness {layer:?} {route:?}")
+}
+
+fn thermal_wind_key(layer: Layer, route: ThicknessRoute) -> String {
+    format!("thermal_wind {layer:?} {route:?}")
+}
+
+/// The thickness field of `layer`, on `template`'s times and grid.
+fn thickness_field(layer: Layer, template: &Field, data: Array3<f32>, method: String) -> Result<Field> {
+    Ok(template
+        .derived_without_levels(&format!("thickness_{}", layer.tag()), "m", expand(data))
+        .map_err(DiagnosticError::Unsupported)?
+        .with_long_name(format!("thickness of the {} layer", layer.label()))
+        .with_attribute("layer", layer.label())
+        .with_attribute("method", method))
 }
 
 fn trim(x: f64) -> String {
@@ -121,6 +143,11 @@ impl Case {
     /// form), for the key of a shared result.
     fn sharing_context(&self) -> String {
         format!("{:?}|{:?}|{:?}|{:?}", self.selection, self.constants, self.equator_band, self.integration)
+    }
+
+    /// The key of `operation` in the shared store, for this case.
+    fn shared_key(&self, operation: &str) -> String {
+        SharedResults::key(&self.dataset, &self.sharing_context(), operation)
     }
 
     fn shared_value(&self, operation: String, compute: impl FnOnce() -> Result<Shared>) -> Result<Shared> {
@@ -409,7 +436,7 @@ impl Case {
 
     /// Hypsometric thickness (m) of a layer by the chosen route.
     pub fn thickness(&self, layer: Layer, route: ThicknessRoute) -> Result<Field> {
-        self.shared_field(format!("thickness {layer:?} {route:?}"), || self.thickness_computed(layer, route))
+        self.shared_field(thickness_key(layer, route), || self.thickness_computed(layer, route))
     }
 
     fn thickness_computed(&self, layer: Layer, route: ThicknessRoute) -> Result<Field> {
@@ -418,13 +445,7 @@ impl Case {
             ThicknessRoute::Temperature | ThicknessRoute::DryTemperature => {
                 let t_name = self.role_name(Role::Temperature)?;
                 let own_levels = self.levels_of(&t_name)?;
-                let humidity_name = match route {
-                    ThicknessRoute::Temperature => match self.dataset.find_role(Role::SpecificHumidity) {
-                        Some(q) if q.levels.as_ref().is_some_and(|l| *l == own_levels) => Some(q.name.clone()),
-                        _ => None,
-                    },
-                    _ => None,
-                };
+                let humidity_name = self.humidity_for(route, &own_levels);
                 // Model-level data: the layer's bounds come straight from
                 // the model levels when they are not presented levels.
                 let along: Vec<&str> = humidity_name.iter().map(String::as_str).collect();
@@ -442,10 +463,9 @@ impl Case {
                     };
                     Ok((data, t))
                 };
-                let what = if humidity_name.is_some() { "virtual temperature" } else { "temperature" };
                 let weights = vertical::layer_integral_weights_by(&levels, layer.bottom, layer.top, self.integration)?;
                 let (mut data, t) = integrate(&weights)?;
-                let mut method = format!("hypsometric integral of {what} in ln p, {}", self.integration.describe());
+                let mut method = self.integral_method(humidity_name.is_some());
                 // The quadratic rule reaches one level beyond the layer; where
                 // that level is missing (humidity not reported aloft, a gap)
                 // the trapezoid over the layer's own levels takes over, for
@@ -481,12 +501,26 @@ impl Case {
                 (data, template, method)
             }
         };
-        Ok(template
-            .derived_without_levels(&format!("thickness_{}", layer.tag()), "m", expand(data))
-            .map_err(DiagnosticError::Unsupported)?
-            .with_long_name(format!("thickness of the {} layer", layer.label()))
-            .with_attribute("layer", layer.label())
-            .with_attribute("method", method))
+        thickness_field(layer, &template, data, method)
+    }
+
+    /// The specific humidity that makes a temperature-route integral one of
+    /// virtual temperature: on the temperature's own levels, and only for
+    /// `ThicknessRoute::Temperature`.
+    fn humidity_for(&self, route: ThicknessRoute, levels: &[f64]) -> Option<String> {
+        match route {
+            ThicknessRoute::Temperature => match self.dataset.find_role(Role::SpecificHumidity) {
+                Some(q) if q.levels.as_ref().is_some_and(|l| *l == levels) => Some(q.name.clone()),
+                _ => None,
+            },
+            _ => None,
+        }
+    }
+
+    /// The `method` attribute of a temperature-route thickness.
+    fn integral_method(&self, virtual_temperature: bool) -> String {
+        let what = if virtual_temperature { "virtual temperature" } else { "temperature" };
+        format!("hypsometric integral of {what} in ln p, {}", self.integration.describe())
     }
 
     /// Layer-mean (virtual) temperature (K) from thickness:
@@ -504,12 +538,18 @@ impl Case {
     /// the thickness route from geopotential; the temperature routes take the
     /// layer-mean temperature gradient.
     pub fn thermal_wind(&self, layer: Layer, route: ThicknessRoute) -> Result<VectorField> {
-        self.shared_vector(format!("thermal_wind {layer:?} {route:?}"), || self.thermal_wind_computed(layer, route))
+        self.shared_vector(thermal_wind_key(layer, route), || self.thermal_wind_computed(layer, route))
     }
 
     fn thermal_wind_computed(&self, layer: Layer, route: ThicknessRoute) -> Result<VectorField> {
         let dz = self.thickness(layer, route)?;
         let (u, v) = thermal_wind::thermal_wind_from_thickness(&dz.grid, &self.constants, dz.horizontal_slices(), self.equator_band);
+        self.thermal_wind_field(layer, route, &dz, u, v)
+    }
+
+    /// The thermal wind's fields, named and described, from its components
+    /// on the slices of the thickness `dz`.
+    fn thermal_wind_field(&self, layer: Layer, route: ThicknessRoute, dz: &Field, u: Array3<f32>, v: Array3<f32>) -> Result<VectorField> {
         let how = match route {
             ThicknessRoute::Geopotential => "from the thickness gradient (geopotential)",
             _ => "from the layer-mean temperature gradient",
@@ -517,7 +557,7 @@ impl Case {
         let label = layer.label();
         let make = |name: &str, component: &str, data: Array3<f32>| -> Result<Field> {
             Ok(dz
-                .derived(&format!("{name}_{}", layer.tag()), "m s-1", reshape_like(data, &dz))
+                .derived(&format!("{name}_{}", layer.tag()), "m s-1", reshape_like(data, dz))
                 .map_err(DiagnosticError::Unsupported)?
                 .with_long_name(format!("{component} thermal wind of the {label} layer {how}"))
                 .with_attribute("equatorial_mask_half_width", format!("{} degrees", self.equator_band)))

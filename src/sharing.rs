@@ -70,6 +70,8 @@ pub struct SharedResults {
     budget: u64,
     served: AtomicU64,
     computed: AtomicU64,
+    many_layer_passes: AtomicU64,
+    many_layer_layers: AtomicU64,
 }
 
 impl Default for SharedResults {
@@ -86,7 +88,44 @@ impl SharedResults {
     /// A store keeping at most `budget` bytes of field data (0: none, so
     /// every value is computed afresh).
     pub fn with_budget(budget: u64) -> Self {
-        Self { store: Mutex::new(Store::default()), budget, served: AtomicU64::new(0), computed: AtomicU64::new(0) }
+        Self { store: Mutex::new(Store::default()), budget, served: AtomicU64::new(0), computed: AtomicU64::new(0), many_layer_passes: AtomicU64::new(0), many_layer_layers: AtomicU64::new(0) }
+    }
+
+    /// Whether the store keeps anything at all (a budget of 0 keeps
+    /// nothing, and work done only to be kept would be wasted).
+    pub fn keeps_values(&self) -> bool {
+        self.budget > 0
+    }
+
+    /// Stores `value` under `key` when it fits and nothing is stored there
+    /// yet (a value computed ahead of the calls that will ask for it, such
+    /// as the layers of one pass of the many-layer kernel); says whether it
+    /// was kept. The value must be the bits the key's own computation gives.
+    pub fn offer(&self, dataset: &Arc<Dataset>, key: String, value: Shared) -> bool {
+        let mut s = self.lock();
+        let size = value.bytes();
+        if s.bytes + size > self.budget || s.values.contains_key(&key) {
+            return false;
+        }
+        if !s.datasets.iter().any(|d| Arc::ptr_eq(d, dataset)) {
+            s.datasets.push(dataset.clone());
+        }
+        s.bytes += size;
+        s.values.insert(key, value);
+        true
+    }
+
+    /// Counts one pass of the many-layer kernel over `layers` layers.
+    pub fn note_many_layer_pass(&self, layers: usize) {
+        self.many_layer_passes.fetch_add(1, Ordering::Relaxed);
+        self.many_layer_layers.fetch_add(layers as u64, Ordering::Relaxed);
+    }
+
+    /// Passes of the many-layer kernel and the layers they computed since
+    /// the store was made (`clear` keeps these; for tests and benches, to
+    /// say which path ran).
+    pub fn many_layer_counts(&self) -> (u64, u64) {
+        (self.many_layer_passes.load(Ordering::Relaxed), self.many_layer_layers.load(Ordering::Relaxed))
     }
 
     fn lock(&self) -> std::sync::MutexGuard<'_, Store> {

@@ -258,3 +258,48 @@ fn a_rotated_pole_map_is_drawn_with_its_true_graticule() {
     let texts = texts(bundle.text("image/svg+xml").unwrap());
     assert!(texts.iter().any(|t| t == "50°N"), "{texts:?}");
 }
+
+/// The points of the SVG's polylines stroked `colour`, one list per polyline.
+fn polylines(svg: &str, colour: &str) -> Vec<Vec<(f64, f64)>> {
+    let doc = roxmltree::Document::parse(svg).unwrap();
+    doc.descendants()
+        .filter(|n| n.has_tag_name("polyline") && n.attribute("stroke") == Some(colour))
+        .map(|n| n.attribute("points").unwrap_or("").split_whitespace().filter_map(|p| p.split_once(',').and_then(|(x, y)| Some((x.parse().ok()?, y.parse().ok()?)))).collect())
+        .collect()
+}
+
+#[test]
+fn graticule_lines_are_drawn_with_few_points_and_still_reach_their_labels() {
+    // The graticule is sampled every 0.05 degrees (hundreds of points a
+    // line); drawn, points closer to the line than a quarter pixel are
+    // dropped (render::graticule::simplify_polyline). Common practice for
+    // polylines in vector graphics, no outside source: the check is that
+    // the drawn lines hold far fewer points than were sampled, and that
+    // every label's tick starts at the end of a drawn line (the ends, where
+    // lines meet the frame, are kept exactly).
+    let grid = grid(81, 65, 25_000.0);
+    let z = field_of(&grid, "geopotential_height", "m", height).with_standard_name(Some("geopotential_height")).with_long_name("geopotential height");
+    let bundle = figures::field_map_with(&z, None, &FigureSize::default()).unwrap();
+    let svg = bundle.text("image/svg+xml").unwrap();
+    let frame = figures::projected_frame(&grid).unwrap();
+    let sampled: usize = frame.graticule.iter().flat_map(|l| l.runs.iter()).map(|r| r.len()).sum();
+    let lines = polylines(svg, "#282828");
+    let drawn: usize = lines.iter().map(|l| l.len()).sum();
+    eprintln!("graticule: {sampled} points sampled, {drawn} drawn in {} polylines; SVG {} bytes", lines.len(), svg.len());
+    assert!(!lines.is_empty() && drawn * 10 <= sampled, "{drawn} points drawn of {sampled} sampled");
+    // Label ticks: short black segments from the map's frame (the first
+    // black rectangle) outwards.
+    let ends: Vec<(f64, f64)> = lines.iter().flat_map(|l| [l[0], l[l.len() - 1]]).collect();
+    let frame_box = polylines(svg, "#141414").into_iter().find(|l| l.len() == 5).expect("the frame");
+    let (left, right) = (frame_box.iter().map(|p| p.0).fold(f64::INFINITY, f64::min), frame_box.iter().map(|p| p.0).fold(f64::NEG_INFINITY, f64::max));
+    let (top, bottom) = (frame_box.iter().map(|p| p.1).fold(f64::INFINITY, f64::min), frame_box.iter().map(|p| p.1).fold(f64::NEG_INFINITY, f64::max));
+    let on_frame = |p: (f64, f64)| {
+        let within = p.0 >= left - 0.5 && p.0 <= right + 0.5 && p.1 >= top - 0.5 && p.1 <= bottom + 0.5;
+        within && ((p.0 - left).abs() < 0.5 || (p.0 - right).abs() < 0.5 || (p.1 - top).abs() < 0.5 || (p.1 - bottom).abs() < 0.5)
+    };
+    let ticks: Vec<((f64, f64), (f64, f64))> = black_segments(svg).into_iter().filter(|(a, b)| (b.0 - a.0).hypot(b.1 - a.1) < 10.0 && on_frame(*a)).collect();
+    assert!(ticks.len() >= 4, "{} label ticks", ticks.len());
+    for (start, _) in ticks {
+        assert!(ends.iter().any(|e| (e.0 - start.0).hypot(e.1 - start.1) < 0.01), "a label tick at {start:?} meets no graticule line");
+    }
+}

@@ -241,10 +241,35 @@ fn hpa(p: f64) -> f64 {
     (p / 100.0 * 1000.0).round() / 1000.0
 }
 
-/// cos(latitude) weights of the grid's rows (field guide: area means on a
-/// latitude-longitude grid weight by cos(lat)).
-fn row_weights(grid: &Grid) -> Vec<f64> {
-    grid.latitudes.iter().map(|lat| lat.to_radians().cos().max(0.0)).collect()
+/// Each point's true latitude and longitude (degrees) and its area weight,
+/// [lat, lon] flattened. On a latitude-longitude grid the coordinates are the
+/// axes and the weight is cos(latitude) (field guide: area means on a
+/// latitude-longitude grid weight by cos(lat)). On a projected grid the axes
+/// are y and x in metres: the latitudes and longitudes are the projection's
+/// (`ProjectedGrid`), and a cell of the grid's even spacing covers
+/// dx dy / m^2 of the earth, m the map factor (the area scale of a conformal
+/// projection is m^2, Snyder 1987, ch. 4), so the weight is 1/m^2.
+struct PointGeometry {
+    latitude: Vec<f64>,
+    longitude: Vec<f64>,
+    weight: Vec<f64>,
+}
+
+impl PointGeometry {
+    fn of(grid: &Grid) -> Self {
+        match &grid.projection {
+            Some(p) => Self { latitude: p.latitude.clone(), longitude: p.longitude.clone(), weight: p.map_factor.iter().map(|m| 1.0 / (m * m)).collect() },
+            None => {
+                let nx = grid.longitudes.len();
+                let each_row = |v: f64| std::iter::repeat_n(v, nx);
+                Self {
+                    latitude: grid.latitudes.iter().flat_map(|&lat| each_row(lat)).collect(),
+                    longitude: grid.latitudes.iter().flat_map(|_| grid.longitudes.iter().copied()).collect(),
+                    weight: grid.latitudes.iter().flat_map(|lat| each_row(lat.to_radians().cos().max(0.0))).collect(),
+                }
+            }
+        }
+    }
 }
 
 /// Weighted sums for a mean and an RMS.
@@ -359,7 +384,8 @@ pub fn audit(inputs: &AuditInputs, settings: &AuditSettings) -> Result<AuditRepo
     let c = &settings.constants;
     let plans = layer_plans(&inputs.levels, settings.integration)?;
     let layers = plans.len();
-    let weights = row_weights(inputs.grid);
+    let points = PointGeometry::of(inputs.grid);
+    let weights = &points.weight;
     let factor = c.dry_air_gas_constant / c.gravity;
     let label = |t: usize| inputs.time_labels.get(t).cloned().unwrap_or_else(|| format!("step {t}"));
     let temperature = inputs.temperature.as_standard_layout();
@@ -386,7 +412,7 @@ pub fn audit(inputs: &AuditInputs, settings: &AuditSettings) -> Result<AuditRepo
             let mut virtual_row = vec![0.0f64; nx];
             let mut dry_row = vec![0.0f64; nx];
             for j in 0..ny {
-                let w = weights[j];
+                let weight_row = &weights[j * nx..(j + 1) * nx];
                 virtual_row.iter_mut().for_each(|x| *x = 0.0);
                 dry_row.iter_mut().for_each(|x| *x = 0.0);
                 for &(k, wk) in &plan.weights.terms {
@@ -410,6 +436,7 @@ pub fn audit(inputs: &AuditInputs, settings: &AuditSettings) -> Result<AuditRepo
                 let (tops, bottoms) = (row(heights_view.clone(), t, plan.top, j), row(heights_view.clone(), t, plan.bottom, j));
                 let out_row = out.row_mut(j).into_slice().expect("rows of a fresh array are contiguous");
                 for i in 0..nx {
+                    let w = weight_row[i];
                     let from_temperature = factor * virtual_row[i];
                     out_row[i] = from_temperature as f32;
                     let r = tops[i] as f64 - bottoms[i] as f64 - from_temperature;
@@ -424,7 +451,7 @@ pub fn audit(inputs: &AuditInputs, settings: &AuditSettings) -> Result<AuditRepo
                     }
                     if r.abs() > worst.abs() {
                         worst = r;
-                        worst_at = (inputs.grid.latitudes[j], inputs.grid.longitudes[i]);
+                        worst_at = (points.latitude[j * nx + i], points.longitude[j * nx + i]);
                     }
                 }
             }
@@ -452,6 +479,8 @@ pub fn audit(inputs: &AuditInputs, settings: &AuditSettings) -> Result<AuditRepo
     // Thermal-wind residual: analysed shear minus the thermal wind of the
     // thickness from temperature (thickness route of the field guide).
     let bands = latitude_bands(settings.equator_band);
+    // Each point's band by its true latitude (usize::MAX: in none).
+    let point_band: Vec<usize> = points.latitude.iter().map(|&lat| bands.iter().position(|band| band.contains(lat)).unwrap_or(usize::MAX)).collect();
     let mut thermal_wind_rows = Vec::new();
     let mut geostrophic_rows = Vec::new();
     if let Some((u, v)) = &inputs.wind {
@@ -466,8 +495,10 @@ pub fn audit(inputs: &AuditInputs, settings: &AuditSettings) -> Result<AuditRepo
                 let (ut, vt) = thermal_wind_from_thickness(inputs.grid, c, thickness.slice(ndarray::s![task..task + 1, .., ..]), settings.equator_band);
                 let mut sums = vec![Moments::default(); bands.len()];
                 for j in 0..ny {
-                    let lat = inputs.grid.latitudes[j];
-                    let Some(b) = bands.iter().position(|band| band.contains(lat)) else { continue };
+                    let row_bands = &point_band[j * nx..(j + 1) * nx];
+                    if row_bands.iter().all(|&b| b == usize::MAX) {
+                        continue;
+                    }
                     let (u_top, u_bottom) = (u.slice(ndarray::s![t, plan.top, j, ..]), u.slice(ndarray::s![t, plan.bottom, j, ..]));
                     let (v_top, v_bottom) = (v.slice(ndarray::s![t, plan.top, j, ..]), v.slice(ndarray::s![t, plan.bottom, j, ..]));
                     let (u_thermal, v_thermal) = (ut.slice(ndarray::s![0, j, ..]), vt.slice(ndarray::s![0, j, ..]));
@@ -476,8 +507,9 @@ pub fn audit(inputs: &AuditInputs, settings: &AuditSettings) -> Result<AuditRepo
                         let du = rows[0][i] as f64 - rows[1][i] as f64 - rows[4][i] as f64;
                         let dv = rows[2][i] as f64 - rows[3][i] as f64 - rows[5][i] as f64;
                         let squared = du * du + dv * dv;
-                        if squared.is_finite() {
-                            sums[b].add(weights[j], squared.sqrt());
+                        let b = row_bands[i];
+                        if squared.is_finite() && b != usize::MAX {
+                            sums[b].add(weights[j * nx + i], squared.sqrt());
                         }
                     }
                 }
@@ -514,7 +546,7 @@ pub fn audit(inputs: &AuditInputs, settings: &AuditSettings) -> Result<AuditRepo
                         let (du, dv) = (rows[0][i] as f64 - rows[2][i] as f64, rows[1][i] as f64 - rows[3][i] as f64);
                         let squared = du * du + dv * dv;
                         if squared.is_finite() {
-                            m.add(weights[j], squared.sqrt());
+                            m.add(weights[j * nx + i], squared.sqrt());
                         }
                     }
                 }

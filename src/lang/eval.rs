@@ -318,6 +318,7 @@ impl Evaluator {
         for (index, statement) in program.statements.iter().enumerate() {
             on_event(self, StatementEvent::Started { index, total, span: statement.span })?;
             let context = Context { selection: self.base_selection.clone() };
+            self.prepare_layers(&program.statements, index, &context);
             let value = self.statement(statement, &context)?;
             self.remember_definition(statement);
             on_event(self, StatementEvent::Finished { index, total, span: statement.span, value })?;
@@ -1252,6 +1253,9 @@ impl Evaluator {
         &self.datasets
     }
 }
+
+#[path = "eval_layers.rs"]
+mod layers;
 
 fn context_selection(context: &Context) -> Selection {
     context.selection.clone()

@@ -142,6 +142,14 @@ impl SphericalMetric {
         }
     }
 
+    /// The rows (first, one past the last) that the latitude stencils of
+    /// rows `rows` reach.
+    pub fn latitude_rows_reached(&self, rows: std::ops::Range<usize>) -> (usize, usize) {
+        let reached = self.latitude[rows].iter().flat_map(|s| s.index);
+        let (first, last) = reached.fold((usize::MAX, 0), |(a, b), k| (a.min(k), b.max(k)));
+        (first, last + 1)
+    }
+
     /// d/dlon (per radian) at (row j, column i) of a 2-D slice given as rows.
     #[inline]
     pub fn d_dlon(&self, row: &[f32], i: usize) -> f64 {
@@ -195,8 +203,17 @@ impl SphericalMetric {
     /// the same order of operations. The latitude stencil is fixed along a
     /// row, so this is a contiguous three-row weighted sum.
     pub fn scaled_d_dlat_row(&self, slice: &[f32], nx: usize, j: usize, scale: f64, out: &mut [f32]) {
+        self.scaled_d_dlat_row_of_band(slice, 0, nx, j, scale, out)
+    }
+
+    /// `scaled_d_dlat_row` on a band of rows: `rows` holds the slice's rows
+    /// `first_row..`, enough of them for row j's stencil (the rows
+    /// `latitude_rows_reached` gives). Same values, same order of
+    /// operations; used by kernels that compute a band of a field and
+    /// differentiate it while it is still in cache.
+    pub fn scaled_d_dlat_row_of_band(&self, rows: &[f32], first_row: usize, nx: usize, j: usize, scale: f64, out: &mut [f32]) {
         let s = &self.latitude[j];
-        let row = |k: usize| &slice[s.index[k] * nx..(s.index[k] + 1) * nx];
+        let row = |k: usize| &rows[(s.index[k] - first_row) * nx..(s.index[k] - first_row + 1) * nx];
         let (a, b, c) = (row(0), row(1), row(2));
         let [w0, w1, w2] = s.weight;
         let out = &mut out[..nx];

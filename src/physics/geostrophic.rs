@@ -36,12 +36,7 @@ pub fn balanced_wind(
     }
     let metric = SphericalMetric::new(grid, constants.earth_radius);
     let nx = grid.longitudes.len();
-    // scale / f per row, NaN inside the equatorial band.
-    let over_f: Vec<f64> = grid
-        .latitudes
-        .iter()
-        .map(|&lat| if lat.abs() < equator_band { f64::NAN } else { scale / constants.coriolis(lat) })
-        .collect();
+    let over_f = scale_over_coriolis(grid, constants, scale, equator_band);
     map_rows_pair(field, |_, slice, j, u, v| {
         let k = over_f[j];
         let kx = metric.inverse_x_scale[j];
@@ -56,6 +51,14 @@ pub fn balanced_wind(
         metric.scaled_d_dlat_row(slice, nx, j, -k * metric.inverse_radius, u);
         metric.scaled_d_dlon_row(row, k * kx, v);
     })
+}
+
+/// scale / f for each latitude row of a latitude-longitude grid, NaN inside
+/// the equatorial band (|latitude| < `equator_band` degrees), where balance
+/// is undefined: the factor `balanced_wind` applies, for kernels that fuse
+/// it with other work (`layers::layers_and_thermal_wind`).
+pub fn scale_over_coriolis(grid: &Grid, constants: &Constants, scale: f64, equator_band: f64) -> Vec<f64> {
+    grid.latitudes.iter().map(|&lat| if lat.abs() < equator_band { f64::NAN } else { scale / constants.coriolis(lat) }).collect()
 }
 
 /// What a geostrophic-wind input holds.

@@ -1,6 +1,7 @@
 //! Many layers at once: the hypsometric thickness of every layer between
 //! neighbouring data levels by either integration rule in one pass over the
-//! levels.
+//! levels, and (`layers_and_thermal_wind`) the thickness of many layers
+//! together with their thermal wind in the same pass.
 //!
 //! The arithmetic is exactly that of the one-layer functions, so the values
 //! are the same bits: each layer's thickness is the weighted sum of
@@ -18,9 +19,14 @@
 //! layer's thickness NaN there (no fallback to the trapezoid here: that
 //! choice belongs to `diagnostics::Case`).
 
-use ndarray::{Array4, ArrayView3, ArrayView4, ArrayViewMut3, Axis};
+use ndarray::{Array4, ArrayView3, ArrayView4, ArrayViewMut3, ArrayViewMut4, Axis};
 use rayon::prelude::*;
 
+use super::differences::SphericalMetric;
+use super::geostrophic::scale_over_coriolis;
+use super::thermal_wind::thermal_wind_from_thickness;
+use crate::constants::Constants;
+use crate::grid::Grid;
 use super::vertical::{layer_integral_weights_by, IntegrationRule, LevelWeights, VerticalError};
 
 /// Latitude rows per parallel task: the four levels the quadratic rule
@@ -43,45 +49,272 @@ pub fn adjacent_layer_weights(levels: &[f64], rule: IntegrationRule) -> Result<V
 /// `factor` times the weighted sums of `layers` over the levels of `data`
 /// ([time, level, lat, lon] -> [time, layer, lat, lon]), in one pass.
 pub fn weighted_layers(data: ArrayView4<f32>, layers: &[LevelWeights], factor: f64) -> Array4<f32> {
+    weighted_layers_with(data, None, layers, factor, identity)
+}
+
+/// `weighted_layers` of `transform(data, companion)` (companion 0 when there
+/// is none): for each layer the same bits as `vertical::apply_weights_with`
+/// with that layer's weights (virtual temperature from specific humidity).
+pub fn weighted_layers_with<F>(data: ArrayView4<f32>, companion: Option<ArrayView4<f32>>, layers: &[LevelWeights], factor: f64, transform: F) -> Array4<f32>
+where
+    F: Fn(f64, f64) -> f64 + Sync,
+{
     let (nt, _, ny, nx) = data.dim();
     let mut out: Array4<f32> = super::allocation::zeroed((nt, layers.len(), ny, nx));
     let data = data.as_standard_layout();
-    for (time, out_time) in data.outer_iter().zip(out.outer_iter_mut()) {
-        weighted_layers_into(time, layers, factor, out_time);
+    let companion = companion.as_ref().map(|c| c.as_standard_layout());
+    for (t, (time, out_time)) in data.outer_iter().zip(out.outer_iter_mut()).enumerate() {
+        let companion_time = companion.as_ref().map(|c| c.index_axis(Axis(0), t));
+        weighted_layers_into(time, companion_time, layers, factor, out_time, &transform);
     }
     out
 }
 
-/// One time step of `weighted_layers`: `data` [level, lat, lon] in standard
-/// layout, `out` [layer, lat, lon].
-fn weighted_layers_into(data: ArrayView3<f32>, layers: &[LevelWeights], factor: f64, mut out: ArrayViewMut3<f32>) {
+/// One time step of `weighted_layers`: `data` (and `companion`) [level, lat,
+/// lon] in standard layout, `out` [layer, lat, lon].
+fn weighted_layers_into<F>(data: ArrayView3<f32>, companion: Option<ArrayView3<f32>>, layers: &[LevelWeights], factor: f64, mut out: ArrayViewMut3<f32>, transform: &F)
+where
+    F: Fn(f64, f64) -> f64 + Sync,
+{
     let (nz, ny, nx) = data.dim();
     if out.is_empty() {
         return;
     }
     debug_assert!(layers.iter().all(|l| l.terms.iter().all(|&(k, _)| k < nz)));
     let flat = data.as_slice().expect("standard layout");
+    let companion = companion.map(|c| c.to_slice().expect("standard layout"));
     out.axis_chunks_iter_mut(Axis(1), ROWS_PER_TASK).into_par_iter().enumerate().for_each(|(band, mut block)| {
         let rows = block.dim().1;
         let mut sum = vec![0.0f64; nx];
         for (layer, weights) in layers.iter().enumerate() {
             for r in 0..rows {
                 let j = band * ROWS_PER_TASK + r;
-                sum.fill(0.0);
-                for &(k, w) in &weights.terms {
-                    let start = (k * ny + j) * nx;
-                    for (s, &v) in sum.iter_mut().zip(&flat[start..start + nx]) {
-                        *s += w * v as f64;
-                    }
-                }
                 let mut out_row = block.slice_mut(ndarray::s![layer, r, ..]);
                 let out_row = out_row.as_slice_mut().expect("rows of a standard-layout array are contiguous");
-                for (o, &s) in out_row.iter_mut().zip(&sum) {
-                    *o = (s * factor) as f32;
+                layer_row(flat, companion, ny, nx, weights, factor, j, &mut sum, out_row, transform);
+            }
+        }
+    });
+}
+
+/// Row j of one layer's weighted sum: out[i] = (factor * sum_k w_k
+/// transform(data[k, j, i], companion[k, j, i])) as f32 (companion 0 when
+/// there is none), the f64 sum accumulated from 0 in the order of the terms,
+/// as `vertical::apply_weights_with` does. `flat` (and `companion`) is one
+/// time step [level, lat, lon] in standard layout; `sum` is scratch of `nx`
+/// values. The one place this arithmetic is written here, so that every
+/// kernel of this module gives the same bits.
+#[inline(always)]
+#[allow(clippy::too_many_arguments)]
+fn layer_row<'a, F: Fn(f64, f64) -> f64>(flat: &'a [f32], companion: Option<&'a [f32]>, ny: usize, nx: usize, weights: &LevelWeights, factor: f64, j: usize, sum: &mut [f64], out: &mut [f32], transform: &F) {
+    // Two to four terms (every layer between neighbouring levels, by either
+    // rule): one pass over the row, the sum kept in a register, in the same
+    // order of operations as the general loop below.
+    let terms = &weights.terms;
+    let row = |data: &'a [f32], k: usize| -> &'a [f32] { &data[(k * ny + j) * nx..(k * ny + j + 1) * nx] };
+    if companion.is_none() && (2..=4).contains(&terms.len()) {
+        let (mut rows, mut w): ([&[f32]; 4], [f64; 4]) = ([&[]; 4], [0.0; 4]);
+        for (n, &(k, weight)) in terms.iter().enumerate() {
+            (rows[n], w[n]) = (row(flat, k), weight);
+        }
+        #[cfg(target_arch = "x86_64")]
+        if std::arch::is_x86_feature_detected!("avx2") {
+            // SAFETY: the processor has AVX2 (checked just above).
+            unsafe {
+                match terms.len() {
+                    2 => few_term_row_avx2::<2, F>(out, [rows[0], rows[1]], [w[0], w[1]], factor, transform),
+                    3 => few_term_row_avx2::<3, F>(out, [rows[0], rows[1], rows[2]], [w[0], w[1], w[2]], factor, transform),
+                    _ => few_term_row_avx2::<4, F>(out, [rows[0], rows[1], rows[2], rows[3]], [w[0], w[1], w[2], w[3]], factor, transform),
+                }
+            }
+            return;
+        }
+        match terms.len() {
+            2 => few_term_row::<2, F>(out, [rows[0], rows[1]], [w[0], w[1]], factor, transform),
+            3 => few_term_row::<3, F>(out, [rows[0], rows[1], rows[2]], [w[0], w[1], w[2]], factor, transform),
+            _ => few_term_row::<4, F>(out, [rows[0], rows[1], rows[2], rows[3]], [w[0], w[1], w[2], w[3]], factor, transform),
+        }
+        return;
+    }
+    sum.fill(0.0);
+    for &(k, w) in &weights.terms {
+        let start = (k * ny + j) * nx;
+        match companion {
+            None => {
+                for (s, &v) in sum.iter_mut().zip(&flat[start..start + nx]) {
+                    *s += w * transform(v as f64, 0.0);
+                }
+            }
+            Some(c) => {
+                for ((s, &v), &q) in sum.iter_mut().zip(&flat[start..start + nx]).zip(&c[start..start + nx]) {
+                    *s += w * transform(v as f64, q as f64);
+                }
+            }
+        }
+    }
+    for (o, &s) in out.iter_mut().zip(sum.iter()) {
+        *o = (s * factor) as f32;
+    }
+}
+
+/// out[i] = (factor * (((0 + w0 t(v0[i])) + w1 t(v1[i])) + ...)) as f32: the
+/// general loop's arithmetic for N terms, with the sum in a register.
+#[inline(always)]
+fn few_term_row<const N: usize, F: Fn(f64, f64) -> f64>(out: &mut [f32], rows: [&[f32]; N], weights: [f64; N], factor: f64, transform: &F) {
+    let n = out.len();
+    let rows = rows.map(|r| &r[..n]);
+    for i in 0..n {
+        let mut s = 0.0f64;
+        for k in 0..N {
+            s += weights[k] * transform(rows[k][i] as f64, 0.0);
+        }
+        out[i] = (s * factor) as f32;
+    }
+}
+
+/// `few_term_row` compiled with AVX2 (chosen at run time): wider vectors,
+/// the same IEEE operations in the same order (the compiler never fuses a
+/// multiply and an add on its own), so the same values.
+#[cfg(target_arch = "x86_64")]
+#[target_feature(enable = "avx2")]
+fn few_term_row_avx2<const N: usize, F: Fn(f64, f64) -> f64>(out: &mut [f32], rows: [&[f32]; N], weights: [f64; N], factor: f64, transform: &F) {
+    few_term_row(out, rows, weights, factor, transform)
+}
+
+fn identity(value: f64, _: f64) -> f64 {
+    value
+}
+
+/// Latitude rows per parallel task of `layers_and_thermal_wind`. Each band
+/// also computes the thickness of the rows just outside it that its
+/// latitude derivative reaches (one on either side inside the grid), so a
+/// wider band wastes less: 24 rows add 2 (8 percent), and the band's
+/// thickness rows of one layer (26 x 1440 float32, 150 KB) with the two
+/// temperature levels they come from stay in a core's L2 cache while both
+/// wind components are taken from them.
+const ROWS_PER_FUSED_TASK: usize = 24;
+
+/// Thickness (m) of each layer in `layers` (weights over the levels of
+/// `temperature`, [time, level, lat, lon]) and its thermal wind (m s-1),
+/// eastward and northward, all [time, layer, lat, lon], in one pass: each
+/// band of rows of a layer's thickness is computed once, written out, and
+/// differentiated while still in cache, so neither the temperature nor the
+/// thickness is read back from memory for the wind.
+///
+/// Thermal wind from thickness (field guide, "Formulas"):
+///   V_T = (g0/f) k x grad(dz),
+/// the same operator as `thermal_wind::thermal_wind_from_thickness`.
+///
+/// The values are the same bits as the separate calls, `weighted_layers`
+/// then `thermal_wind_from_thickness` on its result: the thickness rows are
+/// the same arithmetic (`layer_row`), rounded to f32 before they are
+/// differentiated, and the derivatives are the same row kernels
+/// (`SphericalMetric`) with the same factors (`scale_over_coriolis`).
+/// Masking as `geostrophic::balanced_wind` (equatorial band, poles, NaN
+/// spreading to neighbours). On a projected grid the map-factor operator
+/// runs on the finished thickness (the separate calls, same bits). Never
+/// fails; an empty grid gives empty arrays.
+pub fn layers_and_thermal_wind(grid: &Grid, constants: &Constants, temperature: ArrayView4<f32>, layers: &[LevelWeights], equator_band: f64) -> (Array4<f32>, Array4<f32>, Array4<f32>) {
+    layers_and_thermal_wind_with(grid, constants, temperature, None, layers, equator_band, identity)
+}
+
+/// `layers_and_thermal_wind` integrating `transform(temperature, companion)`
+/// (virtual temperature from specific humidity, as
+/// `vertical::apply_weights_with` does): the same bits as
+/// `weighted_layers_with` followed by `thermal_wind_from_thickness`.
+pub fn layers_and_thermal_wind_with<F>(
+    grid: &Grid,
+    constants: &Constants,
+    temperature: ArrayView4<f32>,
+    companion: Option<ArrayView4<f32>>,
+    layers: &[LevelWeights],
+    equator_band: f64,
+    transform: F,
+) -> (Array4<f32>, Array4<f32>, Array4<f32>)
+where
+    F: Fn(f64, f64) -> f64 + Sync,
+{
+    let factor = constants.dry_air_gas_constant / constants.gravity;
+    let (nt, nz, ny, nx) = temperature.dim();
+    let shape = (nt, layers.len(), ny, nx);
+    if grid.projection.is_some() {
+        let thickness = weighted_layers_with(temperature, companion, layers, factor, transform);
+        let slices = thickness.view().into_shape_with_order((nt * layers.len(), ny, nx)).expect("a fresh array is contiguous");
+        let (u, v) = thermal_wind_from_thickness(grid, constants, slices, equator_band);
+        let as_layers = |a: ndarray::Array3<f32>| a.into_shape_with_order(shape).expect("same number of values");
+        return (thickness, as_layers(u), as_layers(v));
+    }
+    let mut thickness: Array4<f32> = super::allocation::zeroed(shape);
+    let mut eastward: Array4<f32> = super::allocation::zeroed(shape);
+    let mut northward: Array4<f32> = super::allocation::zeroed(shape);
+    if thickness.is_empty() {
+        return (thickness, eastward, northward);
+    }
+    debug_assert!(layers.iter().all(|l| l.terms.iter().all(|&(k, _)| k < nz)));
+    let data = temperature.as_standard_layout();
+    let flat = data.as_slice().expect("standard layout");
+    let companion_data = companion.as_ref().map(|c| c.as_standard_layout());
+    let companion_flat = companion_data.as_ref().map(|c| c.as_slice().expect("standard layout"));
+    let metric = SphericalMetric::new(grid, constants.earth_radius);
+    let over_f = scale_over_coriolis(grid, constants, constants.gravity, equator_band);
+    let thickness_bands = thickness.axis_chunks_iter_mut(Axis(2), ROWS_PER_FUSED_TASK).into_par_iter();
+    let eastward_bands = eastward.axis_chunks_iter_mut(Axis(2), ROWS_PER_FUSED_TASK).into_par_iter();
+    let northward_bands = northward.axis_chunks_iter_mut(Axis(2), ROWS_PER_FUSED_TASK).into_par_iter();
+    thickness_bands.zip(eastward_bands).zip(northward_bands).enumerate().for_each(|(band, ((mut dz, mut u), mut v))| {
+        let first = band * ROWS_PER_FUSED_TASK;
+        let rows = first..first + dz.dim().2;
+        let (lo, hi) = metric.latitude_rows_reached(rows.clone());
+        let mut local = vec![0.0f32; (hi - lo) * nx];
+        let mut sum = vec![0.0f64; nx];
+        for t in 0..nt {
+            let step = t * nz * ny * nx..(t + 1) * nz * ny * nx;
+            let (time, companion_time) = (&flat[step.clone()], companion_flat.map(|c| &c[step.clone()]));
+            for (layer, weights) in layers.iter().enumerate() {
+                for (r, out) in (lo..hi).zip(local.chunks_exact_mut(nx)) {
+                    layer_row(time, companion_time, ny, nx, weights, factor, r, &mut sum, out, &transform);
+                }
+                for j in rows.clone() {
+                    let r = j - first;
+                    let here = &local[(j - lo) * nx..(j - lo + 1) * nx];
+                    row_of(&mut dz, t, layer, r).copy_from_slice(here);
+                    let (u_row, v_row) = (row_of(&mut u, t, layer, r), row_of(&mut v, t, layer, r));
+                    let (k, kx) = (over_f[j], metric.inverse_x_scale[j]);
+                    if !k.is_finite() || !kx.is_finite() {
+                        u_row.fill(f32::NAN);
+                        v_row.fill(f32::NAN);
+                        continue;
+                    }
+                    // As balanced_wind: u = -k ky d/dlat, v = k kx d/dlon.
+                    metric.scaled_d_dlat_row_of_band(&local, lo, nx, j, -k * metric.inverse_radius, u_row);
+                    metric.scaled_d_dlon_row(here, k * kx, v_row);
                 }
             }
         }
     });
+    (thickness, eastward, northward)
+}
+
+/// Row r of [time, layer] of a band, as a contiguous slice.
+fn row_of<'a>(band: &'a mut ArrayViewMut4<f32>, t: usize, layer: usize, r: usize) -> &'a mut [f32] {
+    band.slice_mut(ndarray::s![t, layer, r, ..]).into_slice().expect("rows of a fresh array are contiguous")
+}
+
+/// Thickness and thermal wind of every layer between neighbouring data
+/// levels by `rule` (see `layers_and_thermal_wind`): the same bits as
+/// `adjacent_layer_thickness_by` followed by `thermal_wind_from_thickness`.
+pub fn adjacent_layer_thickness_and_thermal_wind(
+    grid: &Grid,
+    constants: &Constants,
+    levels: &[f64],
+    temperature: ArrayView4<f32>,
+    rule: IntegrationRule,
+    equator_band: f64,
+) -> Result<(Array4<f32>, Array4<f32>, Array4<f32>), VerticalError> {
+    let layers = adjacent_layer_weights(levels, rule)?;
+    if temperature.dim().1 != levels.len() {
+        return Err(VerticalError::LevelCount { levels: levels.len(), data: temperature.dim().1 });
+    }
+    Ok(layers_and_thermal_wind(grid, constants, temperature, &layers, equator_band))
 }
 
 /// Hypsometric thickness (m) of every layer between neighbouring data levels
@@ -101,7 +334,7 @@ pub fn adjacent_layer_thickness_by(levels: &[f64], temperature: ArrayView4<f32>,
 mod tests {
     use super::*;
     use crate::constants::Constants;
-    use crate::physics::vertical::{adjacent_layer_thickness, thickness_from_temperature_by};
+    use crate::physics::vertical::{adjacent_layer_thickness, layer_integral_weights_by, thickness_from_temperature_by};
 
     /// An invented column on uneven levels with horizontal structure, some
     /// missing values, on a small grid.
@@ -135,6 +368,105 @@ mod tests {
         // A missing value reaches the layers whose rule uses its level: two
         // by the trapezoid, up to four by the quadratic rule.
         assert!(trapezoid[[1, 2, 10, 20]].is_nan() && trapezoid[[1, 3, 10, 20]].is_nan() && !trapezoid[[1, 1, 10, 20]].is_nan());
+    }
+
+    fn same_bits(a: &Array4<f32>, b: ndarray::ArrayView4<f32>) -> bool {
+        a.shape() == b.shape() && a.iter().zip(b.iter()).all(|(x, y)| x.to_bits() == y.to_bits())
+    }
+
+    #[test]
+    fn fused_thickness_and_thermal_wind_give_the_bits_of_the_separate_calls() {
+        // The definition: the thickness of every layer (one pass), then the
+        // thermal wind of that thickness (`thermal_wind_from_thickness`).
+        // A global grid with both poles and the equator (masked rows), 37
+        // rows so that bands end inside the grid, a missing value, two
+        // time steps, both rules; and a layer spanning several levels.
+        let (levels, mut t) = case();
+        let t = {
+            let lats: Vec<f64> = (0..37).map(|j| 90.0 - 5.0 * j as f64).collect();
+            let grid = Grid::new(lats, (0..72).map(|i| 5.0 * i as f64).collect());
+            t[[0, 5, 0, 3]] = f32::NAN;
+            (grid, t)
+        };
+        let (grid, t) = t;
+        assert!(grid.global);
+        let c = Constants::default();
+        for rule in [IntegrationRule::Quadratic, IntegrationRule::Trapezoid] {
+            let mut layers = adjacent_layer_weights(&levels, rule).unwrap();
+            layers.push(layer_integral_weights_by(&levels, 92500.0, 30000.0, rule).unwrap());
+            let (dz, u, v) = layers_and_thermal_wind(&grid, &c, t.view(), &layers, 5.0);
+            let separate = weighted_layers(t.view(), &layers, c.dry_air_gas_constant / c.gravity);
+            assert!(same_bits(&dz, separate.view()), "thickness by {rule:?}");
+            let (nt, nl, ny, nx) = separate.dim();
+            let slices = separate.view().into_shape_with_order((nt * nl, ny, nx)).unwrap();
+            let (su, sv) = thermal_wind_from_thickness(&grid, &c, slices, 5.0);
+            assert!(same_bits(&u, su.view().into_shape_with_order((nt, nl, ny, nx)).unwrap()), "eastward by {rule:?}");
+            assert!(same_bits(&v, sv.view().into_shape_with_order((nt, nl, ny, nx)).unwrap()), "northward by {rule:?}");
+            // Masks as balanced_wind: the equator row (18) and the poles.
+            assert!(u[[0, 0, 18, 5]].is_nan() && v[[0, 0, 0, 5]].is_nan() && u[[0, 0, 10, 5]].is_finite());
+        }
+    }
+
+    #[test]
+    fn virtual_temperature_layers_give_the_bits_of_one_layer_at_a_time() {
+        // The definition: `apply_weights_with` of each layer with the
+        // virtual temperature (field guide: Tv = T (1 + 0.608 q)), and the
+        // fused pair the bits of the separate calls.
+        let (levels, t) = case();
+        let q = t.mapv(|x| (x - 200.0) * 1.0e-4);
+        let c = Constants::default();
+        let factor = c.dry_air_gas_constant / c.gravity;
+        let layers = adjacent_layer_weights(&levels, IntegrationRule::Quadratic).unwrap();
+        let all = weighted_layers_with(t.view(), Some(q.view()), &layers, factor, crate::physics::vertical::virtual_temperature);
+        for (k, weights) in layers.iter().enumerate() {
+            let one = crate::physics::vertical::apply_weights_with(t.view(), Some(q.view()), weights, factor, crate::physics::vertical::virtual_temperature);
+            assert!(all.index_axis(Axis(1), k).iter().zip(one.iter()).all(|(a, b)| a.to_bits() == b.to_bits()), "layer {k}");
+        }
+        let grid = Grid::new((0..37).map(|j| 80.0 - 2.0 * j as f64).collect(), (0..72).map(|i| i as f64).collect());
+        let (dz, u, _) = layers_and_thermal_wind_with(&grid, &c, t.view(), Some(q.view()), &layers, 5.0, crate::physics::vertical::virtual_temperature);
+        assert!(same_bits(&dz, all.view()));
+        let (nt, nl, ny, nx) = all.dim();
+        let (su, _) = thermal_wind_from_thickness(&grid, &c, all.view().into_shape_with_order((nt * nl, ny, nx)).unwrap(), 5.0);
+        assert!(same_bits(&u, su.view().into_shape_with_order((nt, nl, ny, nx)).unwrap()));
+        // Humidity makes the layer warmer in the mean, so thicker.
+        let dry = weighted_layers(t.view(), &layers, factor);
+        assert!(all[[0, 2, 5, 5]] > dry[[0, 2, 5, 5]]);
+    }
+
+    #[test]
+    fn fused_thermal_wind_meets_the_worked_value() {
+        // Field guide worked value (derived from the thermal wind equation):
+        // at 45 N (f = 1.0313e-4 s-1), a layer-mean temperature falling 1 K
+        // per 100 km poleward over 1000-500 hPa gives
+        // u_T = (Rd/f) ln 2 * 1e-5 = 19.29 m s-1 westerly, v_T = 0.
+        // An isothermal-in-height column at each point: T the same on both
+        // levels, so the trapezoid layer mean is T itself.
+        let c = Constants::default();
+        let lats: Vec<f64> = (0..21).map(|j| 46.0 - 0.1 * j as f64).collect();
+        let grid = Grid::new(lats.clone(), (0..7).map(|i| i as f64 * 0.1).collect());
+        let per_radian = -1.0 / 1.0e5 * c.earth_radius;
+        let t = Array4::from_shape_fn((1, 2, 21, 7), |(_, _, j, _)| (260.0 + per_radian * (lats[j] - 45.0).to_radians()) as f32);
+        let (dz, u, v) = adjacent_layer_thickness_and_thermal_wind(&grid, &c, &[100000.0, 50000.0], t.view(), IntegrationRule::Trapezoid, 5.0).unwrap();
+        // Hypsometric thickness of 260 K over 1000-500 hPa: (Rd/g0) 260 ln 2.
+        assert!((dz[[0, 0, 10, 3]] as f64 - c.dry_air_gas_constant / c.gravity * 260.0 * 2f64.ln()).abs() < 0.01);
+        assert!((u[[0, 0, 10, 3]] - 19.29).abs() < 0.05, "u_T = {}", u[[0, 0, 10, 3]]);
+        assert!(v[[0, 0, 10, 3]].abs() < 1e-3);
+    }
+
+    #[test]
+    fn fused_pair_on_a_projected_grid_is_the_separate_calls() {
+        let (levels, t) = case();
+        let c = Constants::default();
+        use crate::projection::{LambertConformal, ProjectedGrid, Projection};
+        let projection = Projection::LambertConformal(LambertConformal::new((35.0, 55.0), -10.0, 45.0, 0.0, 0.0, c.earth_radius).unwrap());
+        let grid = Grid::projected(ProjectedGrid::new(projection, (0..72).map(|i| -7.0e5 + 2.0e4 * i as f64).collect(), (0..37).map(|j| -3.0e5 + 2.0e4 * j as f64).collect()));
+        let layers = adjacent_layer_weights(&levels, IntegrationRule::Quadratic).unwrap();
+        let (dz, u, _) = layers_and_thermal_wind(&grid, &c, t.view(), &layers, 5.0);
+        let separate = weighted_layers(t.view(), &layers, c.dry_air_gas_constant / c.gravity);
+        let (nt, nl, ny, nx) = separate.dim();
+        let (su, _) = thermal_wind_from_thickness(&grid, &c, separate.view().into_shape_with_order((nt * nl, ny, nx)).unwrap(), 5.0);
+        assert!(same_bits(&dz, separate.view()));
+        assert!(same_bits(&u, su.view().into_shape_with_order((nt, nl, ny, nx)).unwrap()));
     }
 
     #[test]

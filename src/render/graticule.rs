@@ -146,9 +146,92 @@ pub fn graticule(latitudes: &[f64], longitudes: &[f64], frame: (f64, f64, f64, f
     lines
 }
 
+/// A polyline with the points it does not need to keep its shape within
+/// `tolerance`: every point dropped lies within `tolerance` of the line that
+/// remains, and the first and last points are kept exactly (a graticule
+/// line's ends are where it meets the frame and is labelled). The lines are
+/// sampled finely in degrees so that curves stay smooth, which leaves many
+/// points a fraction of a pixel apart, or on a straight run, once drawn;
+/// with `tolerance` a fraction of a pixel the picture is the same and the
+/// SVG far smaller. The Ramer-Douglas-Peucker simplification (Ramer 1972;
+/// Douglas and Peucker 1973): keep the point farthest from the chord of a
+/// run when it is farther than `tolerance`, and split the run there.
+pub fn simplify_polyline(points: &[(f64, f64)], tolerance: f64) -> Vec<(f64, f64)> {
+    let n = points.len();
+    if n <= 2 || !(tolerance > 0.0) {
+        return points.to_vec();
+    }
+    let mut keep = vec![false; n];
+    keep[0] = true;
+    keep[n - 1] = true;
+    let mut runs = vec![(0usize, n - 1)];
+    while let Some((first, last)) = runs.pop() {
+        if last <= first + 1 {
+            continue;
+        }
+        let (a, b) = (points[first], points[last]);
+        let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+        let length = dx.hypot(dy);
+        // Distance of a point from the chord (from the end point where the
+        // chord has no length: a run that comes back on itself).
+        let distance = |p: (f64, f64)| if length > 0.0 { ((p.0 - a.0) * dy - (p.1 - a.1) * dx).abs() / length } else { (p.0 - a.0).hypot(p.1 - a.1) };
+        let (farthest, d) = (first + 1..last).map(|k| (k, distance(points[k]))).fold((first, -1.0), |m, c| if c.1 > m.1 { c } else { m });
+        // A point that is not finite is kept (never silently moved).
+        if d > tolerance || d.is_nan() {
+            keep[farthest] = true;
+            runs.push((first, farthest));
+            runs.push((farthest, last));
+        }
+    }
+    points.iter().zip(&keep).filter(|(_, k)| **k).map(|(p, _)| *p).collect()
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// Distance from `p` to the segment a-b (plane geometry).
+    fn to_segment(p: (f64, f64), a: (f64, f64), b: (f64, f64)) -> f64 {
+        let (dx, dy) = (b.0 - a.0, b.1 - a.1);
+        let l2 = dx * dx + dy * dy;
+        let t = if l2 > 0.0 { (((p.0 - a.0) * dx + (p.1 - a.1) * dy) / l2).clamp(0.0, 1.0) } else { 0.0 };
+        (p.0 - a.0 - t * dx).hypot(p.1 - a.1 - t * dy)
+    }
+
+    #[test]
+    fn simplified_lines_keep_their_ends_and_stay_within_the_tolerance() {
+        // A Lambert conformal graticule (Snyder 1987, eqs. 15-1 to 15-4,
+        // spherical, one standard parallel at 45 N, so n = sin 45): the 50 N
+        // parallel is an arc of a circle about the cone's apex, the 10 W
+        // meridian a straight line through it. Drawn on a map about 800
+        // pixels across (scale: 800 px per 0.5 units of the unit sphere).
+        let n = 45f64.to_radians().sin();
+        let f = 45f64.to_radians().cos() * (std::f64::consts::FRAC_PI_4 + 45f64.to_radians() / 2.0).tan().powf(n) / n;
+        let forward = |lat: f64, lon: f64| {
+            let rho = f / (std::f64::consts::FRAC_PI_4 + lat.to_radians() / 2.0).tan().powf(n);
+            let theta = n * lon.to_radians();
+            (1600.0 * rho * theta.sin(), -1600.0 * rho * theta.cos())
+        };
+        let parallel: Vec<(f64, f64)> = (0..=600).map(|k| forward(50.0, -30.0 + 0.05 * k as f64)).collect();
+        let meridian: Vec<(f64, f64)> = (0..=600).map(|k| forward(35.0 + 0.05 * k as f64, -10.0)).collect();
+        for (line, at_most) in [(&parallel, 120), (&meridian, 2)] {
+            let simple = simplify_polyline(line, 0.25);
+            // The ends are kept exactly: that is where a line meets the
+            // frame and carries its label.
+            assert_eq!(simple.first(), line.first());
+            assert_eq!(simple.last(), line.last());
+            // Far fewer points: a straight meridian needs its two ends only.
+            assert!(simple.len() <= at_most, "{} points kept of {}", simple.len(), line.len());
+            // Every original point within a quarter pixel of what remains.
+            for &p in line.iter() {
+                let d = simple.windows(2).map(|w| to_segment(p, w[0], w[1])).fold(f64::INFINITY, f64::min);
+                assert!(d <= 0.25 + 1e-9, "a point {d} px from the simplified line");
+            }
+        }
+        // Duplicates and runs back on themselves keep their turning point.
+        let back = vec![(0.0, 0.0), (0.0, 0.0), (10.0, 0.0), (0.0, 0.0)];
+        assert_eq!(simplify_polyline(&back, 0.25), vec![(0.0, 0.0), (10.0, 0.0), (0.0, 0.0)]);
+    }
 
     /// A plain equirectangular "projection" (x = lon, y = lat) shows the
     /// lines straight, at the chosen multiples.
