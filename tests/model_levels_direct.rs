@@ -221,3 +221,27 @@ fn the_hydrostatic_integral_uses_the_case_constants() {
         assert!((b as f64 / a as f64 - expected).abs() < 1e-5, "ratio {} expected {expected}", b / a);
     }
 }
+
+/// The one-pass many-layer path (`Case::prepare_layers`) must give what
+/// the one-layer path gives: on model-level data it takes only layers whose
+/// bounds are presented levels and leaves a bound such as 980 hPa to the
+/// one-layer path, which reads it straight from the model levels (the
+/// one-pass path would interpolate it between presented levels).
+#[test]
+fn the_many_layer_pass_leaves_off_level_bounds_of_model_level_data_to_the_one_layer_path() {
+    use baroc::diagnostics::LayerRequest;
+    use baroc::sharing::SharedResults;
+    let plain = case(temperature_quadratic);
+    let mut shared = case(temperature_quadratic);
+    shared.shared = Some(Arc::new(SharedResults::with_budget(1 << 30)));
+    let presented = plain.levels_of("temperature").unwrap();
+    let (off, _) = Layer::new(98_000.0, 14_000.0);
+    let (on, _) = Layer::new(presented[1], presented[presented.len() - 2]);
+    let requests = [LayerRequest { layer: off, thermal_wind: false }, LayerRequest { layer: on, thermal_wind: false }];
+    assert_eq!(shared.prepare_layers(&requests, ThicknessRoute::Temperature).unwrap(), 1, "only the layer on presented levels goes the one-pass way");
+    for layer in [off, on] {
+        let a = plain.thickness(layer, ThicknessRoute::Temperature).unwrap();
+        let b = shared.thickness(layer, ThicknessRoute::Temperature).unwrap();
+        assert!(a.data.iter().zip(b.data.iter()).all(|(x, y)| x.to_bits() == y.to_bits()), "{layer:?}: {} vs {}", a.data[[0, 0, 0, 0]], b.data[[0, 0, 0, 0]]);
+    }
+}
