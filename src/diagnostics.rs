@@ -251,6 +251,14 @@ impl Case {
                 return self.geopotential_at(pressure, mask_below_ground);
             }
         }
+        self.interpolated_in_ln_p(name, pressure, mask_below_ground)
+    }
+
+    /// A variable at one pressure, linear in ln p between the levels around
+    /// it (for model-level data, straight from the model levels), masked
+    /// below ground when asked; named and described as the variable, with a
+    /// `pressure_level` attribute.
+    fn interpolated_in_ln_p(&self, name: &str, pressure: f64, mask_below_ground: bool) -> Result<Field> {
         let levels = self.levels_including(name, &[], &[pressure])?;
         let weights = vertical::interpolation_weights(&levels, pressure)?;
         let (field, weights) = self.read_weighted_on(name, &levels, &weights)?;
@@ -283,19 +291,7 @@ impl Case {
             // Model-level data: the geopotential at any pressure comes
             // straight from the model levels (the hydrostatic integral or
             // the stored geopotential there, one ln-p interpolation).
-            let levels = self.levels_including(&name, &[], &[pressure])?;
-            let weights = vertical::interpolation_weights(&levels, pressure)?;
-            let (z, weights) = self.read_weighted_on(&name, &levels, &weights)?;
-            let mut data = vertical::apply_weights(z.data.view(), &weights, 1.0);
-            if mask_below_ground {
-                if let Some(ps) = self.surface_pressure()? {
-                    vertical::mask_below_ground(&mut data, ps.data.index_axis(ndarray::Axis(1), 0), pressure);
-                }
-            }
-            let mut out = z.derived_without_levels(&z.name, &z.units, expand(data)).map_err(DiagnosticError::Unsupported)?;
-            out.long_name = z.long_name.clone();
-            out.standard_name = z.standard_name.clone();
-            out.attributes.push(("pressure_level".into(), format!("{} hPa", trim(pressure / 100.0))));
+            let mut out = self.interpolated_in_ln_p(&name, pressure, mask_below_ground)?;
             if !out.attributes.iter().any(|(k, _)| k == "vertical_interpolation") {
                 out.attributes.push(("vertical_interpolation".into(), "straight from the model levels, linearly in ln p".into()));
             }

@@ -11,11 +11,13 @@
 use std::path::PathBuf;
 use std::sync::{Arc, OnceLock};
 
-use baroc::grid::Field;
 use baroc::io::Dataset;
 use baroc::lang::eval::Evaluator;
 use baroc::lang::value::Value;
 use baroc::sharing::SharedResults;
+
+mod support;
+use support::same::same_value;
 
 fn demo_file() -> &'static PathBuf {
     static FILE: OnceLock<PathBuf> = OnceLock::new();
@@ -24,23 +26,6 @@ fn demo_file() -> &'static PathBuf {
         baroc::demo::write(&dir.join("baroc-demo")).expect("demo case writes");
         dir.join("baroc-demo").join(baroc::demo::FILE_NAME)
     })
-}
-
-fn same_bits(a: &Field, b: &Field) -> bool {
-    a.data.shape() == b.data.shape()
-        && a.data.iter().zip(b.data.iter()).all(|(x, y)| x.to_bits() == y.to_bits())
-        && a.name == b.name
-        && a.units == b.units
-        && a.long_name == b.long_name
-        && a.attributes == b.attributes
-}
-
-fn same_value(a: &Value, b: &Value) -> bool {
-    match (a, b) {
-        (Value::Scalar(x), Value::Scalar(y)) => same_bits(x, y),
-        (Value::Vector(x), Value::Vector(y)) => same_bits(&x.eastward, &y.eastward) && same_bits(&x.northward, &y.northward),
-        _ => false,
-    }
 }
 
 /// Runs `source` on the demo case; its bindings and the store's counts of

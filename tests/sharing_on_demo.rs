@@ -18,6 +18,9 @@ use baroc::lang::value::Value;
 use baroc::session::Session;
 use baroc::sharing::SharedResults;
 
+mod support;
+use support::same::same_value;
+
 fn directory() -> &'static PathBuf {
     static DIR: OnceLock<PathBuf> = OnceLock::new();
     DIR.get_or_init(|| {
@@ -54,26 +57,6 @@ fn write_warmer_copy(from: &std::path::Path, to: &std::path::Path) {
     }
     let refs: Vec<&Field> = fields.iter().collect();
     write_fields(to, &refs, &WriteOptions::default()).expect("writes the warmer copy");
-}
-
-fn same_bits(a: &Field, b: &Field) -> bool {
-    a.data.shape() == b.data.shape()
-        && a.data.iter().zip(b.data.iter()).all(|(x, y)| x.to_bits() == y.to_bits())
-        && a.name == b.name
-        && a.units == b.units
-        && a.long_name == b.long_name
-        && a.attributes == b.attributes
-}
-
-fn same_value(a: &Value, b: &Value) -> bool {
-    match (a, b) {
-        (Value::Scalar(x), Value::Scalar(y)) => same_bits(x, y),
-        (Value::Vector(x), Value::Vector(y)) => same_bits(&x.eastward, &y.eastward) && same_bits(&x.northward, &y.northward),
-        (Value::Series(x), Value::Series(y)) => {
-            x.labels == y.labels && x.rows.len() == y.rows.len() && x.rows.iter().flatten().zip(y.rows.iter().flatten()).all(|(p, q)| p.to_bits() == q.to_bits())
-        }
-        _ => false,
-    }
 }
 
 /// Runs `source` on the demo case (optionally one time step) and returns

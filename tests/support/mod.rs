@@ -4,6 +4,8 @@
 
 #![allow(dead_code)]
 
+pub mod same;
+
 use baroc::lang::check::{Axis, DatasetCatalog, DatasetInfo, Environment, TimeAxis, VariableInfo};
 
 /// Pressure levels in Pa (1000 to 300 hPa), written top-down as some files do.
