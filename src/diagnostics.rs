@@ -272,6 +272,11 @@ impl Case {
         out.long_name = field.long_name.clone();
         out.standard_name = field.standard_name.clone();
         out.attributes.push(("pressure_level".into(), format!("{} hPa", trim(pressure / 100.0))));
+        // Model-level data say how they reached pressure (and whether below
+        // ground was extrapolated): the value at one pressure keeps that.
+        if let Some(how) = field.attributes.iter().find(|(k, _)| k == "vertical_interpolation") {
+            out.attributes.push(how.clone());
+        }
         Ok(out)
     }
 

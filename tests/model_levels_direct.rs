@@ -145,6 +145,9 @@ fn a_pressure_between_presented_levels_is_one_interpolation_from_the_model_level
     for &v in t.data.iter() {
         assert!((v as f64 - hand).abs() < 2e-3, "{v} K, by hand {hand} K (twice interpolated: {twice} K)");
     }
+    // The value at one pressure keeps the note of how model-level data
+    // reached pressure (and what happens below ground).
+    assert!(t.attributes.iter().any(|(k, v)| k == "vertical_interpolation" && v.contains("missing")), "{:?}", t.attributes);
     // A presented level is read as it was.
     let t800_read = case.at_pressure("temperature", 80_000.0, false).unwrap();
     assert!((t800_read.data[[0, 0, 0, 0]] as f64 - t800).abs() < 2e-3);

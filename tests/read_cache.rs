@@ -183,3 +183,30 @@ fn a_notebook_cell_after_the_file_changed_sees_the_new_data() {
     assert!(((b - a) as f64 - expected).abs() < 2.0, "thickness {a} then {b}, expected a difference of {expected:.1} m");
     assert_eq!(session.evaluator().shared.bytes(), 0, "nothing held between cells");
 }
+
+/// The language's own reads (`temperature at 500 hPa`) go through the
+/// run's store too: within a cell a repeated read is served, across cells
+/// a changed file is read afresh (the store is emptied after every cell).
+#[test]
+fn a_language_read_in_a_later_cell_sees_the_new_data() {
+    let path = directory().join("language-read-between-cells.nc");
+    write_warmer(&path, 0.0);
+    let mut session = Session::new();
+    cell(&mut session, &format!("open \"{}\"\n1", path.display()));
+    let at_500 = |session: &mut Session| -> f32 {
+        match cell(session, "(temperature at 500 hPa) - (temperature at 500 hPa) + temperature at 500 hPa") {
+            baroc::lang::value::Value::Scalar(f) => *f.data.iter().find(|v| v.is_finite()).expect("a value"),
+            other => panic!("expected a field, got {}", other.kind()),
+        }
+    };
+    let first = at_500(&mut session);
+    write_warmer(&path, 5.0);
+    let second = at_500(&mut session);
+    // write_warmer warms the temperature by the same amount everywhere.
+    let direct = Dataset::open(&[path.clone()]).unwrap();
+    let level = levels(&direct).into_iter().find(|&p| (p - 50_000.0).abs() < 1.0).expect("a 500 hPa level");
+    let read = direct.read("temperature", &Selection { levels: Some(vec![level]), ..Selection::default() }).unwrap();
+    let now = *read.data.iter().find(|v| v.is_finite()).unwrap();
+    assert!((second - first - 5.0).abs() < 1e-3 && second == now, "before {first} K, after {second} K, the file now {now} K");
+    assert_eq!(session.evaluator().shared.bytes(), 0, "nothing held between cells");
+}

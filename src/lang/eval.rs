@@ -986,7 +986,9 @@ impl Evaluator {
             }
             selection.levels = Some(inside);
         }
-        d.dataset.read_with(&d.variable, &selection, Some(&self.constants)).map_err(|e| engine_error(e.into(), span))
+        // Through the run's store: a variable read again with the same
+        // selection (by another statement, or by a diagnostic) is read once.
+        self.shared.read(&d.dataset, &d.variable, &selection, Some(&self.constants)).map_err(|e| engine_error(e.into(), span))
     }
 
     // ----- selection --------------------------------------------------------
