@@ -107,14 +107,32 @@ let named_again = thermal_wind(700 hPa to 500 hPa) with route mean_temperature
 
 #[test]
 fn calls_in_another_selection_or_route_stay_on_the_one_layer_path() {
-    // Under `in` (another selection), by the geopotential route, with a
-    // layer computed by an expression: nothing is computed ahead.
+    // Under `in` a region written out (not a name bound before), by the
+    // geopotential route, with an equator band: nothing is computed ahead.
     let script = "\
-let region = box(40 north to 62 north, 50 west to 0 east)
-let a = thickness(1000 hPa to 850 hPa) in region
+let a = thickness(1000 hPa to 850 hPa) in box(40 north to 62 north, 50 west to 0 east)
 let b = thickness(1000 hPa to 850 hPa) with route geopotential
 let c = thermal_wind(850 hPa to 700 hPa) with equator_band 10 degrees
 ";
     let (_, counts) = assert_same_bits_both_paths(script);
     assert_eq!(counts, (0, 0));
+}
+
+#[test]
+fn values_written_in_a_named_region_take_one_pass_in_that_region() {
+    // A recipe's outputs are `... in area`: the pass runs in the region's
+    // selection, as the calls do (a region written out, or nested in an
+    // expression, is left to the one-layer path).
+    let script = "\
+let area = box(40 north to 60 north, 30 west to 10 east)
+let a = thickness(1000 hPa to 500 hPa) in area
+let b = thermal_wind(1000 hPa to 500 hPa) in area
+let c = ageostrophic_shear(1000 hPa to 500 hPa) in area
+let d = thickness(850 hPa to 700 hPa)
+let e = thickness(850 hPa to 700 hPa) in box(40 north to 60 north, 30 west to 10 east)
+";
+    let (_, (passes, layers)) = assert_same_bits_both_paths(script);
+    // One pass in the region (one layer, with its thermal wind), one in the
+    // whole grid (one layer without).
+    assert_eq!((passes, layers), (2, 2));
 }

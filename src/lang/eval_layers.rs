@@ -8,14 +8,18 @@
 //! then run as usual and are served from it, with the same bits
 //! (`tests/sharing_on_demo.rs`, `tests/many_layers_on_demo.rs`).
 //!
-//! Only calls evaluated in the statement's own selection are gathered: a
-//! call under `in`, `at`, `over` or `during`, inside a block or an `if`
-//! branch runs with another selection (or maybe not at all), and is left to
-//! the one-layer path, as is a call with an `equator_band` option or a
-//! layer computed by an expression.
+//! Calls evaluated in the statement's own selection are gathered, and those
+//! of a whole statement value written `... in NAME` with NAME bound to a
+//! region (a recipe's `output x = thermal_wind(layer) in area`), in that
+//! region's selection, as `select` makes it. A call under `at`, `over` or
+//! `during`, under an `in` inside an expression or with a region written
+//! out, inside a block or an `if` branch runs with another selection (or
+//! maybe not at all), and is left to the one-layer path, as is a call with
+//! an `equator_band` option or a layer computed by an expression.
 
 use super::*;
 use crate::diagnostics::LayerRequest;
+use crate::physics::sampling::Region;
 use crate::physics::vertical::IntegrationRule;
 
 /// Operators whose value starts from a layer's thickness, and whether they
@@ -45,10 +49,26 @@ fn layer_calls<'a>(expr: &'a Expr, out: &mut Vec<&'a Expr>) {
     }
 }
 
-fn statement_layer_calls(statement: &Statement) -> Vec<&Expr> {
+/// The layer calls of a statement: those in its own selection (no
+/// region), and those of a value written `... in NAME` whose name is bound
+/// to a region, with that name (`output t = thermal_wind(layer) in area`).
+fn statement_layer_calls(statement: &Statement) -> Vec<(&Expr, Option<&str>)> {
     let mut out = Vec::new();
     match &statement.kind {
-        StatementKind::Let { value, .. } | StatementKind::Output { value, .. } | StatementKind::Expression(value) => layer_calls(value, &mut out),
+        StatementKind::Let { value, .. } | StatementKind::Output { value, .. } | StatementKind::Expression(value) => match &value.kind {
+            ExprKind::Select { base, how: SelectHow::In, selector } => {
+                if let ExprKind::Name(region) = &selector.kind {
+                    let mut calls = Vec::new();
+                    layer_calls(base, &mut calls);
+                    out.extend(calls.into_iter().map(|c| (c, Some(region.as_str()))));
+                }
+            }
+            _ => {
+                let mut calls = Vec::new();
+                layer_calls(value, &mut calls);
+                out.extend(calls.into_iter().map(|c| (c, None)));
+            }
+        },
         _ => {}
     }
     out
@@ -69,18 +89,38 @@ impl Evaluator {
             return; // prepared before that statement
         }
         let part = statements[index..].iter().take_while(|s| !is_open(s));
-        let calls: Vec<Expr> = part.flat_map(|s| statement_layer_calls(s).into_iter().cloned()).collect();
-        let mut groups: Vec<((IntegrationRule, ThicknessRoute), Vec<LayerRequest>)> = Vec::new();
-        for call in &calls {
+        let calls: Vec<(Expr, Option<String>)> = part.flat_map(|s| statement_layer_calls(s).into_iter().map(|(c, r)| (c.clone(), r.map(str::to_string)))).collect();
+        // Grouped by rule, route and region: each group is one pass in the
+        // selection its calls run in.
+        let mut groups: Vec<((IntegrationRule, ThicknessRoute, Option<Region>), Vec<LayerRequest>)> = Vec::new();
+        for (call, region_name) in &calls {
+            let region = match region_name {
+                None => None,
+                Some(name) => match self.lookup(name) {
+                    Some(Value::Region(region)) => Some(*region),
+                    _ => continue,
+                },
+            };
             if let Some((rule, route, request)) = self.layer_request(call, context) {
-                match groups.iter_mut().find(|(k, _)| *k == (rule, route)) {
+                match groups.iter_mut().find(|(k, _)| *k == (rule, route, region)) {
                     Some((_, requests)) => requests.push(request),
-                    None => groups.push(((rule, route), vec![request])),
+                    None => groups.push(((rule, route, region), vec![request])),
                 }
             }
         }
-        for ((rule, route), requests) in groups {
-            let Ok(mut case) = self.case(context, statements[index].span, None) else { return };
+        for ((rule, route, region), requests) in groups {
+            // The selection `select` gives a value written `... in region`.
+            let mut inner = context.clone();
+            if let Some(region) = region {
+                inner.selection.region = match context.selection.region {
+                    Some(outer) => match intersect(&outer, &region) {
+                        Some(both) => Some(both),
+                        None => continue, // the call reports it, with its span
+                    },
+                    None => Some(region),
+                };
+            }
+            let Ok(mut case) = self.case(&inner, statements[index].span, None) else { return };
             case.integration = rule;
             // An error here is the one-layer path's to report, with its span.
             let _ = case.prepare_layers(&requests, route);
