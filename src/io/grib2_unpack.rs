@@ -666,21 +666,7 @@ fn unpack_ccsds(simple: &Simple, section5: &[u8], payload: &[u8], out: &mut [f32
     }
     let preprocess = flags & CCSDS_PREPROCESS != 0;
     let restricted = flags & CCSDS_RESTRICTED != 0;
-    // CCSDS 121.0-B-3 table 5-1 (option identifier lengths), with the
-    // restricted set for small sample widths (section 5.1.2).
-    let id_bits = if bits > 16 {
-        5
-    } else if bits > 8 {
-        4
-    } else if restricted && bits <= 4 {
-        if bits <= 2 {
-            1
-        } else {
-            2
-        }
-    } else {
-        3
-    };
+    let id_bits = option_id_bits(bits, restricted);
     let no_compression = (1u32 << id_bits) - 1;
     let largest = if bits == 32 { u32::MAX } else { (1u32 << bits) - 1 };
     let mut reader = BitReader::new(payload);
@@ -841,6 +827,25 @@ fn unmap(previous: u32, delta: u32, largest: u32, out_of_range: &mut bool) -> u3
         } else {
             largest.wrapping_sub(delta)
         }
+    }
+}
+
+/// The length of a CCSDS block's option identifier: CCSDS 121.0-B-3 table
+/// 5-1, with the restricted set for sample widths up to 4 bits (section
+/// 5.1.2).
+fn option_id_bits(bits: u32, restricted: bool) -> u32 {
+    if bits > 16 {
+        5
+    } else if bits > 8 {
+        4
+    } else if restricted && bits <= 4 {
+        if bits <= 2 {
+            1
+        } else {
+            2
+        }
+    } else {
+        3
     }
 }
 
@@ -1151,19 +1156,7 @@ mod tests {
     fn ccsds_stream(rng: &mut Lcg, bits: u32, block: usize, interval: usize, flags: u8, total: usize) -> Vec<u8> {
         let preprocess = flags & CCSDS_PREPROCESS != 0;
         let restricted = flags & CCSDS_RESTRICTED != 0;
-        let id_bits = if bits > 16 {
-            5
-        } else if bits > 8 {
-            4
-        } else if restricted && bits <= 4 {
-            if bits <= 2 {
-                1
-            } else {
-                2
-            }
-        } else {
-            3
-        };
+        let id_bits = option_id_bits(bits, restricted);
         let largest = if bits == 32 { u32::MAX as u64 } else { (1u64 << bits) - 1 };
         let blocks = total.div_ceil(block);
         let mut w = BitWriter::default();
