@@ -118,6 +118,16 @@ def run_script(baroc, tmp_path, data, lines, *flags):
     return read_result(out, lines)
 
 
+# What the GRIB2 isothermal cases ask for: the lowest full level lies above
+# the surface (the mean of the last two half levels), so the thickness
+# starts at 950 hPa.
+ISOTHERMAL_GRIB2_EXPRESSIONS = {
+    "z500": "geopotential at 500 hPa",
+    "thick": "thickness(950 hPa to 500 hPa) with route geopotential",
+    "u850": "eastward_wind at 850 hPa",
+}
+
+
 def check_isothermal_case(got, zs, ps, p_lowest, bottom=100_000.0):
     """The checks shared by the NetCDF and GRIB2 files (`thick` is the
     thickness from `bottom` to 500 hPa)."""
@@ -268,11 +278,7 @@ def test_grib2_hybrid_file_through_the_language(baroc, tmp_path):
         baroc,
         tmp_path,
         path,
-        {
-            "z500": "geopotential at 500 hPa",
-            "thick": "thickness(950 hPa to 500 hPa) with route geopotential",
-            "u850": "eastward_wind at 850 hPa",
-        },
+        ISOTHERMAL_GRIB2_EXPRESSIONS,
     )
     # The lowest full level lies above the surface (the mean of the last
     # two half levels), so 1000 hPa is nowhere in range: 950 hPa is.
@@ -357,11 +363,7 @@ def test_grib2_log_of_surface_pressure_serves_as_surface_pressure(baroc, tmp_pat
             baroc,
             tmp_path,
             path,
-            {
-                "z500": "geopotential at 500 hPa",
-                "thick": "thickness(950 hPa to 500 hPa) with route geopotential",
-                "u850": "eastward_wind at 850 hPa",
-            },
+            ISOTHERMAL_GRIB2_EXPRESSIONS,
         )
         # ps = exp(lnsp): the same isothermal checks as with sp itself.
         check_isothermal_case(got, zs, ps, full[LEVELS], bottom=95_000.0)
