@@ -13,6 +13,16 @@
 //! run with sharing, which takes this path, against one without). A layer
 //! whose quadratic integral meets a missing level is not offered: the
 //! one-layer path, with its fallback to the trapezoid, computes it as before.
+//!
+//! By the geopotential route a thickness is a difference of the
+//! geopotential at the boundaries: layers whose boundaries are data levels
+//! take them from one read of those levels, and the boundaries' geopotential
+//! is offered too (see `prepare_geopotential_layers`).
+//!
+//! Every pass is counted (`SharedResults::note_many_layer_pass`), as is
+//! every layer `Case::thickness` computes one at a time
+//! (`SharedResults::note_one_layer`); `BAROC_TIMINGS=1` prints both
+//! (`io::timings::layer_paths`).
 
 use super::*;
 use crate::physics::layers;
@@ -28,14 +38,13 @@ pub struct LayerRequest {
 impl Case {
     /// Computes the requested layers by `route` in one pass and offers them
     /// to the shared store (see the module comment). Returns how many layers
-    /// were computed this way: none without a store that keeps values, for
-    /// the geopotential route, or when every layer is already stored.
+    /// were computed this way: none without a store that keeps values.
     /// Errors are the one-layer path's (a layer outside the data is left to
     /// that path to report, with its span).
     pub fn prepare_layers(&self, requests: &[LayerRequest], route: ThicknessRoute) -> Result<usize> {
         let Some(store) = self.shared.clone().filter(|s| s.keeps_values()) else { return Ok(0) };
         if route == ThicknessRoute::Geopotential {
-            return Ok(0);
+            return self.prepare_geopotential_layers(&store, requests);
         }
         let t_name = self.role_name(Role::Temperature)?;
         let levels = self.levels_of(&t_name)?;
@@ -110,5 +119,80 @@ impl Case {
             }
         }
         Ok(computed)
+    }
+
+    /// The geopotential route (`thickness(...) with route geopotential`, the
+    /// thermal wind from it, and the layer-mean temperature a layer's
+    /// temperature advection starts from): the layers whose two boundaries
+    /// are data levels of the geopotential, on pressure-level data, take
+    /// their boundaries from one read of those levels. Each boundary's
+    /// geopotential is the value `Case::geopotential_at` gives there (a data
+    /// level: the level itself, through the same `apply_weights`) and is
+    /// offered under its key too (the geostrophic winds at the boundaries
+    /// start from it); each thickness is `geopotential_difference` of them,
+    /// as in `Case::thickness`, and each thermal wind the one-layer stencil
+    /// on it. A boundary off the data levels (interpolated, hydrostatically
+    /// or not) and model-level data are left to the one-layer path.
+    fn prepare_geopotential_layers(&self, store: &SharedResults, requests: &[LayerRequest]) -> Result<usize> {
+        let route = ThicknessRoute::Geopotential;
+        let Ok((name, kind)) = self.geopotential_source() else { return Ok(0) };
+        if self.dataset.reads_any_pressure(&name) {
+            return Ok(0);
+        }
+        let z_levels = self.levels_of(&name)?;
+        let t_levels = self.dataset.find_role(Role::Temperature).and_then(|t| t.levels.clone());
+        // The plan `geopotential_at` makes for a boundary, when it is a data
+        // level: the index of that level.
+        let data_level = |p: f64| match vertical::geopotential_plan(&z_levels, t_levels.as_deref(), p, self.integration) {
+            Ok(plan) if plan.method == vertical::GeopotentialInterpolation::DataLevel && plan.temperature.is_none() => match plan.geopotential.terms.as_slice() {
+                [(k, w)] if *w == 1.0 => Some(*k),
+                _ => None,
+            },
+            _ => None,
+        };
+        let mut wanted: Vec<LayerRequest> = Vec::new();
+        let mut boundaries: Vec<(f64, usize)> = Vec::new();
+        for request in requests {
+            if let Some(entry) = wanted.iter_mut().find(|r| r.layer == request.layer) {
+                entry.thermal_wind |= request.thermal_wind;
+                continue;
+            }
+            let (Some(bottom), Some(top)) = (data_level(request.layer.bottom), data_level(request.layer.top)) else { continue };
+            for (p, k) in [(request.layer.bottom, bottom), (request.layer.top, top)] {
+                if !boundaries.iter().any(|b| b.0 == p) {
+                    boundaries.push((p, k));
+                }
+            }
+            wanted.push(*request);
+        }
+        if wanted.is_empty() {
+            return Ok(0);
+        }
+        let mut needed: Vec<usize> = boundaries.iter().map(|b| b.1).collect();
+        needed.sort_unstable();
+        needed.dedup();
+        let z = self.read_data(&name, &self.selection_with_levels(Some(needed.iter().map(|&k| z_levels[k]).collect())))?;
+        let how = vertical::GeopotentialInterpolation::DataLevel.describe();
+        let mut at_boundaries: Vec<(f64, Field)> = Vec::with_capacity(boundaries.len());
+        for &(p, k) in &boundaries {
+            let index = needed.iter().position(|&n| n == k).expect("needed");
+            let data = vertical::apply_weights(z.data.view(), &vertical::LevelWeights { terms: vec![(index, 1.0)] }, 1.0);
+            let field = geopotential_field(&z, data, p, how.clone())?;
+            store.offer(&self.dataset, self.shared_key(&format!("geopotential_at {p:?} false")), Shared::Field(field.clone()));
+            at_boundaries.push((p, field));
+        }
+        let at = |p: f64| &at_boundaries.iter().find(|b| b.0 == p).expect("a boundary").1;
+        store.note_many_layer_pass(wanted.len());
+        for request in &wanted {
+            let (data, template, method) = geopotential_difference(at(request.layer.top).clone(), at(request.layer.bottom), kind, &self.constants);
+            let dz = thickness_field(request.layer, &template, data, method)?;
+            if request.thermal_wind {
+                let (u, v) = thermal_wind::thermal_wind_from_thickness(&dz.grid, &self.constants, dz.horizontal_slices(), self.equator_band);
+                let wind = self.thermal_wind_field(request.layer, route, &dz, u, v)?;
+                store.offer(&self.dataset, self.shared_key(&thermal_wind_key(request.layer, route)), Shared::Vector(wind));
+            }
+            store.offer(&self.dataset, self.shared_key(&thickness_key(request.layer, route)), Shared::Field(dz));
+        }
+        Ok(wanted.len())
     }
 }

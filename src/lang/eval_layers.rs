@@ -48,9 +48,26 @@ use super::*;
 use crate::diagnostics::LayerRequest;
 use crate::physics::vertical::IntegrationRule;
 
-/// Operators whose value starts from a layer's thickness, and whether they
-/// need its thermal wind too.
-const LAYER_OPERATORS: [(&str, bool); 4] = [("thickness", false), ("layer_mean_temperature", false), ("thermal_wind", true), ("ageostrophic_shear", true)];
+/// An operator whose value starts from a layer's thickness.
+struct LayerOperator {
+    name: &'static str,
+    /// Whether it needs the layer's thermal wind too.
+    thermal_wind: bool,
+    /// The route it always takes; `None`: the `route` option's.
+    route: Option<ThicknessRoute>,
+    /// The options it accepts (as `call_builtin` allows them).
+    options: &'static [&'static str],
+}
+
+const LAYER_OPERATORS: [LayerOperator; 5] = [
+    LayerOperator { name: "thickness", thermal_wind: false, route: None, options: &["route", "integration"] },
+    LayerOperator { name: "layer_mean_temperature", thermal_wind: false, route: None, options: &["route", "integration"] },
+    LayerOperator { name: "thermal_wind", thermal_wind: true, route: None, options: &["route", "equator_band", "integration"] },
+    LayerOperator { name: "ageostrophic_shear", thermal_wind: true, route: None, options: &["route", "equator_band", "integration"] },
+    // Of a layer, the mean temperature from the geopotential thickness
+    // (`Case::layer_temperature_advection`), by the default rule.
+    LayerOperator { name: "temperature_advection", thermal_wind: false, route: Some(ThicknessRoute::Geopotential), options: &["equator_band"] },
+];
 
 /// Built-ins that only make a small value from their arguments (a point, a
 /// region, a time): a selector or layer written with them is computed ahead.
@@ -67,7 +84,7 @@ type Steps<'a> = Vec<(SelectHow, &'a Expr)>;
 fn layer_calls<'a>(expr: &'a Expr, steps: &mut Steps<'a>, out: &mut Vec<(&'a Expr, Steps<'a>)>) {
     match &expr.kind {
         ExprKind::Call { callee, arguments, options } => {
-            if matches!(&callee.kind, ExprKind::Name(n) if LAYER_OPERATORS.iter().any(|(o, _)| o == n)) {
+            if matches!(&callee.kind, ExprKind::Name(n) if LAYER_OPERATORS.iter().any(|o| o.name == n)) {
                 out.push((expr, steps.clone()));
             }
             for e in arguments.iter().chain(options.iter().map(|o| &o.value)) {
@@ -214,17 +231,18 @@ impl Evaluator {
     fn layer_request(&mut self, call: &Expr, context: &Context) -> Option<(IntegrationRule, ThicknessRoute, f64, LayerRequest)> {
         let ExprKind::Call { callee, arguments, options } = &call.kind else { return None };
         let ExprKind::Name(name) = &callee.kind else { return None };
-        let thermal_wind = LAYER_OPERATORS.iter().find(|(o, _)| o == name)?.1;
+        let operator = LAYER_OPERATORS.iter().find(|o| o.name == name)?;
         let [argument] = arguments.as_slice() else { return None };
         if !self.computable_ahead(argument) {
             return None;
         }
+        // (`temperature_advection` of a pressure is no layer: left alone.)
         let Ok(Value::Layer(layer)) = self.expr(argument, context) else { return None };
-        let (mut rule, mut route, mut band) = (IntegrationRule::Quadratic, ThicknessRoute::Temperature, DEFAULT_EQUATOR_BAND);
+        let (mut rule, mut route, mut band) = (IntegrationRule::Quadratic, operator.route.unwrap_or(ThicknessRoute::Temperature), DEFAULT_EQUATOR_BAND);
         for (k, option) in options.iter().enumerate() {
             let option_name = option.name.name.as_str();
-            if options[..k].iter().any(|o| o.name.name == option_name) {
-                return None; // the call reads the first; leave it to the call
+            if !operator.options.contains(&option_name) || options[..k].iter().any(|o| o.name.name == option_name) {
+                return None; // refused by the call, or given twice (the call reads the first)
             }
             let word = match &option.value.kind {
                 ExprKind::Name(w) | ExprKind::String(w) => Some(w.as_str()),
@@ -234,13 +252,14 @@ impl Evaluator {
                 ("route", Some(w)) => route = thickness_route(Some(w), option.value.span).ok()?,
                 ("integration", Some("quadratic")) => rule = IntegrationRule::Quadratic,
                 ("integration", Some("trapezoid")) => rule = IntegrationRule::Trapezoid,
-                ("equator_band", _) if thermal_wind && self.computable_ahead(&option.value) => {
+                ("equator_band", _) if self.computable_ahead(&option.value) => {
                     let value = self.expr(&option.value, context).ok()?;
                     band = super::super::builtins_eval::equator_band_degrees(&value, option.value.span).ok()?;
                 }
                 _ => return None,
             }
         }
+        let thermal_wind = operator.thermal_wind;
         Some((rule, route, band, LayerRequest { layer, thermal_wind }))
     }
 }
