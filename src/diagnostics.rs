@@ -72,6 +72,22 @@ fn thickness_field(layer: Layer, template: &Field, data: Array3<f32>, method: St
         .with_attribute("method", method))
 }
 
+/// Where the quadratic rule's thickness `data` is missing at a time step
+/// and the trapezoid's `fallback` is not, the whole time step takes the
+/// trapezoid (so that no map mixes the two rules), and `method` says so.
+fn fall_back_where_missing(data: &mut Array3<f32>, fallback: &Array3<f32>, method: &mut String) {
+    let mut steps = 0usize;
+    for (mut slice, other) in data.outer_iter_mut().zip(fallback.outer_iter()) {
+        if slice.iter().zip(other.iter()).any(|(d, f)| d.is_nan() && !f.is_nan()) {
+            slice.assign(&other);
+            steps += 1;
+        }
+    }
+    if steps > 0 {
+        method.push_str(&format!("; the trapezoid rule at {steps} time step(s) where a level the quadratic reaches beyond the layer is missing"));
+    }
+}
+
 /// Geopotential (or its height) at `pressure`, `data` computed from the
 /// levels of `z` as `how` says, named and described as `z`.
 fn geopotential_field(z: &Field, data: Array3<f32>, pressure: f64, how: String) -> Result<Field> {
@@ -499,16 +515,7 @@ impl Case {
                 // (their small difference would show as a step).
                 if self.integration == vertical::IntegrationRule::Quadratic && data.iter().any(|x| x.is_nan()) {
                     let (fallback, _) = integrate(&vertical::layer_integral_weights(&levels, layer.bottom, layer.top)?)?;
-                    let mut steps = 0usize;
-                    for (mut slice, other) in data.outer_iter_mut().zip(fallback.outer_iter()) {
-                        if slice.iter().zip(other.iter()).any(|(d, f)| d.is_nan() && !f.is_nan()) {
-                            slice.assign(&other);
-                            steps += 1;
-                        }
-                    }
-                    if steps > 0 {
-                        method.push_str(&format!("; the trapezoid rule at {steps} time step(s) where a level the quadratic reaches beyond the layer is missing"));
-                    }
+                    fall_back_where_missing(&mut data, &fallback, &mut method);
                 }
                 (data, t, method)
             }

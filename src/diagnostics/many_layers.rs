@@ -11,8 +11,11 @@
 //! `Case::thermal_wind`): the same weights, the same order of the f64 sums,
 //! the same row kernels for the wind (`tests/sharing_on_demo.rs` compares a
 //! run with sharing, which takes this path, against one without). A layer
-//! whose quadratic integral meets a missing level is not offered: the
-//! one-layer path, with its fallback to the trapezoid, computes it as before.
+//! whose quadratic integral meets a missing level (humidity not reported
+//! aloft, a gap) takes the one-layer path's fallback, the trapezoid over its
+//! own levels at those time steps (`fall_back_where_missing`, shared with
+//! `Case::thickness`), and its thermal wind is then the one-layer stencil on
+//! the thickness so patched.
 //!
 //! By the geopotential route a thickness is a difference of the
 //! geopotential at the boundaries: layers whose boundaries are data levels
@@ -85,6 +88,13 @@ impl Case {
         let remap = |w: &vertical::LevelWeights| vertical::LevelWeights {
             terms: w.terms.iter().map(|&(k, weight)| (needed.iter().position(|&n| n == k).expect("needed"), weight)).collect(),
         };
+        // The trapezoid over a layer's own levels, on the levels read (they
+        // are among those the quadratic reaches; `None` should one not be).
+        let trapezoid_on_read = |layer: Layer| -> Option<vertical::LevelWeights> {
+            let weights = vertical::layer_integral_weights(&levels, layer.bottom, layer.top).ok()?;
+            let terms = weights.terms.iter().map(|&(k, weight)| needed.iter().position(|&n| n == k).map(|i| (i, weight))).collect::<Option<Vec<_>>>()?;
+            Some(vertical::LevelWeights { terms })
+        };
         let transform: fn(f64, f64) -> f64 = if q.is_some() { vertical::virtual_temperature } else { |t, _| t };
         let companion = q.as_ref().map(|q| q.data.view());
         let factor = self.constants.dry_air_gas_constant / self.constants.gravity;
@@ -105,9 +115,24 @@ impl Case {
             store.note_many_layer_pass(group.len());
             computed += group.len();
             for (index, (request, _)) in group.iter().enumerate() {
-                let data = thickness.index_axis(ndarray::Axis(1), index).to_owned();
+                let mut data = thickness.index_axis(ndarray::Axis(1), index).to_owned();
                 if self.integration == vertical::IntegrationRule::Quadratic && data.iter().any(|x| x.is_nan()) {
-                    continue; // the one-layer path decides on its fallback
+                    // As `Case::thickness`: the trapezoid over the layer's
+                    // own levels (among those read) where a level the
+                    // quadratic reaches is missing, then the thermal wind
+                    // of the thickness so patched, by the one-layer stencil.
+                    let Some(trapezoid) = trapezoid_on_read(request.layer) else { continue };
+                    let fallback = layers::weighted_layers_with(t.data.view(), companion, std::slice::from_ref(&trapezoid), factor, transform).index_axis_move(ndarray::Axis(1), 0);
+                    let mut patched_method = method.clone();
+                    fall_back_where_missing(&mut data, &fallback, &mut patched_method);
+                    let dz = thickness_field(request.layer, &t, data, patched_method)?;
+                    if with_wind {
+                        let (u, v) = thermal_wind::thermal_wind_from_thickness(&dz.grid, &self.constants, dz.horizontal_slices(), self.equator_band);
+                        let wind = self.thermal_wind_field(request.layer, route, &dz, u, v)?;
+                        store.offer(&self.dataset, self.shared_key(&thermal_wind_key(request.layer, route)), Shared::Vector(wind));
+                    }
+                    store.offer(&self.dataset, self.shared_key(&thickness_key(request.layer, route)), Shared::Field(dz));
+                    continue;
                 }
                 let dz = thickness_field(request.layer, &t, data, method.clone())?;
                 if let Some((u, v)) = &winds {
