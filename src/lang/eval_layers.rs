@@ -1,12 +1,15 @@
 //! The language reaching the many-layer kernel: before the first statement
 //! of a program (or of the part of it after an `open`) that asks for the
 //! thickness, layer-mean temperature, thermal wind or ageostrophic shear of
-//! a layer, every such request in that part whose layer, options and
-//! selection are known is handed to `Case::prepare_layers`, which computes
-//! them in one pass over the levels per selection and offers them to the
-//! run's shared store under the one-layer keys; the calls themselves then
-//! run as usual and are served from it, with the same bits
-//! (`tests/sharing_on_demo.rs`, `tests/many_layers_on_demo.rs`).
+//! a layer (by either route) or for a layer's temperature advection (which
+//! starts from its geopotential thickness), every such request in that part
+//! whose layer, options and selection are known is handed to
+//! `Case::prepare_layers`, which computes them in one pass over the levels
+//! per selection and offers them to the run's shared store under the
+//! one-layer keys; the calls themselves then run as usual and are served
+//! from it, with the same bits (`tests/sharing_on_demo.rs`,
+//! `tests/many_layers_on_demo.rs`, which also count the passes and the
+//! layers computed one at a time, as `BAROC_TIMINGS=1` prints them).
 //!
 //! What is computed ahead, and why it is the same work as the call's:
 //! - The call's selection is built as `select` builds it, step by step
@@ -28,8 +31,8 @@
 //!   one-layer path. A name bound only by a later statement of the part is
 //!   not known yet when the part is prepared, and is left to it too.
 //! - Options are read as `call_builtin` reads them (`route`, `integration`,
-//!   and `equator_band` for the thermal wind and the ageostrophic shear,
-//!   through `builtins_eval::equator_band_degrees`); an option the call
+//!   and `equator_band` where the operator takes it, through
+//!   `builtins_eval::equator_band_degrees`); an option the call
 //!   would refuse, or one given twice, leaves the call to its own path.
 //!   Calls are grouped by rule, route, band and selection: one pass each.
 //! - Nothing here reports anything: an expression that fails ahead, a
