@@ -91,9 +91,8 @@ pub struct LayerPaths {
     pub passes: u64,
     /// Layers those passes computed.
     pub one_pass: u64,
-    /// Layers computed one at a time (a layer computed ahead but not
-    /// served, such as one whose quadratic rule met a missing level, counts
-    /// in both).
+    /// Layers computed one at a time (a layer computed ahead but not kept,
+    /// the store's budget being spent, counts in both).
     pub one_layer: u64,
 }
 
