@@ -72,6 +72,48 @@ fn thickness_field(layer: Layer, template: &Field, data: Array3<f32>, method: St
         .with_attribute("method", method))
 }
 
+/// Where the quadratic rule's thickness `data` is missing at a time step
+/// and the trapezoid's `fallback` is not, the whole time step takes the
+/// trapezoid (so that no map mixes the two rules), and `method` says so.
+fn fall_back_where_missing(data: &mut Array3<f32>, fallback: &Array3<f32>, method: &mut String) {
+    let mut steps = 0usize;
+    for (mut slice, other) in data.outer_iter_mut().zip(fallback.outer_iter()) {
+        if slice.iter().zip(other.iter()).any(|(d, f)| d.is_nan() && !f.is_nan()) {
+            slice.assign(&other);
+            steps += 1;
+        }
+    }
+    if steps > 0 {
+        method.push_str(&format!("; the trapezoid rule at {steps} time step(s) where a level the quadratic reaches beyond the layer is missing"));
+    }
+}
+
+/// Geopotential (or its height) at `pressure`, `data` computed from the
+/// levels of `z` as `how` says, named and described as `z`.
+fn geopotential_field(z: &Field, data: Array3<f32>, pressure: f64, how: String) -> Result<Field> {
+    let mut out = z.derived_without_levels(&z.name, &z.units, expand(data)).map_err(DiagnosticError::Unsupported)?;
+    out.long_name = z.long_name.clone();
+    out.standard_name = z.standard_name.clone();
+    out.attributes.push(("pressure_level".into(), format!("{} hPa", trim(pressure / 100.0))));
+    out.attributes.push(("vertical_interpolation".into(), how));
+    Ok(out)
+}
+
+/// A layer's thickness by the geopotential route from the geopotential at
+/// its boundaries: the data (m), the template field and the `method`.
+fn geopotential_difference(top: Field, bottom: &Field, kind: GeopotentialKind, c: &Constants) -> (Array3<f32>, Field, String) {
+    let to_metres = match kind {
+        GeopotentialKind::Geopotential => 1.0 / c.gravity,
+        GeopotentialKind::Height => 1.0,
+    };
+    let data = Zip::from(top.horizontal_slices()).and(bottom.horizontal_slices()).map_collect(|&a, &b| ((a as f64 - b as f64) * to_metres) as f32);
+    let how = |f: &Field| f.attributes.iter().find(|(k, _)| k == "vertical_interpolation").map(|(_, v)| v.clone()).unwrap_or_default();
+    let method = format!("difference of geopotential height at the layer boundaries (top: {}; bottom: {})", how(&top), how(bottom));
+    let mut template = top;
+    template.attributes.retain(|(k, _)| k != "vertical_interpolation" && k != "pressure_level");
+    (data, template, method)
+}
+
 fn trim(x: f64) -> String {
     let s = format!("{x:.2}");
     s.trim_end_matches('0').trim_end_matches('.').to_string()
@@ -359,12 +401,7 @@ impl Case {
                 vertical::mask_below_ground(&mut data, ps.data.index_axis(ndarray::Axis(1), 0), pressure);
             }
         }
-        let mut out = z.derived_without_levels(&z.name, &z.units, expand(data)).map_err(DiagnosticError::Unsupported)?;
-        out.long_name = z.long_name.clone();
-        out.standard_name = z.standard_name.clone();
-        out.attributes.push(("pressure_level".into(), format!("{} hPa", trim(pressure / 100.0))));
-        out.attributes.push(("vertical_interpolation".into(), method.describe()));
-        Ok(out)
+        geopotential_field(&z, data, pressure, method.describe())
     }
 
     fn surface_pressure(&self) -> Result<Option<Field>> {
@@ -441,6 +478,10 @@ impl Case {
     }
 
     fn thickness_computed(&self, layer: Layer, route: ThicknessRoute) -> Result<Field> {
+        match &self.shared {
+            Some(store) => store.note_one_layer(),
+            None => crate::io::timings::record_one_layer(),
+        }
         let c = &self.constants;
         let (data, template, method) = match route {
             ThicknessRoute::Temperature | ThicknessRoute::DryTemperature => {
@@ -474,32 +515,14 @@ impl Case {
                 // (their small difference would show as a step).
                 if self.integration == vertical::IntegrationRule::Quadratic && data.iter().any(|x| x.is_nan()) {
                     let (fallback, _) = integrate(&vertical::layer_integral_weights(&levels, layer.bottom, layer.top)?)?;
-                    let mut steps = 0usize;
-                    for (mut slice, other) in data.outer_iter_mut().zip(fallback.outer_iter()) {
-                        if slice.iter().zip(other.iter()).any(|(d, f)| d.is_nan() && !f.is_nan()) {
-                            slice.assign(&other);
-                            steps += 1;
-                        }
-                    }
-                    if steps > 0 {
-                        method.push_str(&format!("; the trapezoid rule at {steps} time step(s) where a level the quadratic reaches beyond the layer is missing"));
-                    }
+                    fall_back_where_missing(&mut data, &fallback, &mut method);
                 }
                 (data, t, method)
             }
             ThicknessRoute::Geopotential => {
                 let (_, kind) = self.geopotential_source()?;
                 let (top, bottom) = (self.geopotential_at(layer.top, false)?, self.geopotential_at(layer.bottom, false)?);
-                let to_metres = match kind {
-                    GeopotentialKind::Geopotential => 1.0 / c.gravity,
-                    GeopotentialKind::Height => 1.0,
-                };
-                let data = Zip::from(top.horizontal_slices()).and(bottom.horizontal_slices()).map_collect(|&a, &b| ((a as f64 - b as f64) * to_metres) as f32);
-                let how = |f: &Field| f.attributes.iter().find(|(k, _)| k == "vertical_interpolation").map(|(_, v)| v.clone()).unwrap_or_default();
-                let method = format!("difference of geopotential height at the layer boundaries (top: {}; bottom: {})", how(&top), how(&bottom));
-                let mut template = top;
-                template.attributes.retain(|(k, _)| k != "vertical_interpolation" && k != "pressure_level");
-                (data, template, method)
+                geopotential_difference(top, &bottom, kind, c)
             }
         };
         thickness_field(layer, &template, data, method)

@@ -377,6 +377,7 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
         let summary = baroc::bounded::run_to_file(&request, path, limit, attributes).map_err(|e| e.0)?;
         if std::env::var_os("BAROC_TIMINGS").is_some_and(|v| !v.is_empty() && v != "0") {
             eprintln!("timings: path: streaming, {} blocks of at most {} time steps; run command total {:.3} s", summary.blocks, summary.steps_per_block, run_started.elapsed().as_secs_f64());
+            eprintln!("timings: {}", baroc::io::timings::layer_paths());
         }
         out(&format!(
             "wrote {} to {} ({} time steps in {} block{} of at most {})\n",
@@ -414,6 +415,7 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
             read.cached,
             (evaluate - read.seconds).max(0.0)
         );
+        eprintln!("timings: {}", baroc::io::timings::layer_paths());
     }
     let mut outputs = baroc::atomic::Outputs::new();
     let mut written = Vec::new();

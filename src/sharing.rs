@@ -72,6 +72,7 @@ pub struct SharedResults {
     computed: AtomicU64,
     many_layer_passes: AtomicU64,
     many_layer_layers: AtomicU64,
+    one_layer_layers: AtomicU64,
 }
 
 impl Default for SharedResults {
@@ -88,7 +89,7 @@ impl SharedResults {
     /// A store keeping at most `budget` bytes of field data (0: none, so
     /// every value is computed afresh).
     pub fn with_budget(budget: u64) -> Self {
-        Self { store: Mutex::new(Store::default()), budget, served: AtomicU64::new(0), computed: AtomicU64::new(0), many_layer_passes: AtomicU64::new(0), many_layer_layers: AtomicU64::new(0) }
+        Self { store: Mutex::new(Store::default()), budget, served: AtomicU64::new(0), computed: AtomicU64::new(0), many_layer_passes: AtomicU64::new(0), many_layer_layers: AtomicU64::new(0), one_layer_layers: AtomicU64::new(0) }
     }
 
     /// Whether the store keeps anything at all (a budget of 0 keeps
@@ -115,10 +116,25 @@ impl SharedResults {
         true
     }
 
-    /// Counts one pass of the many-layer kernel over `layers` layers.
+    /// Counts one pass of the many-layer kernel over `layers` layers (here
+    /// and in the process's timings).
     pub fn note_many_layer_pass(&self, layers: usize) {
         self.many_layer_passes.fetch_add(1, Ordering::Relaxed);
         self.many_layer_layers.fetch_add(layers as u64, Ordering::Relaxed);
+        crate::io::timings::record_many_layer_pass(layers);
+    }
+
+    /// Counts one layer computed by the one-layer path (here and in the
+    /// process's timings).
+    pub fn note_one_layer(&self) {
+        self.one_layer_layers.fetch_add(1, Ordering::Relaxed);
+        crate::io::timings::record_one_layer();
+    }
+
+    /// Layers computed by the one-layer path since the store was made
+    /// (`clear` keeps this).
+    pub fn one_layer_count(&self) -> u64 {
+        self.one_layer_layers.load(Ordering::Relaxed)
     }
 
     /// Passes of the many-layer kernel and the layers they computed since

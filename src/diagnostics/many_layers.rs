@@ -11,8 +11,21 @@
 //! `Case::thermal_wind`): the same weights, the same order of the f64 sums,
 //! the same row kernels for the wind (`tests/sharing_on_demo.rs` compares a
 //! run with sharing, which takes this path, against one without). A layer
-//! whose quadratic integral meets a missing level is not offered: the
-//! one-layer path, with its fallback to the trapezoid, computes it as before.
+//! whose quadratic integral meets a missing level (humidity not reported
+//! aloft, a gap) takes the one-layer path's fallback, the trapezoid over its
+//! own levels at those time steps (`fall_back_where_missing`, shared with
+//! `Case::thickness`), and its thermal wind is then the one-layer stencil on
+//! the thickness so patched.
+//!
+//! By the geopotential route a thickness is a difference of the
+//! geopotential at the boundaries: layers whose boundaries are data levels
+//! take them from one read of those levels, and the boundaries' geopotential
+//! is offered too (see `prepare_geopotential_layers`).
+//!
+//! Every pass is counted (`SharedResults::note_many_layer_pass`), as is
+//! every layer `Case::thickness` computes one at a time
+//! (`SharedResults::note_one_layer`); `BAROC_TIMINGS=1` prints both
+//! (`io::timings::layer_paths`).
 
 use super::*;
 use crate::physics::layers;
@@ -28,14 +41,13 @@ pub struct LayerRequest {
 impl Case {
     /// Computes the requested layers by `route` in one pass and offers them
     /// to the shared store (see the module comment). Returns how many layers
-    /// were computed this way: none without a store that keeps values, for
-    /// the geopotential route, or when every layer is already stored.
+    /// were computed this way: none without a store that keeps values.
     /// Errors are the one-layer path's (a layer outside the data is left to
     /// that path to report, with its span).
     pub fn prepare_layers(&self, requests: &[LayerRequest], route: ThicknessRoute) -> Result<usize> {
         let Some(store) = self.shared.clone().filter(|s| s.keeps_values()) else { return Ok(0) };
         if route == ThicknessRoute::Geopotential {
-            return Ok(0);
+            return self.prepare_geopotential_layers(&store, requests);
         }
         let t_name = self.role_name(Role::Temperature)?;
         let levels = self.levels_of(&t_name)?;
@@ -76,6 +88,13 @@ impl Case {
         let remap = |w: &vertical::LevelWeights| vertical::LevelWeights {
             terms: w.terms.iter().map(|&(k, weight)| (needed.iter().position(|&n| n == k).expect("needed"), weight)).collect(),
         };
+        // The trapezoid over a layer's own levels, on the levels read (they
+        // are among those the quadratic reaches; `None` should one not be).
+        let trapezoid_on_read = |layer: Layer| -> Option<vertical::LevelWeights> {
+            let weights = vertical::layer_integral_weights(&levels, layer.bottom, layer.top).ok()?;
+            let terms = weights.terms.iter().map(|&(k, weight)| needed.iter().position(|&n| n == k).map(|i| (i, weight))).collect::<Option<Vec<_>>>()?;
+            Some(vertical::LevelWeights { terms })
+        };
         let transform: fn(f64, f64) -> f64 = if q.is_some() { vertical::virtual_temperature } else { |t, _| t };
         let companion = q.as_ref().map(|q| q.data.view());
         let factor = self.constants.dry_air_gas_constant / self.constants.gravity;
@@ -96,9 +115,24 @@ impl Case {
             store.note_many_layer_pass(group.len());
             computed += group.len();
             for (index, (request, _)) in group.iter().enumerate() {
-                let data = thickness.index_axis(ndarray::Axis(1), index).to_owned();
+                let mut data = thickness.index_axis(ndarray::Axis(1), index).to_owned();
                 if self.integration == vertical::IntegrationRule::Quadratic && data.iter().any(|x| x.is_nan()) {
-                    continue; // the one-layer path decides on its fallback
+                    // As `Case::thickness`: the trapezoid over the layer's
+                    // own levels (among those read) where a level the
+                    // quadratic reaches is missing, then the thermal wind
+                    // of the thickness so patched, by the one-layer stencil.
+                    let Some(trapezoid) = trapezoid_on_read(request.layer) else { continue };
+                    let fallback = layers::weighted_layers_with(t.data.view(), companion, std::slice::from_ref(&trapezoid), factor, transform).index_axis_move(ndarray::Axis(1), 0);
+                    let mut patched_method = method.clone();
+                    fall_back_where_missing(&mut data, &fallback, &mut patched_method);
+                    let dz = thickness_field(request.layer, &t, data, patched_method)?;
+                    if with_wind {
+                        let (u, v) = thermal_wind::thermal_wind_from_thickness(&dz.grid, &self.constants, dz.horizontal_slices(), self.equator_band);
+                        let wind = self.thermal_wind_field(request.layer, route, &dz, u, v)?;
+                        store.offer(&self.dataset, self.shared_key(&thermal_wind_key(request.layer, route)), Shared::Vector(wind));
+                    }
+                    store.offer(&self.dataset, self.shared_key(&thickness_key(request.layer, route)), Shared::Field(dz));
+                    continue;
                 }
                 let dz = thickness_field(request.layer, &t, data, method.clone())?;
                 if let Some((u, v)) = &winds {
@@ -110,5 +144,80 @@ impl Case {
             }
         }
         Ok(computed)
+    }
+
+    /// The geopotential route (`thickness(...) with route geopotential`, the
+    /// thermal wind from it, and the layer-mean temperature a layer's
+    /// temperature advection starts from): the layers whose two boundaries
+    /// are data levels of the geopotential, on pressure-level data, take
+    /// their boundaries from one read of those levels. Each boundary's
+    /// geopotential is the value `Case::geopotential_at` gives there (a data
+    /// level: the level itself, through the same `apply_weights`) and is
+    /// offered under its key too (the geostrophic winds at the boundaries
+    /// start from it); each thickness is `geopotential_difference` of them,
+    /// as in `Case::thickness`, and each thermal wind the one-layer stencil
+    /// on it. A boundary off the data levels (interpolated, hydrostatically
+    /// or not) and model-level data are left to the one-layer path.
+    fn prepare_geopotential_layers(&self, store: &SharedResults, requests: &[LayerRequest]) -> Result<usize> {
+        let route = ThicknessRoute::Geopotential;
+        let Ok((name, kind)) = self.geopotential_source() else { return Ok(0) };
+        if self.dataset.reads_any_pressure(&name) {
+            return Ok(0);
+        }
+        let z_levels = self.levels_of(&name)?;
+        let t_levels = self.dataset.find_role(Role::Temperature).and_then(|t| t.levels.clone());
+        // The plan `geopotential_at` makes for a boundary, when it is a data
+        // level: the index of that level.
+        let data_level = |p: f64| match vertical::geopotential_plan(&z_levels, t_levels.as_deref(), p, self.integration) {
+            Ok(plan) if plan.method == vertical::GeopotentialInterpolation::DataLevel && plan.temperature.is_none() => match plan.geopotential.terms.as_slice() {
+                [(k, w)] if *w == 1.0 => Some(*k),
+                _ => None,
+            },
+            _ => None,
+        };
+        let mut wanted: Vec<LayerRequest> = Vec::new();
+        let mut boundaries: Vec<(f64, usize)> = Vec::new();
+        for request in requests {
+            if let Some(entry) = wanted.iter_mut().find(|r| r.layer == request.layer) {
+                entry.thermal_wind |= request.thermal_wind;
+                continue;
+            }
+            let (Some(bottom), Some(top)) = (data_level(request.layer.bottom), data_level(request.layer.top)) else { continue };
+            for (p, k) in [(request.layer.bottom, bottom), (request.layer.top, top)] {
+                if !boundaries.iter().any(|b| b.0 == p) {
+                    boundaries.push((p, k));
+                }
+            }
+            wanted.push(*request);
+        }
+        if wanted.is_empty() {
+            return Ok(0);
+        }
+        let mut needed: Vec<usize> = boundaries.iter().map(|b| b.1).collect();
+        needed.sort_unstable();
+        needed.dedup();
+        let z = self.read_data(&name, &self.selection_with_levels(Some(needed.iter().map(|&k| z_levels[k]).collect())))?;
+        let how = vertical::GeopotentialInterpolation::DataLevel.describe();
+        let mut at_boundaries: Vec<(f64, Field)> = Vec::with_capacity(boundaries.len());
+        for &(p, k) in &boundaries {
+            let index = needed.iter().position(|&n| n == k).expect("needed");
+            let data = vertical::apply_weights(z.data.view(), &vertical::LevelWeights { terms: vec![(index, 1.0)] }, 1.0);
+            let field = geopotential_field(&z, data, p, how.clone())?;
+            store.offer(&self.dataset, self.shared_key(&format!("geopotential_at {p:?} false")), Shared::Field(field.clone()));
+            at_boundaries.push((p, field));
+        }
+        let at = |p: f64| &at_boundaries.iter().find(|b| b.0 == p).expect("a boundary").1;
+        store.note_many_layer_pass(wanted.len());
+        for request in &wanted {
+            let (data, template, method) = geopotential_difference(at(request.layer.top).clone(), at(request.layer.bottom), kind, &self.constants);
+            let dz = thickness_field(request.layer, &template, data, method)?;
+            if request.thermal_wind {
+                let (u, v) = thermal_wind::thermal_wind_from_thickness(&dz.grid, &self.constants, dz.horizontal_slices(), self.equator_band);
+                let wind = self.thermal_wind_field(request.layer, route, &dz, u, v)?;
+                store.offer(&self.dataset, self.shared_key(&thermal_wind_key(request.layer, route)), Shared::Vector(wind));
+            }
+            store.offer(&self.dataset, self.shared_key(&thickness_key(request.layer, route)), Shared::Field(dz));
+        }
+        Ok(wanted.len())
     }
 }

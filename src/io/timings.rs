@@ -4,6 +4,12 @@
 //! `baroc run` prints under `BAROC_TIMINGS=1` (benches/end_to_end.py); with
 //! `BAROC_TIMINGS=2` every read is also listed on stderr as it ends.
 //!
+//! It also counts which path the layer operators took (thickness and what
+//! starts from it): how many layers the one-pass kernel computed ahead
+//! (`Case::prepare_layers`, in how many passes) and how many were computed
+//! one layer at a time (`Case::thickness` computing afresh), so a bench can
+//! say which path ran.
+//!
 //! Counters only: nothing here changes what is read or computed.
 
 use std::sync::atomic::{AtomicU64, Ordering};
@@ -15,6 +21,9 @@ static NANOSECONDS: AtomicU64 = AtomicU64::new(0);
 static BYTES: AtomicU64 = AtomicU64::new(0);
 static READS: AtomicU64 = AtomicU64::new(0);
 static CACHED: AtomicU64 = AtomicU64::new(0);
+static MANY_LAYER_PASSES: AtomicU64 = AtomicU64::new(0);
+static MANY_LAYER_LAYERS: AtomicU64 = AtomicU64::new(0);
+static ONE_LAYER_LAYERS: AtomicU64 = AtomicU64::new(0);
 
 /// Totals since the process started.
 #[derive(Debug, Clone, Copy, PartialEq, Default)]
@@ -72,5 +81,41 @@ pub fn totals() -> ReadTotals {
         bytes: BYTES.load(Ordering::Relaxed),
         reads: READS.load(Ordering::Relaxed),
         cached: CACHED.load(Ordering::Relaxed),
+    }
+}
+
+/// Layers by path since the process started (see the module comment).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub struct LayerPaths {
+    /// Passes of the one-pass kernel.
+    pub passes: u64,
+    /// Layers those passes computed.
+    pub one_pass: u64,
+    /// Layers computed one at a time (a layer computed ahead but not kept,
+    /// the store's budget being spent, counts in both).
+    pub one_layer: u64,
+}
+
+/// Records one pass of the one-pass kernel over `layers` layers.
+pub fn record_many_layer_pass(layers: usize) {
+    MANY_LAYER_PASSES.fetch_add(1, Ordering::Relaxed);
+    MANY_LAYER_LAYERS.fetch_add(layers as u64, Ordering::Relaxed);
+}
+
+/// Records one layer computed by the one-layer path.
+pub fn record_one_layer() {
+    ONE_LAYER_LAYERS.fetch_add(1, Ordering::Relaxed);
+}
+
+/// The layer counts so far.
+pub fn layer_paths() -> LayerPaths {
+    LayerPaths { passes: MANY_LAYER_PASSES.load(Ordering::Relaxed), one_pass: MANY_LAYER_LAYERS.load(Ordering::Relaxed), one_layer: ONE_LAYER_LAYERS.load(Ordering::Relaxed) }
+}
+
+impl std::fmt::Display for LayerPaths {
+    /// "layers: 12 by the one-pass kernel (2 passes), 1 one layer at a time".
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        let plural = |n: u64| if n == 1 { "" } else { "es" };
+        write!(f, "layers: {} by the one-pass kernel ({} pass{}), {} one layer at a time", self.one_pass, self.passes, plural(self.passes), self.one_layer)
     }
 }

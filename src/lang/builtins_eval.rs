@@ -165,20 +165,26 @@ impl Options {
     fn equator_band(&self) -> Result<Option<f64>> {
         match self.values.iter().find(|o| o.0 == "equator_band") {
             None => Ok(None),
-            Some((_, _, v, span)) => match v {
-                Value::Number { value, unit } if unit.is_angle() || unit.is_dimensionless() => {
-                    let degrees = if unit.is_angle() { unit.convert(*value, &Unit::parse("degree").expect("degree")).unwrap_or(*value) } else { *value };
-                    if !(0.0..=45.0).contains(&degrees) {
-                        return Err(error("the equatorial band is given in degrees of latitude from 0 to 45", *span));
-                    }
-                    Ok(Some(degrees))
-                }
-                Value::Angle { degrees, .. } => Ok(Some(degrees.abs())),
-                other => Err(error(format!("`equator_band` takes an angle such as 10 degrees, found {}", other.kind()), *span)),
-            },
+            Some((_, _, v, span)) => equator_band_degrees(v, *span).map(Some),
         }
     }
 
+}
+
+/// The half-width (degrees) an `equator_band` option's value gives (the
+/// layer lookahead reads the option the same way).
+pub(crate) fn equator_band_degrees(v: &Value, span: Span) -> Result<f64> {
+    match v {
+        Value::Number { value, unit } if unit.is_angle() || unit.is_dimensionless() => {
+            let degrees = if unit.is_angle() { unit.convert(*value, &Unit::parse("degree").expect("degree")).unwrap_or(*value) } else { *value };
+            if !(0.0..=45.0).contains(&degrees) {
+                return Err(error("the equatorial band is given in degrees of latitude from 0 to 45", span));
+            }
+            Ok(degrees)
+        }
+        Value::Angle { degrees, .. } => Ok(degrees.abs()),
+        other => Err(error(format!("`equator_band` takes an angle such as 10 degrees, found {}", other.kind()), span)),
+    }
 }
 
 fn scalar(evaluator: &Evaluator, v: &Value, span: Span, selection: &Selection, function: &str) -> Result<Arc<Field>> {

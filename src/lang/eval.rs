@@ -1085,12 +1085,21 @@ impl Evaluator {
     }
 
     fn at_times(&mut self, base: &Expr, context: &Context, wanted: TimeWanted, span: Span) -> Result<Value> {
+        let (inner, wanted_values) = self.time_context(context, &wanted, span)?;
+        let value = self.expr(base, &inner)?;
+        // A value computed before (a binding) is selected in memory.
+        select_times_in_memory(value, &wanted_values, span)
+    }
+
+    /// The context a value selected at `wanted` times is evaluated in, and
+    /// the time coordinates it keeps (the layer lookahead builds the same).
+    fn time_context(&self, context: &Context, wanted: &TimeWanted, span: Span) -> Result<(Context, Vec<f64>)> {
         let dataset = self.dataset(span)?;
         let times = dataset.variables().find_map(|v| v.times.clone()).ok_or_else(|| error("the dataset has no time dimension", span))?;
         let labels = times.labels();
         let units = crate::calendar::CfTimeUnits::parse(&times.units, &times.calendar).map_err(|e| error(e.to_string(), span))?;
         let decoded: Vec<Option<DateTime>> = times.values.iter().map(|&t| units.decode(t).ok()).collect();
-        let indices: Vec<usize> = match &wanted {
+        let indices: Vec<usize> = match wanted {
             TimeWanted::Index(i) => {
                 if *i >= labels.len() {
                     return Err(error(format!("time step {i} is out of range"), span).with_help(format!("the data have steps 0 to {}", labels.len() - 1)));
@@ -1116,10 +1125,8 @@ impl Evaluator {
             Some(outer) => indices.iter().copied().filter(|i| outer.contains(i)).collect(),
             None => indices.clone(),
         });
-        let value = self.expr(base, &inner)?;
-        // A value computed before (a binding) is selected in memory.
         let wanted_values: Vec<f64> = indices.iter().map(|&i| times.values[i]).collect();
-        select_times_in_memory(value, &wanted_values, span)
+        Ok((inner, wanted_values))
     }
 
     fn sample(&self, v: Value, latitude: f64, longitude: f64, base_span: Span, span: Span) -> Result<Value> {
