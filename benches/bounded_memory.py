@@ -123,7 +123,7 @@ def main():
         "--area",
         choices=["global", "recipe"],
         default="global",
-        help="global: the recipe over the whole grid (poles aside); recipe: its default North Atlantic box, which reads about 6%% of each level",
+        help="global: the recipe over the whole grid (poles aside); recipe: its default box (30N-68N, 62W-12E), which reads about 6%% of each level",
     )
     args = parser.parse_args()
     baroc = os.environ.get("BAROC_BIN", str(ROOT / "target" / "release" / "baroc"))

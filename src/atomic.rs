@@ -93,6 +93,78 @@ pub fn publish(temporary: TempPath, target: &Path) -> std::io::Result<()> {
     temporary.persist(target).map_err(|e| std::io::Error::new(e.error.kind(), plain_os_error(&e.error)))
 }
 
+/// Writes `bytes` as the whole content of the (temporary) file at `path`,
+/// past the page cache where the system allows it (Linux `O_DIRECT`), else
+/// by an ordinary write.
+///
+/// Why: on the virtual machines this was measured on, taking fresh
+/// page-cache pages for a new file costs far more than the write itself (a
+/// new 37 MB file: 0.3 s of system time through the cache, 0.03 s past it;
+/// `dd` shows the same), and Baroc always writes a new file (a temporary
+/// one, renamed when whole). Direct writes need block-aligned memory,
+/// offsets and lengths: the bytes go through an aligned buffer in chunks,
+/// the last chunk padded with zeros and the file then cut to its length.
+/// A file system that refuses direct writes (EINVAL: tmpfs, some network
+/// file systems) gets the ordinary write; any other error is returned.
+pub fn write_all_direct(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
+    #[cfg(target_os = "linux")]
+    if bytes.len() >= DIRECT_WRITE_MINIMUM && std::env::var_os("BAROC_DIRECT_WRITE").is_none_or(|v| v != "0") {
+        match write_direct(path, bytes) {
+            Ok(()) => return Ok(()),
+            Err(e) if e.raw_os_error() == Some(libc::EINVAL) => {}
+            Err(e) => return Err(e),
+        }
+    }
+    std::fs::write(path, bytes)
+}
+
+/// Below this size an ordinary write is as quick (common practice, no source).
+const DIRECT_WRITE_MINIMUM: usize = 1 << 20;
+
+#[cfg(target_os = "linux")]
+fn write_direct(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
+    use std::os::unix::fs::{FileExt, OpenOptionsExt};
+    // 4096 covers devices of 512- and 4096-byte logical blocks.
+    const BLOCK: usize = 4096;
+    const CHUNK: usize = 8 << 20;
+    let file = std::fs::OpenOptions::new().write(true).truncate(true).custom_flags(libc::O_DIRECT).open(path)?;
+    let layout = std::alloc::Layout::from_size_align(CHUNK, BLOCK).expect("constant layout");
+    struct Aligned(*mut u8, std::alloc::Layout);
+    impl Drop for Aligned {
+        fn drop(&mut self) {
+            // SAFETY: allocated below with this layout.
+            unsafe { std::alloc::dealloc(self.0, self.1) }
+        }
+    }
+    // SAFETY: the layout has a non-zero size.
+    let pointer = unsafe { std::alloc::alloc(layout) };
+    if pointer.is_null() {
+        std::alloc::handle_alloc_error(layout);
+    }
+    let buffer = Aligned(pointer, layout);
+    // SAFETY: CHUNK bytes owned by `buffer`; every byte written is first
+    // copied or zeroed below, and only those are read.
+    let chunk_buffer = unsafe { std::slice::from_raw_parts_mut(buffer.0, CHUNK) };
+    let mut offset = 0;
+    if (bytes.as_ptr() as usize).is_multiple_of(BLOCK) {
+        // Already aligned (an image from io::netcdf_raw): its whole blocks
+        // go as they are; only the tail goes through the buffer.
+        let whole = bytes.len() / BLOCK * BLOCK;
+        file.write_all_at(&bytes[..whole], 0)?;
+        offset = whole;
+    }
+    while offset < bytes.len() {
+        let n = CHUNK.min(bytes.len() - offset);
+        let padded = n.div_ceil(BLOCK) * BLOCK;
+        chunk_buffer[..n].copy_from_slice(&bytes[offset..offset + n]);
+        chunk_buffer[n..padded].fill(0);
+        file.write_all_at(&chunk_buffer[..padded], offset as u64)?;
+        offset += n;
+    }
+    file.set_len(bytes.len() as u64)?;
+    Ok(())
+}
+
 /// Writes bytes to `target` atomically.
 pub fn write(target: &Path, bytes: &[u8]) -> std::io::Result<()> {
     let temporary = temporary_beside(target)?;
@@ -234,5 +306,43 @@ mod tests {
         let missing = dir.path().join("nodir").join("r.html");
         let message = Outputs::check(&[("the NetCDF output", &a), ("the report", &missing)]).unwrap_err();
         assert_eq!(message, format!("cannot write the report {}: the folder {} does not exist", missing.display(), dir.path().join("nodir").display()));
+    }
+}
+
+#[cfg(test)]
+mod direct_write_tests {
+    use super::*;
+
+    /// Whole content, exact length, for sizes around the block and chunk
+    /// edges, over a longer earlier content; also where direct writes are
+    /// refused (tmpfs), which takes the ordinary write.
+    #[test]
+    fn writes_every_byte_at_every_size() {
+        let mut folders = vec![std::env::temp_dir()];
+        if Path::new("/dev/shm").is_dir() {
+            folders.push(PathBuf::from("/dev/shm"));
+        }
+        for folder in folders {
+            let path = folder.join(format!("baroc-direct-{}.bin", std::process::id()));
+            std::fs::write(&path, vec![0xAB; (20 << 20) + 1]).unwrap();
+            for size in [0, 100, (1 << 20) - 1, 1 << 20, (1 << 20) + 123, 8 << 20, (8 << 20) + 1, (17 << 20) + 4095] {
+                // From a block-aligned buffer and from one that is not.
+                let layout = std::alloc::Layout::from_size_align(size + 1, 4096).unwrap();
+                // SAFETY: non-zero size; zeroed, then every byte used is written below.
+                let block = unsafe { std::alloc::alloc_zeroed(layout) };
+                let whole = unsafe { std::slice::from_raw_parts_mut(block, size + 1) };
+                for i in 0..=size {
+                    whole[i] = (i.wrapping_mul(2_654_435_761) >> 13) as u8;
+                }
+                for bytes in [&whole[..size], &whole[1..]] {
+                    write_all_direct(&path, bytes).unwrap();
+                    let back = std::fs::read(&path).unwrap();
+                    assert_eq!(back.len(), size, "length at {size} in {}", folder.display());
+                    assert!(back == bytes, "content at {size} in {}", folder.display());
+                }
+                unsafe { std::alloc::dealloc(block, layout) };
+            }
+            std::fs::remove_file(&path).unwrap();
+        }
     }
 }

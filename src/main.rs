@@ -425,7 +425,12 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
         let staged = outputs.stage(path).map_err(|e| format!("error: cannot write {}: {e}", path.display()))?;
         let names = baroc::runner::write_results_with(&staged, &outcome, &request, attributes).map_err(|e| e.0.replace(&staged.display().to_string(), &path.display().to_string()))?;
         if timings {
-            eprintln!("timings: write {:.3} s", started.elapsed().as_secs_f64());
+            let (build, file, bytes) = baroc::io::timings::write_totals();
+            eprintln!(
+                "timings: write {:.3} s (file image built in memory {build:.3} s, {:.1} MB put in the file {file:.3} s)",
+                started.elapsed().as_secs_f64(),
+                bytes as f64 / 1e6
+            );
             eprintln!("timings: run command total {:.3} s", run_started.elapsed().as_secs_f64());
             let (fresh, reused) = baroc::memory::large_block_bytes();
             eprintln!("timings: large blocks {:.0} MB mapped fresh, {:.0} MB reused (src/memory.rs)", fresh as f64 / 1e6, reused as f64 / 1e6);

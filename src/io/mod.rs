@@ -17,6 +17,7 @@ pub mod grib2;
 pub mod grib2_source;
 pub mod grib2_unpack;
 pub mod grib2_writer;
+pub mod netcdf_raw;
 pub mod netcdf_source;
 pub mod model_level_source;
 pub mod model_levels;

@@ -119,3 +119,25 @@ impl std::fmt::Display for LayerPaths {
         write!(f, "layers: {} by the one-pass kernel ({} pass{}), {} one layer at a time", self.one_pass, self.passes, plural(self.passes), self.one_layer)
     }
 }
+
+static WRITE_BUILD_NANOSECONDS: AtomicU64 = AtomicU64::new(0);
+static WRITE_FILE_NANOSECONDS: AtomicU64 = AtomicU64::new(0);
+static WRITE_BYTES: AtomicU64 = AtomicU64::new(0);
+
+/// Records one output written from a memory image: the time netCDF-C took
+/// to build the image, the time to put it in the file, and its size.
+pub fn record_write(build: Duration, file: Duration, bytes: u64) {
+    WRITE_BUILD_NANOSECONDS.fetch_add(build.as_nanos() as u64, Ordering::Relaxed);
+    WRITE_FILE_NANOSECONDS.fetch_add(file.as_nanos() as u64, Ordering::Relaxed);
+    WRITE_BYTES.fetch_add(bytes, Ordering::Relaxed);
+}
+
+/// Seconds building images, seconds writing them to files, and bytes, of
+/// the outputs written from memory images so far.
+pub fn write_totals() -> (f64, f64, u64) {
+    (
+        WRITE_BUILD_NANOSECONDS.load(Ordering::Relaxed) as f64 * 1e-9,
+        WRITE_FILE_NANOSECONDS.load(Ordering::Relaxed) as f64 * 1e-9,
+        WRITE_BYTES.load(Ordering::Relaxed),
+    )
+}

@@ -54,6 +54,21 @@ def partials(directory):
     return [p for p in os.listdir(directory) if p.startswith(".baroc-") and p.endswith(".partial")]
 
 
+def has_open(pid, path):
+    """Whether process `pid` holds `path` open (Linux /proc)."""
+    try:
+        descriptors = os.listdir(f"/proc/{pid}/fd")
+    except OSError:
+        return False
+    for d in descriptors:
+        try:
+            if os.readlink(f"/proc/{pid}/fd/{d}") == str(path):
+                return True
+        except OSError:
+            pass
+    return False
+
+
 def kill_while_writing(command, directory):
     """Starts `command`, waits until its temporary output appears beside the
     output path (writing has begun), kills it with SIGKILL, and returns its
@@ -90,7 +105,14 @@ def test_a_run_killed_while_writing_leaves_nothing_at_the_output_path(baroc, lar
 def test_an_each_time_run_killed_while_computing_leaves_nothing(baroc, large_case, tmp_path):
     out = tmp_path / "out.nc"
     process = subprocess.Popen([baroc, "run", "-e", "let warm = temperature * 1", "--each-time", "-o", str(out), str(large_case)], stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-    time.sleep(0.3)
+    # Killed as soon as it has the input open (it is then reading or
+    # computing its first steps), not after a fixed sleep, which a quick
+    # machine outruns.
+    deadline = time.monotonic() + 60
+    while not has_open(process.pid, large_case):
+        if process.poll() is not None or time.monotonic() > deadline:
+            pytest.fail(f"the run ended (status {process.returncode}) before it opened its input")
+        time.sleep(0.001)
     process.send_signal(signal.SIGKILL)
     assert process.wait(timeout=30) == -signal.SIGKILL
     assert not out.exists()
