@@ -27,6 +27,15 @@ use crate::shard::{Shard, ShardPlan};
 /// (inputs, intermediates, results); rule of thumb, see the module comment.
 pub const WORKING_SET_FACTOR: f64 = 6.0;
 
+/// The largest output a bounded run builds in memory before writing it
+/// (`io::writer`): an eighth of the limit, since while the image is taken
+/// the results, netCDF's copy and the image are held at once (a quarter of
+/// the limit beside the results, which the working-set factor already
+/// counts). Larger outputs are written by netCDF-C straight to the file.
+fn image_limit(limit: u64) -> usize {
+    usize::try_from(limit / 8).unwrap_or(usize::MAX)
+}
+
 /// Parses a size such as `4GiB`, `512 MiB`, `2GB`, `1.5G` or `1000000`.
 /// Binary prefixes (KiB, MiB, GiB, TiB; K, M, G, T alone) count in 1024s,
 /// decimal ones (kB, MB, GB, TB) in 1000s (IEC 80000-13).
@@ -98,7 +107,7 @@ pub fn run_to_file(request: &RunRequest, output: &Path, limit: u64, attributes: 
     drop(dataset);
     if blocks == 1 {
         let outcome = crate::runner::run(request)?;
-        let names = crate::runner::write_results_with(output, &outcome, request, attributes)?;
+        let names = crate::runner::write_results_within(output, &outcome, request, attributes, Some(image_limit(limit)))?;
         return Ok(BoundedSummary { names, blocks, steps_per_block: per_block, time_steps: steps.len(), time_step_bytes: step_bytes });
     }
     let labels = times.map(|t| t.labels()).unwrap_or_default();
@@ -121,7 +130,7 @@ pub fn run_to_file(request: &RunRequest, output: &Path, limit: u64, attributes: 
         let temporary = crate::atomic::temporary_beside(output).map_err(|e| RunError(format!("error: cannot write {}: {e}", output.display())))?;
         // Written under the request's own text, so every piece says the same
         // recipe, as merge checks.
-        names = crate::runner::write_results_with(&temporary, &outcome, request, plan.attributes())?;
+        names = crate::runner::write_results_within(&temporary, &outcome, request, plan.attributes(), Some(image_limit(limit)))?;
         drop(outcome);
         pieces.push(temporary);
     }

@@ -252,6 +252,19 @@ fn model_level_provenance(dataset: Option<&Dataset>) -> Vec<(String, String)> {
 
 /// `write_results` with further global attributes (a shard's record).
 pub fn write_results_with(path: &Path, outcome: &RunOutcome, request: &RunRequest, attributes: Vec<(String, String)>) -> Result<Vec<String>, RunError> {
+    write_results_within(path, outcome, request, attributes, None)
+}
+
+/// `write_results_with`, building the file in memory only when its data
+/// take at most `memory_image_limit` bytes (`io::writer::WriteOptions`; a
+/// run bounded in memory passes a share of its limit).
+pub fn write_results_within(
+    path: &Path,
+    outcome: &RunOutcome,
+    request: &RunRequest,
+    attributes: Vec<(String, String)>,
+    memory_image_limit: Option<usize>,
+) -> Result<Vec<String>, RunError> {
     // Each result is written under its name as it stands (no copy of the data).
     let mut fields: Vec<(String, &Field)> = Vec::new();
     for r in &outcome.results {
@@ -284,6 +297,7 @@ pub fn write_results_with(path: &Path, outcome: &RunOutcome, request: &RunReques
             .chain(attributes)
             .chain(model_level_provenance(outcome.dataset.as_deref()))
             .collect(),
+        memory_image_limit,
         ..WriteOptions::default()
     };
     write_named_fields(path, &refs, &options).map_err(|e| RunError(format!("error: {e}")))?;
