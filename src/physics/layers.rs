@@ -19,7 +19,7 @@
 //! layer's thickness NaN there (no fallback to the trapezoid here: that
 //! choice belongs to `diagnostics::Case`).
 
-use ndarray::{Array4, ArrayView3, ArrayView4, ArrayViewMut3, Axis};
+use ndarray::{Array4, ArrayView3, ArrayView4, ArrayViewMut3, ArrayViewMut4, Axis};
 use rayon::prelude::*;
 
 use super::differences::SphericalMetric;
@@ -254,7 +254,7 @@ where
     F: Fn(f64, f64) -> f64 + Sync,
 {
     let factor = constants.dry_air_gas_constant / constants.gravity;
-    let (nt, nz, ny, nx) = temperature.dim();
+    let (nt, _, ny, nx) = temperature.dim();
     let shape = (nt, layers.len(), ny, nx);
     if grid.projection.is_some() {
         let thickness = weighted_layers_with(temperature, companion, layers, factor, transform);
@@ -266,8 +266,44 @@ where
     let mut thickness: Array4<f32> = super::allocation::zeroed(shape);
     let mut eastward: Array4<f32> = super::allocation::zeroed(shape);
     let mut northward: Array4<f32> = super::allocation::zeroed(shape);
-    if thickness.is_empty() {
-        return (thickness, eastward, northward);
+    let outputs = [thickness.view_mut(), eastward.view_mut(), northward.view_mut()];
+    layers_and_thermal_wind_into(grid, constants, temperature, companion, layers, equator_band, transform, outputs);
+    (thickness, eastward, northward)
+}
+
+/// `layers_and_thermal_wind_with` into arrays the caller already holds
+/// ([thickness, eastward, northward], each [time, layer, lat, lon] in
+/// standard layout, every value overwritten): the same bits, without
+/// allocating, for a caller that reuses its outputs from one time step to
+/// the next (memory already faulted in: see `allocation`). Panics if an
+/// output's shape is not [time, layer, lat, lon] of the inputs or it is not
+/// in standard layout (a caller's error, not the user's).
+#[allow(clippy::too_many_arguments)]
+pub fn layers_and_thermal_wind_into<F>(
+    grid: &Grid,
+    constants: &Constants,
+    temperature: ArrayView4<f32>,
+    companion: Option<ArrayView4<f32>>,
+    layers: &[LevelWeights],
+    equator_band: f64,
+    transform: F,
+    outputs: [ArrayViewMut4<f32>; 3],
+) where
+    F: Fn(f64, f64) -> f64 + Sync,
+{
+    let factor = constants.dry_air_gas_constant / constants.gravity;
+    let (nt, nz, ny, nx) = temperature.dim();
+    let shape = (nt, layers.len(), ny, nx);
+    assert!(outputs.iter().all(|o| o.dim() == shape), "outputs of shape {shape:?} expected");
+    if grid.projection.is_some() {
+        let computed = layers_and_thermal_wind_with(grid, constants, temperature, companion, layers, equator_band, transform);
+        for (mut output, values) in outputs.into_iter().zip([computed.0, computed.1, computed.2]) {
+            output.assign(&values);
+        }
+        return;
+    }
+    if shape.0 * shape.1 * ny * nx == 0 {
+        return;
     }
     debug_assert!(layers.iter().all(|l| l.terms.iter().all(|&(k, _)| k < nz)));
     let data = temperature.as_standard_layout();
@@ -285,7 +321,7 @@ where
     // that many, the last group may hold fewer), rows rows_per_part * part..
     // of each, as one slice of that plane's rows per output.
     let mut tasks: Vec<Vec<PlaneRows>> = (0..groups * parts).map(|_| Vec::with_capacity(LAYERS_PER_FUSED_TASK)).collect();
-    let outputs = [&mut thickness, &mut eastward, &mut northward].map(|a| a.as_slice_mut().expect("a fresh array is contiguous"));
+    let outputs = outputs.map(|a| a.into_slice().expect("outputs in standard layout"));
     let [dz, u, v] = outputs.map(|a| a.chunks_exact_mut(plane).flat_map(|p| p.chunks_mut(rows_per_part * nx)));
     for (n, ((dz, u), v)) in dz.zip(u).zip(v).enumerate() {
         let (p, part) = (n / parts, n % parts);
@@ -353,7 +389,6 @@ where
         }
         debug_assert!(derived.iter().all(|&n| n == rows.end));
     });
-    (thickness, eastward, northward)
 }
 
 /// One task's share of one [time, layer] plane of the three outputs of
@@ -515,6 +550,29 @@ mod tests {
                 // The last row has a wind (one-sided difference), the equator none.
                 assert!(u[[nt - 1, 0, ny - 1, 7]].is_finite() && v[[nt - 1, 0, ny - 1, 7]].is_finite() && u[[nt - 1, 0, 30, 7]].is_nan());
             }
+        }
+    }
+
+    #[test]
+    fn fused_pair_into_held_outputs_overwrites_every_value_with_the_same_bits() {
+        // Outputs the caller holds, full of old values (a previous time
+        // step's, here 7 and NaN): every value is overwritten with the bits
+        // of the allocating call, on a global grid (parts of rows: 8 layers
+        // x 2 time steps) and on a projected one.
+        let (levels, t) = case();
+        let c = Constants::default();
+        let global = Grid::new((0..37).map(|j| 90.0 - 5.0 * j as f64).collect(), (0..72).map(|i| 5.0 * i as f64).collect());
+        use crate::projection::{LambertConformal, ProjectedGrid, Projection};
+        let projection = Projection::LambertConformal(LambertConformal::new((35.0, 55.0), -10.0, 45.0, 0.0, 0.0, c.earth_radius).unwrap());
+        let projected = Grid::projected(ProjectedGrid::new(projection, (0..72).map(|i| -7.0e5 + 2.0e4 * i as f64).collect(), (0..37).map(|j| -3.0e5 + 2.0e4 * j as f64).collect()));
+        let layers = adjacent_layer_weights(&levels, IntegrationRule::Quadratic).unwrap();
+        for grid in [global, projected] {
+            let fresh = layers_and_thermal_wind(&grid, &c, t.view(), &layers, 5.0);
+            let shape = fresh.0.dim();
+            let mut held = [Array4::from_elem(shape, 7.0f32), Array4::from_elem(shape, f32::NAN), Array4::from_elem(shape, 7.0f32)];
+            let [a, b, d] = &mut held;
+            layers_and_thermal_wind_into(&grid, &c, t.view(), None, &layers, 5.0, identity, [a.view_mut(), b.view_mut(), d.view_mut()]);
+            assert!(same_bits(&held[0], fresh.0.view()) && same_bits(&held[1], fresh.1.view()) && same_bits(&held[2], fresh.2.view()));
         }
     }
 
