@@ -275,7 +275,8 @@ where
 /// ([thickness, eastward, northward], each [time, layer, lat, lon] in
 /// standard layout, every value overwritten): the same bits, without
 /// allocating, for a caller that reuses its outputs from one time step to
-/// the next (memory already faulted in: see `allocation`). Panics if an
+/// the next (memory already faulted in: see `allocation`). On a projected
+/// grid the separate calls run and their results are copied in. Panics if an
 /// output's shape is not [time, layer, lat, lon] of the inputs or it is not
 /// in standard layout (a caller's error, not the user's).
 #[allow(clippy::too_many_arguments)]
