@@ -212,9 +212,17 @@ impl SphericalMetric {
     /// operations; used by kernels that compute a band of a field and
     /// differentiate it while it is still in cache.
     pub fn scaled_d_dlat_row_of_band(&self, rows: &[f32], first_row: usize, nx: usize, j: usize, scale: f64, out: &mut [f32]) {
+        self.scaled_d_dlat_row_of_rows(|k| &rows[(k - first_row) * nx..(k - first_row + 1) * nx], nx, j, scale, out)
+    }
+
+    /// `scaled_d_dlat_row` with the slice's rows given one by one: `row(k)`
+    /// is row k (`nx` values), asked only for the rows of row j's stencil.
+    /// Same values, same order of operations; for kernels whose rows live in
+    /// more than one buffer (a band written straight into its output, the
+    /// rows just outside it in a scratch buffer).
+    pub fn scaled_d_dlat_row_of_rows<'a>(&self, row: impl Fn(usize) -> &'a [f32], nx: usize, j: usize, scale: f64, out: &mut [f32]) {
         let s = &self.latitude[j];
-        let row = |k: usize| &rows[(s.index[k] - first_row) * nx..(s.index[k] - first_row + 1) * nx];
-        let (a, b, c) = (row(0), row(1), row(2));
+        let (a, b, c) = (&row(s.index[0])[..nx], &row(s.index[1])[..nx], &row(s.index[2])[..nx]);
         let [w0, w1, w2] = s.weight;
         let out = &mut out[..nx];
         #[cfg(target_arch = "x86_64")]

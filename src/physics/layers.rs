@@ -185,21 +185,40 @@ fn identity(value: f64, _: f64) -> f64 {
     value
 }
 
-/// Latitude rows per parallel task of `layers_and_thermal_wind`. Each band
-/// also computes the thickness of the rows just outside it that its
-/// latitude derivative reaches (one on either side inside the grid), so a
-/// wider band wastes less: 24 rows add 2 (8 percent), and the band's
-/// thickness rows of one layer (26 x 1440 float32, 150 KB) with the two
-/// temperature levels they come from stay in a core's L2 cache while both
-/// wind components are taken from them.
-const ROWS_PER_FUSED_TASK: usize = 24;
+/// Layers (planes of [time, layer]) per task of `layers_and_thermal_wind`.
+/// A task owns whole planes of its three outputs and walks down them in
+/// bands, each band of every one of its layers in turn. Two layers share a
+/// level, so the temperature comes from memory 1.5 times per layer (three
+/// levels for two layers) where one task per band of every layer read it
+/// about once; in exchange each thread writes six output streams at a time
+/// instead of 108, and every output page is written by one thread. Freshly
+/// allocated outputs are faulted in and zeroed by the operating system on
+/// first write (the larger part of this kernel's time, by a profile), and a
+/// page written soon after it was zeroed is written while still in cache;
+/// measured faster than the band-of-every-layer order (benches/engine.rs,
+/// figures in the commit message), by a reasoned, not proven, cause.
+const LAYERS_PER_FUSED_TASK: usize = 2;
+
+/// Latitude rows per band of `layers_and_thermal_wind`: a band's rows of
+/// the three temperature levels two layers reach (24 x 1440 float32 each,
+/// 415 KB) and its thickness rows (138 KB per layer) stay in a core's L2
+/// cache while the layers of the band are summed and differentiated.
+const ROWS_PER_FUSED_BAND: usize = 24;
+
+/// At least this many tasks per call of `layers_and_thermal_wind`, so that
+/// two to a few cores share the work evenly (work stealing among many
+/// tasks) even when the layers are few: with fewer groups of layers than
+/// this, each plane is also split into parts of rows.
+const MIN_FUSED_TASKS: usize = 16;
 
 /// Thickness (m) of each layer in `layers` (weights over the levels of
 /// `temperature`, [time, level, lat, lon]) and its thermal wind (m s-1),
 /// eastward and northward, all [time, layer, lat, lon], in one pass: each
-/// band of rows of a layer's thickness is computed once, written out, and
-/// differentiated while still in cache, so neither the temperature nor the
-/// thickness is read back from memory for the wind.
+/// band of rows of a layer's thickness is computed once, straight into the
+/// output, and differentiated while still in cache, so the thickness is
+/// not read back from memory for the wind (the rows just outside a part of
+/// rows, when planes are split among tasks, are summed twice instead).
+/// Tasks: `LAYERS_PER_FUSED_TASK`.
 ///
 /// Thermal wind from thickness (field guide, "Formulas"):
 ///   V_T = (g0/f) k x grad(dz),
@@ -235,7 +254,7 @@ where
     F: Fn(f64, f64) -> f64 + Sync,
 {
     let factor = constants.dry_air_gas_constant / constants.gravity;
-    let (nt, nz, ny, nx) = temperature.dim();
+    let (nt, _, ny, nx) = temperature.dim();
     let shape = (nt, layers.len(), ny, nx);
     if grid.projection.is_some() {
         let thickness = weighted_layers_with(temperature, companion, layers, factor, transform);
@@ -247,8 +266,45 @@ where
     let mut thickness: Array4<f32> = super::allocation::zeroed(shape);
     let mut eastward: Array4<f32> = super::allocation::zeroed(shape);
     let mut northward: Array4<f32> = super::allocation::zeroed(shape);
-    if thickness.is_empty() {
-        return (thickness, eastward, northward);
+    let outputs = [thickness.view_mut(), eastward.view_mut(), northward.view_mut()];
+    layers_and_thermal_wind_into(grid, constants, temperature, companion, layers, equator_band, transform, outputs);
+    (thickness, eastward, northward)
+}
+
+/// `layers_and_thermal_wind_with` into arrays the caller already holds
+/// ([thickness, eastward, northward], each [time, layer, lat, lon] in
+/// standard layout, every value overwritten): the same bits, without
+/// allocating, for a caller that reuses its outputs from one time step to
+/// the next (memory already faulted in: see `allocation`). On a projected
+/// grid the separate calls run and their results are copied in. Panics if an
+/// output's shape is not [time, layer, lat, lon] of the inputs or it is not
+/// in standard layout (a caller's error, not the user's).
+#[allow(clippy::too_many_arguments)]
+pub fn layers_and_thermal_wind_into<F>(
+    grid: &Grid,
+    constants: &Constants,
+    temperature: ArrayView4<f32>,
+    companion: Option<ArrayView4<f32>>,
+    layers: &[LevelWeights],
+    equator_band: f64,
+    transform: F,
+    outputs: [ArrayViewMut4<f32>; 3],
+) where
+    F: Fn(f64, f64) -> f64 + Sync,
+{
+    let factor = constants.dry_air_gas_constant / constants.gravity;
+    let (nt, nz, ny, nx) = temperature.dim();
+    let shape = (nt, layers.len(), ny, nx);
+    assert!(outputs.iter().all(|o| o.dim() == shape), "outputs of shape {shape:?} expected");
+    if grid.projection.is_some() {
+        let computed = layers_and_thermal_wind_with(grid, constants, temperature, companion, layers, equator_band, transform);
+        for (mut output, values) in outputs.into_iter().zip([computed.0, computed.1, computed.2]) {
+            output.assign(&values);
+        }
+        return;
+    }
+    if shape.0 * shape.1 * ny * nx == 0 {
+        return;
     }
     debug_assert!(layers.iter().all(|l| l.terms.iter().all(|&(k, _)| k < nz)));
     let data = temperature.as_standard_layout();
@@ -257,27 +313,69 @@ where
     let companion_flat = companion_data.as_ref().map(|c| c.as_slice().expect("standard layout"));
     let metric = SphericalMetric::new(grid, constants.earth_radius);
     let over_f = scale_over_coriolis(grid, constants, constants.gravity, equator_band);
-    let thickness_bands = thickness.axis_chunks_iter_mut(Axis(2), ROWS_PER_FUSED_TASK).into_par_iter();
-    let eastward_bands = eastward.axis_chunks_iter_mut(Axis(2), ROWS_PER_FUSED_TASK).into_par_iter();
-    let northward_bands = northward.axis_chunks_iter_mut(Axis(2), ROWS_PER_FUSED_TASK).into_par_iter();
-    thickness_bands.zip(eastward_bands).zip(northward_bands).enumerate().for_each(|(band, ((mut dz, mut u), mut v))| {
-        let first = band * ROWS_PER_FUSED_TASK;
-        let rows = first..first + dz.dim().2;
-        let (lo, hi) = metric.latitude_rows_reached(rows.clone());
-        let mut local = vec![0.0f32; (hi - lo) * nx];
+    let plane = ny * nx;
+    let planes = nt * layers.len();
+    let groups = planes.div_ceil(LAYERS_PER_FUSED_TASK);
+    let rows_per_part = ny.div_ceil(MIN_FUSED_TASKS.div_ceil(groups).min(ny.div_ceil(ROWS_PER_FUSED_BAND)));
+    let parts = ny.div_ceil(rows_per_part);
+    // Task (group, part): planes LAYERS_PER_FUSED_TASK * group.. (at most
+    // that many, the last group may hold fewer), rows rows_per_part * part..
+    // of each, as one slice of that plane's rows per output.
+    let mut tasks: Vec<Vec<PlaneRows>> = (0..groups * parts).map(|_| Vec::with_capacity(LAYERS_PER_FUSED_TASK)).collect();
+    let outputs = outputs.map(|a| a.into_slice().expect("outputs in standard layout"));
+    let [dz, u, v] = outputs.map(|a| a.chunks_exact_mut(plane).flat_map(|p| p.chunks_mut(rows_per_part * nx)));
+    for (n, ((dz, u), v)) in dz.zip(u).zip(v).enumerate() {
+        let (p, part) = (n / parts, n % parts);
+        tasks[(p / LAYERS_PER_FUSED_TASK) * parts + part].push(PlaneRows { plane: p, first: part * rows_per_part, thickness: dz, eastward: u, northward: v });
+    }
+    tasks.into_par_iter().for_each(|mut task| {
         let mut sum = vec![0.0f64; nx];
-        for t in 0..nt {
-            let step = t * nz * ny * nx..(t + 1) * nz * ny * nx;
-            let (time, companion_time) = (&flat[step.clone()], companion_flat.map(|c| &c[step.clone()]));
-            for (layer, weights) in layers.iter().enumerate() {
-                for (r, out) in (lo..hi).zip(local.chunks_exact_mut(nx)) {
-                    layer_row(time, companion_time, ny, nx, weights, factor, r, &mut sum, out, &transform);
+        let Some(rows) = task.first().map(|p| p.first..p.first + p.thickness.len() / nx) else { return };
+        // Rows just outside the part that its latitude derivative reaches
+        // (none when the part is the whole plane, else one on either side
+        // inside the grid, two below a last part of one row): computed
+        // first, into `outside` (below the part first), per plane.
+        let (lo, hi) = metric.latitude_rows_reached(rows.clone());
+        let below = rows.start - lo;
+        let outside_rows = (lo..rows.start).chain(rows.end..hi);
+        let per_plane = outside_rows.clone().count() * nx;
+        let mut outside = vec![0.0f32; per_plane * task.len()];
+        for (n, plane_rows) in task.iter().enumerate() {
+            let outside = &mut outside[n * per_plane..(n + 1) * per_plane];
+            let (time, companion_time, weights) = step_of(flat, companion_flat, plane_rows.plane, layers, nz * plane);
+            for (r, out) in outside_rows.clone().zip(outside.chunks_exact_mut(nx)) {
+                layer_row(time, companion_time, ny, nx, weights, factor, r, &mut sum, out, &transform);
+            }
+        }
+        // Down the part in bands: each band's thickness rows straight into
+        // the output, then every row whose latitude stencil is now complete
+        // differentiated from them (the derivative of the band's last row
+        // waits for the next band's first).
+        let mut derived = vec![rows.start; task.len()];
+        for band in (rows.start..rows.end).step_by(ROWS_PER_FUSED_BAND) {
+            let end = (band + ROWS_PER_FUSED_BAND).min(rows.end);
+            for (n, (plane_rows, next)) in task.iter_mut().zip(derived.iter_mut()).enumerate() {
+                let outside = &outside[n * per_plane..(n + 1) * per_plane];
+                let (time, companion_time, weights) = step_of(flat, companion_flat, plane_rows.plane, layers, nz * plane);
+                let PlaneRows { thickness: dz, eastward: u, northward: v, .. } = plane_rows;
+                for (j, out) in (band..end).zip(dz[(band - rows.start) * nx..].chunks_exact_mut(nx)) {
+                    layer_row(time, companion_time, ny, nx, weights, factor, j, &mut sum, out, &transform);
                 }
-                for j in rows.clone() {
-                    let r = j - first;
-                    let here = &local[(j - lo) * nx..(j - lo + 1) * nx];
-                    row_of(&mut dz, t, layer, r).copy_from_slice(here);
-                    let (u_row, v_row) = (row_of(&mut u, t, layer, r), row_of(&mut v, t, layer, r));
+                let dz: &[f32] = dz;
+                let row = |k: usize| -> &[f32] {
+                    let (buffer, r) = match k {
+                        k if k < rows.start => (outside, k - lo),
+                        k if k < rows.end => (dz, k - rows.start),
+                        k => (outside, below + k - rows.end),
+                    };
+                    &buffer[r * nx..(r + 1) * nx]
+                };
+                let ready = |j: usize| metric.latitude[j].index.iter().all(|&k| k < end || k >= rows.end);
+                while *next < rows.end && ready(*next) {
+                    let j = *next;
+                    *next += 1;
+                    let r = j - rows.start;
+                    let (u_row, v_row) = (&mut u[r * nx..(r + 1) * nx], &mut v[r * nx..(r + 1) * nx]);
                     let (k, kx) = (over_f[j], metric.inverse_x_scale[j]);
                     if !k.is_finite() || !kx.is_finite() {
                         u_row.fill(f32::NAN);
@@ -285,18 +383,30 @@ where
                         continue;
                     }
                     // As balanced_wind: u = -k ky d/dlat, v = k kx d/dlon.
-                    metric.scaled_d_dlat_row_of_band(&local, lo, nx, j, -k * metric.inverse_radius, u_row);
-                    metric.scaled_d_dlon_row(here, k * kx, v_row);
+                    metric.scaled_d_dlat_row_of_rows(row, nx, j, -k * metric.inverse_radius, u_row);
+                    metric.scaled_d_dlon_row(row(j), k * kx, v_row);
                 }
             }
         }
+        debug_assert!(derived.iter().all(|&n| n == rows.end));
     });
-    (thickness, eastward, northward)
 }
 
-/// Row r of [time, layer] of a band, as a contiguous slice.
-fn row_of<'a>(band: &'a mut ArrayViewMut4<f32>, t: usize, layer: usize, r: usize) -> &'a mut [f32] {
-    band.slice_mut(ndarray::s![t, layer, r, ..]).into_slice().expect("rows of a fresh array are contiguous")
+/// One task's share of one [time, layer] plane of the three outputs of
+/// `layers_and_thermal_wind`: rows `first..` of plane number `plane`.
+struct PlaneRows<'a> {
+    plane: usize,
+    first: usize,
+    thickness: &'a mut [f32],
+    eastward: &'a mut [f32],
+    northward: &'a mut [f32],
+}
+
+/// The time step (and its companion) that plane number `plane` of [time,
+/// layer] comes from, `step` values each, and the plane's layer weights.
+fn step_of<'a, 'b>(flat: &'a [f32], companion: Option<&'a [f32]>, plane: usize, layers: &'b [LevelWeights], step: usize) -> (&'a [f32], Option<&'a [f32]>, &'b LevelWeights) {
+    let t = plane / layers.len();
+    (&flat[t * step..(t + 1) * step], companion.map(|c| &c[t * step..(t + 1) * step]), &layers[plane % layers.len()])
 }
 
 /// Thickness and thermal wind of every layer between neighbouring data
@@ -404,6 +514,66 @@ mod tests {
             assert!(same_bits(&v, sv.view().into_shape_with_order((nt, nl, ny, nx)).unwrap()), "northward by {rule:?}");
             // Masks as balanced_wind: the equator row (18) and the poles.
             assert!(u[[0, 0, 18, 5]].is_nan() && v[[0, 0, 0, 5]].is_nan() && u[[0, 0, 10, 5]].is_finite());
+        }
+    }
+
+    #[test]
+    fn fused_bands_ending_in_a_single_row_give_the_bits_of_the_separate_calls() {
+        // Enough layers for whole planes per task (17 layers x 2 time steps
+        // = 34 planes, 17 tasks of two: no split into parts of rows), on a
+        // regional grid of 2 * ROWS_PER_FUSED_BAND + 1 rows: two full bands
+        // whose last rows are differentiated only once the next band is
+        // summed, and a last band of one row, the grid's edge, with its
+        // one-sided latitude stencil. Crosses the equator (masked rows).
+        // Then one layer of one time step (a single task, split into parts
+        // of rows that each sum the rows just outside them).
+        let levels: Vec<f64> = (0..18).map(|k| 100000.0 - 5000.0 * k as f64).collect();
+        let ny = 2 * ROWS_PER_FUSED_BAND + 1;
+        assert!(2 * (levels.len() - 1) >= LAYERS_PER_FUSED_TASK * MIN_FUSED_TASKS);
+        let lats: Vec<f64> = (0..ny).map(|j| 60.0 - 2.0 * j as f64).collect();
+        let grid = Grid::new(lats, (0..40).map(|i| 100.0 + 0.5 * i as f64).collect());
+        let t = Array4::from_shape_fn((2, levels.len(), ny, 40), |(n, k, j, i)| {
+            (250.0 + 0.4 * k as f64 + 8.0 * ((j as f64) * 0.21 - (i as f64) * 0.13 + n as f64).cos()) as f32
+        });
+        let c = Constants::default();
+        let few = t.slice(ndarray::s![0..1, 0..3, .., ..]);
+        for (t, levels) in [(t.view(), &levels[..]), (few, &levels[..3])] {
+            for rule in [IntegrationRule::Quadratic, IntegrationRule::Trapezoid] {
+                let mut layers = adjacent_layer_weights(levels, rule).unwrap();
+                layers.truncate(if t.dim().0 == 1 { 1 } else { layers.len() });
+                let (dz, u, v) = layers_and_thermal_wind(&grid, &c, t, &layers, 5.0);
+                let separate = weighted_layers(t, &layers, c.dry_air_gas_constant / c.gravity);
+                let (nt, nl, _, nx) = separate.dim();
+                let (su, sv) = thermal_wind_from_thickness(&grid, &c, separate.view().into_shape_with_order((nt * nl, ny, nx)).unwrap(), 5.0);
+                assert!(same_bits(&dz, separate.view()), "thickness by {rule:?}, {nl} layers");
+                assert!(same_bits(&u, su.view().into_shape_with_order((nt, nl, ny, nx)).unwrap()), "eastward by {rule:?}, {nl} layers");
+                assert!(same_bits(&v, sv.view().into_shape_with_order((nt, nl, ny, nx)).unwrap()), "northward by {rule:?}, {nl} layers");
+                // The last row has a wind (one-sided difference), the equator none.
+                assert!(u[[nt - 1, 0, ny - 1, 7]].is_finite() && v[[nt - 1, 0, ny - 1, 7]].is_finite() && u[[nt - 1, 0, 30, 7]].is_nan());
+            }
+        }
+    }
+
+    #[test]
+    fn fused_pair_into_held_outputs_overwrites_every_value_with_the_same_bits() {
+        // Outputs the caller holds, full of old values (a previous time
+        // step's, here 7 and NaN): every value is overwritten with the bits
+        // of the allocating call, on a global grid (parts of rows: 8 layers
+        // x 2 time steps) and on a projected one.
+        let (levels, t) = case();
+        let c = Constants::default();
+        let global = Grid::new((0..37).map(|j| 90.0 - 5.0 * j as f64).collect(), (0..72).map(|i| 5.0 * i as f64).collect());
+        use crate::projection::{LambertConformal, ProjectedGrid, Projection};
+        let projection = Projection::LambertConformal(LambertConformal::new((35.0, 55.0), -10.0, 45.0, 0.0, 0.0, c.earth_radius).unwrap());
+        let projected = Grid::projected(ProjectedGrid::new(projection, (0..72).map(|i| -7.0e5 + 2.0e4 * i as f64).collect(), (0..37).map(|j| -3.0e5 + 2.0e4 * j as f64).collect()));
+        let layers = adjacent_layer_weights(&levels, IntegrationRule::Quadratic).unwrap();
+        for grid in [global, projected] {
+            let fresh = layers_and_thermal_wind(&grid, &c, t.view(), &layers, 5.0);
+            let shape = fresh.0.dim();
+            let mut held = [Array4::from_elem(shape, 7.0f32), Array4::from_elem(shape, f32::NAN), Array4::from_elem(shape, 7.0f32)];
+            let [a, b, d] = &mut held;
+            layers_and_thermal_wind_into(&grid, &c, t.view(), None, &layers, 5.0, identity, [a.view_mut(), b.view_mut(), d.view_mut()]);
+            assert!(same_bits(&held[0], fresh.0.view()) && same_bits(&held[1], fresh.1.view()) && same_bits(&held[2], fresh.2.view()));
         }
     }
 
