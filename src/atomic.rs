@@ -128,23 +128,6 @@ fn write_direct(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
     const BLOCK: usize = 4096;
     const CHUNK: usize = 8 << 20;
     let file = std::fs::OpenOptions::new().write(true).truncate(true).custom_flags(libc::O_DIRECT).open(path)?;
-    let layout = std::alloc::Layout::from_size_align(CHUNK, BLOCK).expect("constant layout");
-    struct Aligned(*mut u8, std::alloc::Layout);
-    impl Drop for Aligned {
-        fn drop(&mut self) {
-            // SAFETY: allocated below with this layout.
-            unsafe { std::alloc::dealloc(self.0, self.1) }
-        }
-    }
-    // SAFETY: the layout has a non-zero size.
-    let pointer = unsafe { std::alloc::alloc(layout) };
-    if pointer.is_null() {
-        std::alloc::handle_alloc_error(layout);
-    }
-    let buffer = Aligned(pointer, layout);
-    // SAFETY: CHUNK bytes owned by `buffer`; every byte written is first
-    // copied or zeroed below, and only those are read.
-    let chunk_buffer = unsafe { std::slice::from_raw_parts_mut(buffer.0, CHUNK) };
     let mut offset = 0;
     if (bytes.as_ptr() as usize).is_multiple_of(BLOCK) {
         // Already aligned (an image from io::netcdf_raw): its whole blocks
@@ -153,13 +136,34 @@ fn write_direct(path: &Path, bytes: &[u8]) -> std::io::Result<()> {
         file.write_all_at(&bytes[..whole], 0)?;
         offset = whole;
     }
-    while offset < bytes.len() {
-        let n = CHUNK.min(bytes.len() - offset);
-        let padded = n.div_ceil(BLOCK) * BLOCK;
-        chunk_buffer[..n].copy_from_slice(&bytes[offset..offset + n]);
-        chunk_buffer[n..padded].fill(0);
-        file.write_all_at(&chunk_buffer[..padded], offset as u64)?;
-        offset += n;
+    if offset < bytes.len() {
+        // An aligned buffer of at most CHUNK bytes, zeroed so that every
+        // byte of it is initialised before it is seen as a slice.
+        let size = CHUNK.min((bytes.len() - offset).div_ceil(BLOCK) * BLOCK);
+        let layout = std::alloc::Layout::from_size_align(size, BLOCK).expect("a multiple of the block, aligned to it");
+        struct Aligned(*mut u8, std::alloc::Layout);
+        impl Drop for Aligned {
+            fn drop(&mut self) {
+                // SAFETY: allocated below with this layout.
+                unsafe { std::alloc::dealloc(self.0, self.1) }
+            }
+        }
+        // SAFETY: the layout has a non-zero size.
+        let pointer = unsafe { std::alloc::alloc_zeroed(layout) };
+        if pointer.is_null() {
+            std::alloc::handle_alloc_error(layout);
+        }
+        let buffer = Aligned(pointer, layout);
+        // SAFETY: `size` initialised (zeroed) bytes owned by `buffer`, used only here.
+        let chunk_buffer = unsafe { std::slice::from_raw_parts_mut(buffer.0, size) };
+        while offset < bytes.len() {
+            let n = size.min(bytes.len() - offset);
+            let padded = n.div_ceil(BLOCK) * BLOCK;
+            chunk_buffer[..n].copy_from_slice(&bytes[offset..offset + n]);
+            chunk_buffer[n..padded].fill(0);
+            file.write_all_at(&chunk_buffer[..padded], offset as u64)?;
+            offset += n;
+        }
     }
     file.set_len(bytes.len() as u64)?;
     Ok(())

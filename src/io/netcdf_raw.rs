@@ -201,14 +201,13 @@ impl RawFile {
         check(unsafe { sys::nc_enddef(self.ncid) }, || "leaving define mode".into())
     }
 
-    /// Writes a whole double variable; `values` must hold all its values.
-    pub fn put_all_doubles(&mut self, variable: c_int, name: &str, values: &[f64], length: usize) -> Result<(), String> {
-        if values.len() != length {
-            return Err(format!("writing {name}: {} values for {length} places", values.len()));
-        }
+    /// Writes `values` to a one-dimensional double variable from its start
+    /// (a coordinate); netCDF-C refuses more values than the variable holds.
+    pub fn put_doubles_from_start(&mut self, variable: c_int, name: &str, values: &[f64]) -> Result<(), String> {
+        let (start, count) = ([0usize], [values.len()]);
         let _lock = sys::libnetcdf_lock.lock();
-        // SAFETY: the variable has exactly `length` values (checked above against the caller's count).
-        check(unsafe { sys::nc_put_var_double(self.ncid, variable, values.as_ptr()) }, || format!("writing {name}"))
+        // SAFETY: `count[0]` doubles at `values`; netCDF checks the block against the variable.
+        check(unsafe { sys::nc_put_vara_double(self.ncid, variable, start.as_ptr(), count.as_ptr(), values.as_ptr()) }, || format!("writing {name}"))
     }
 
     /// Writes the hyperslab of a float variable at `start` with extent `count`

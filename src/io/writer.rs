@@ -252,13 +252,13 @@ fn define_and_write(file: &mut RawFile, named: &[(&str, &Field)], options: &Writ
     // NetCDF-3 files leave define mode before data are written; netCDF-4
     // files may too, and writing the header once is cheaper.
     file.end_definitions()?;
-    file.put_all_doubles(latitude_variable, "latitude", &grid.latitudes, grid.latitudes.len())?;
-    file.put_all_doubles(longitude_variable, "longitude", &grid.longitudes, grid.longitudes.len())?;
+    file.put_doubles_from_start(latitude_variable, "latitude", &grid.latitudes)?;
+    file.put_doubles_from_start(longitude_variable, "longitude", &grid.longitudes)?;
     for (&v, levels) in level_variables.iter().zip(&level_sets) {
-        file.put_all_doubles(v, "pressure", levels, levels.len())?;
+        file.put_doubles_from_start(v, "pressure", levels)?;
     }
     for (&v, t) in time_variables.iter().zip(&time_axes) {
-        file.put_all_doubles(v, "time", &t.values, t.values.len())?;
+        file.put_doubles_from_start(v, "time", &t.values)?;
     }
     // One horizontal slab at a time through a buffer reused for all, NaN
     // written as the fill value: no copy of a whole field.
