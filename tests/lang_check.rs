@@ -167,6 +167,13 @@ fn options_are_checked_by_kind() {
     assert_eq!(errors("thermal_wind(1000 hPa to 500 hPa) with equator_band 10"), vec!["the option `equator_band` needs the unit degrees"]);
     assert_eq!(errors("thermal_wind(1000 hPa to 500 hPa) with equator_band 10 km"), vec!["the option `equator_band` must be an angle such as 10 degrees"]);
     assert_eq!(errors("speed(wind at 500 hPa) with route thickness"), vec!["`speed` has no option `route`"]);
+    // The layer-mean temperature takes the thickness's routes (it is the
+    // thickness through the hypsometric equation).
+    no_errors("layer_mean_temperature(1000 hPa to 500 hPa) with route geopotential, integration trapezoid");
+    assert_eq!(
+        errors("layer_mean_temperature(1000 hPa to 500 hPa) with route thickness"),
+        vec!["the option `route` of `layer_mean_temperature` is one of `temperature`, `virtual_temperature` or `geopotential`"]
+    );
     assert_eq!(
         errors("thermal_wind(1000 hPa to 500 hPa) with route thickness, route thickness"),
         vec!["the option `route` is given twice"]

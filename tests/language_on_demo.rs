@@ -69,6 +69,11 @@ fn scripts_give_the_engine_numbers() {
         Value::Vector(w) => assert_eq!(w.eastward.data, direct.eastward.data),
         other => panic!("{}", other.kind()),
     }
+    // The layer-mean temperature by the geopotential route is the engine's
+    // (the checker once refused `route` here while the evaluator took it).
+    let direct = case.layer_mean_temperature(layer, ThicknessRoute::Geopotential).unwrap();
+    let through = scalar(value(&mut s, "layer_mean_temperature(1000 hPa to 500 hPa) with route geopotential"));
+    assert_eq!(direct.data, through.data);
     let direct = case.layer_temperature_advection(layer).unwrap();
     let through = scalar(value(&mut s, "temperature_advection(1000 hPa to 500 hPa)"));
     assert_eq!(direct.data, through.data);

@@ -236,6 +236,22 @@ const NORTHWARD: &[&str] = &["northward_wind"];
 use OptionKind as O;
 use ParameterKind as P;
 
+/// How the thickness of a layer (and so its mean temperature) is found.
+const THICKNESS_ROUTE: OptionSpec = OptionSpec {
+    name: "route",
+    kind: O::Words(&["temperature", "virtual_temperature", "geopotential"]),
+    documentation: "integrate the hypsometric equation over temperature or virtual temperature, or difference the geopotential",
+};
+
+/// The data each thickness route needs.
+const THICKNESS_REQUIRES: &[Requirement] = &[
+    Requirement { when: When::OptionAbsent("route"), any_of: HEIGHTS_OR_TEMPERATURE },
+    Requirement { when: When::OptionIs("route", "temperature"), any_of: TEMPERATURE },
+    Requirement { when: When::OptionIs("route", "virtual_temperature"), any_of: TEMPERATURE },
+    Requirement { when: When::OptionIs("route", "virtual_temperature"), any_of: &["specific_humidity"] },
+    Requirement { when: When::OptionIs("route", "geopotential"), any_of: HEIGHTS },
+];
+
 /// Every built-in operator of the language.
 pub static BUILTINS: &[Builtin] = &[
     Builtin {
@@ -251,31 +267,23 @@ pub static BUILTINS: &[Builtin] = &[
     Builtin {
         name: "thickness",
         parameters: &[parameter("layer", P::Layer)],
-        options: &[OptionSpec {
-            name: "route",
-            kind: O::Words(&["temperature", "virtual_temperature", "geopotential"]),
-            documentation: "integrate the hypsometric equation over temperature or virtual temperature, or difference the geopotential",
-        }, INTEGRATION],
+        options: &[THICKNESS_ROUTE, INTEGRATION],
         result_kind: ResultKind::ScalarField,
         result_unit: ResultUnit::Fixed("m"),
         result_shape: ResultShape::Horizontal,
-        requires: &[
-            Requirement { when: When::OptionAbsent("route"), any_of: HEIGHTS_OR_TEMPERATURE },
-            Requirement { when: When::OptionIs("route", "temperature"), any_of: TEMPERATURE },
-            Requirement { when: When::OptionIs("route", "virtual_temperature"), any_of: TEMPERATURE },
-            Requirement { when: When::OptionIs("route", "virtual_temperature"), any_of: &["specific_humidity"] },
-            Requirement { when: When::OptionIs("route", "geopotential"), any_of: HEIGHTS },
-        ],
+        requires: THICKNESS_REQUIRES,
         documentation: "hydrostatic thickness of a pressure layer",
     },
     Builtin {
         name: "layer_mean_temperature",
         parameters: &[parameter("layer", P::Layer)],
-        options: &[INTEGRATION],
+        // The mean follows from the thickness by the hypsometric equation
+        // (field guide), so it takes the thickness's routes.
+        options: &[THICKNESS_ROUTE, INTEGRATION],
         result_kind: ResultKind::ScalarField,
         result_unit: ResultUnit::Fixed("K"),
         result_shape: ResultShape::Horizontal,
-        requires: &[Requirement { when: When::Always, any_of: HEIGHTS_OR_TEMPERATURE }],
+        requires: THICKNESS_REQUIRES,
         documentation: "ln p-weighted mean temperature of a pressure layer",
     },
     Builtin {

@@ -89,7 +89,13 @@ pub const DEFAULT_WEAK_WIND: f64 = 2.5;
 /// slower than `threshold` (m s-1), or any component is missing.
 pub fn turning_is_weak(u_bottom: f32, v_bottom: f32, u_top: f32, v_top: f32, threshold: f64) -> bool {
     let (ub, vb, ut, vt) = (u_bottom as f64, v_bottom as f64, u_top as f64, v_top as f64);
-    let slow = |u: f64, v: f64| !(u.hypot(v) >= threshold);
+    // |V| >= threshold compared as |V|^2 >= threshold^2: the components are
+    // f32, so their squares are exact in f64 and the sum is rounded once
+    // (no overflow is possible), and this avoids three `hypot` calls per
+    // point, which were a tenth of a budget run's arithmetic. A threshold
+    // of zero or below passes every wind that is not missing, as before.
+    let squared = if threshold > 0.0 { threshold * threshold } else if threshold.is_nan() { f64::NAN } else { 0.0 };
+    let slow = |u: f64, v: f64| !(u * u + v * v >= squared);
     slow(ub, vb) || slow(ut, vt) || slow(ut - ub, vt - vb)
 }
 
@@ -141,6 +147,31 @@ mod tests {
         // Westerly below, south-westerly above: anticlockwise, backing.
         assert!((turning_angle(1.0, 0.0, 1.0, 1.0) + 45.0).abs() < 1e-4);
         assert!(turning_angle(0.0, 0.0, 1.0, 0.0).is_nan());
+    }
+
+    #[test]
+    fn weak_winds_are_those_slower_than_the_threshold_by_hypot() {
+        // The squared comparison against the definition |V| = hypot(u, v)
+        // (IEEE 754 hypot, correctly rounded enough to be monotonic), on
+        // f32 winds swept across the threshold at many angles, exact
+        // thresholds and awkward ones, and missing or zero thresholds.
+        let slower = |u: f64, v: f64, t: f64| !(u.hypot(v) >= t);
+        let reference = |u: f32, v: f32, t: f64| slower(u as f64, v as f64, t);
+        for threshold in [2.5, 0.1, 1.0 / 3.0, 7.77, 0.0, -1.0, f64::NAN] {
+            for k in 0..2000 {
+                let angle = k as f64 * 0.0123;
+                let speed = threshold.abs() * (0.999 + 0.002 * (k % 97) as f64 / 97.0);
+                let (u, v) = ((speed * angle.cos()) as f32, (speed * angle.sin()) as f32);
+                for (u, v) in [(u, v), (f32::from_bits(u.to_bits() + 1), v), (u, f32::NAN)] {
+                    // Top winds whose shear from (u, v) sweeps the threshold too.
+                    let (ut, vt) = (u + u * 1.0001, v + v * 1.0001);
+                    let ours = turning_is_weak(u, v, ut, vt, threshold);
+                    let shear = slower(ut as f64 - u as f64, vt as f64 - v as f64, threshold);
+                    let expected = reference(u, v, threshold) || reference(ut, vt, threshold) || shear;
+                    assert_eq!(ours, expected, "u {u} v {v} threshold {threshold}");
+                }
+            }
+        }
     }
 
     #[test]
