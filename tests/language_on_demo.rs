@@ -74,6 +74,16 @@ fn scripts_give_the_engine_numbers() {
     let direct = case.layer_mean_temperature(layer, ThicknessRoute::Geopotential).unwrap();
     let through = scalar(value(&mut s, "layer_mean_temperature(1000 hPa to 500 hPa) with route geopotential"));
     assert_eq!(direct.data, through.data);
+    // A variable named as it stands, taken in a box, is read in the box
+    // (it was once left unread, and later read whole): every level, the
+    // box's points, the same values as a level picked inside the box.
+    let boxed = scalar(value(&mut s, "temperature in box(40 north to 60 north, 10 west to 20 east)"));
+    let level = scalar(value(&mut s, "temperature at 500 hPa in box(40 north to 60 north, 10 west to 20 east)"));
+    assert_eq!(boxed.levels.as_ref().map(|l| l.len()), Some(10));
+    assert!(boxed.grid.latitudes.iter().all(|&y| (40.0..=60.0).contains(&y)));
+    assert!(boxed.grid.longitudes.iter().all(|&x| (-10.0..=20.0).contains(&x)));
+    let k = boxed.levels.as_ref().unwrap().iter().position(|&p| p == 50000.0).unwrap();
+    assert_eq!(boxed.data.index_axis(ndarray::Axis(1), k), level.data.index_axis(ndarray::Axis(1), 0));
     let direct = case.layer_temperature_advection(layer).unwrap();
     let through = scalar(value(&mut s, "temperature_advection(1000 hPa to 500 hPa)"));
     assert_eq!(direct.data, through.data);

@@ -434,7 +434,11 @@ impl Evaluator {
                 Ok(None)
             }
             StatementKind::Output { name, value, documentation } => {
+                // A variable named as it stands (`output t = temperature`) is
+                // read here, every level under the context's times and region,
+                // so that it is written like any computed field.
                 let v = self.expr(value, context)?;
+                let v = self.force(v, context, value.span)?;
                 self.bind(&name.name, v.clone());
                 self.outputs.retain(|(n, _)| *n != name.name);
                 self.outputs.push((name.name.clone(), v));
@@ -1002,7 +1006,11 @@ impl Evaluator {
                     Some(outer) => intersect(&outer, &region).ok_or_else(|| error("this region does not overlap the enclosing one", selector.span))?,
                     None => region,
                 });
+                // A variable named as it stands is read here, inside the
+                // region: left unread, it would be read later under the
+                // enclosing selection and the region lost.
                 let v = self.expr(base, &inner)?;
+                let v = self.force(v, &inner, base.span)?;
                 crop_value(v, &region, span)
             }
             (SelectHow::In, other) => Err(error(format!("`in` takes a region, found {}", other.kind()), selector.span)
