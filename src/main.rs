@@ -408,10 +408,11 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
         let read = baroc::io::timings::totals();
         eprintln!("timings: evaluate (read + compute) {evaluate:.3} s");
         eprintln!(
-            "timings: read/unpack {:.3} s ({} reads, {:.1} MB, {} from the read cache), compute {:.3} s",
+            "timings: read/unpack {:.3} s ({} reads, {:.1} MB, {} in parallel without netCDF-C, {} from the read cache), compute {:.3} s",
             read.seconds,
             read.reads,
             read.bytes as f64 / 1e6,
+            read.direct,
             read.cached,
             (evaluate - read.seconds).max(0.0)
         );

@@ -12,6 +12,7 @@
 
 pub mod cf;
 pub mod dataset;
+pub mod direct_read;
 pub mod file_check;
 pub mod grib2;
 pub mod grib2_source;

@@ -14,6 +14,29 @@ use super::cf::{self, Axis};
 use super::{DataError, DataSource, Selection, VariableInfo};
 use crate::grid::{Field, Grid, TimeAxis};
 
+/// A read's selection: the variable (its index and name) and the indices
+/// wanted along each canonical axis, with the longitudes of the ones
+/// wanted made monotonic across the seam.
+struct Plan {
+    k: usize,
+    name: String,
+    time_indices: Vec<usize>,
+    level_indices: Vec<usize>,
+    lat_indices: Vec<usize>,
+    lon_indices: Vec<usize>,
+    out_lons: Vec<f64>,
+}
+
+impl Plan {
+    fn indices(&self) -> [&[usize]; 4] {
+        [&self.time_indices, &self.level_indices, &self.lat_indices, &self.lon_indices]
+    }
+
+    fn shape(&self) -> (usize, usize, usize, usize) {
+        (self.time_indices.len(), self.level_indices.len(), self.lat_indices.len(), self.lon_indices.len())
+    }
+}
+
 /// How one variable's dimensions map onto the canonical axes.
 #[derive(Debug, Clone)]
 struct Layout {
@@ -39,6 +62,9 @@ pub struct NetcdfSource {
     variables: Vec<VariableInfo>,
     layouts: Vec<Layout>,
     packings: Vec<Packing>,
+    /// Where each variable's values lie, for those read without netCDF-C
+    /// (io::direct_read); None for the rest.
+    storages: Vec<Option<super::direct_read::Storage>>,
     global_attributes: Vec<(String, String)>,
 }
 
@@ -225,11 +251,29 @@ impl NetcdfSource {
                 Some((a.name().to_string(), text))
             })
             .collect();
-        Ok(Self { path, variables, layouts, packings, global_attributes })
+        // HDF5 is asked where values lie once netCDF-C has let go of the
+        // file (io::direct_read::storage_of).
+        drop(file);
+        let names: Vec<String> = variables.iter().map(|v| v.name.clone()).collect();
+        let storages = super::direct_read::storage_of(&path, &names);
+        Ok(Self { path, variables, layouts, packings, storages, global_attributes })
     }
 
     pub fn path(&self) -> &Path {
         &self.path
+    }
+
+    /// Whether reads of variable `name` may bypass netCDF-C
+    /// (io::direct_read: stored as one plain block of little-endian f32).
+    pub fn reads_directly(&self, name: &str) -> bool {
+        self.index_of(name).is_ok_and(|k| self.storages[k].is_some())
+    }
+
+    /// The same source with every read going through netCDF-C (for
+    /// comparisons; `BAROC_DIRECT_READ=0` does the same for a whole run).
+    pub fn through_netcdf_only(mut self) -> Self {
+        self.storages.iter_mut().for_each(|s| *s = None);
+        self
     }
 
     fn index_of(&self, name: &str) -> Result<usize, DataError> {
@@ -337,18 +381,28 @@ impl DataSource for NetcdfSource {
         // Only the raw read runs on the netCDF thread; unpacking runs here, in
         // parallel. (Parallel work on the netCDF thread could deadlock: rayon
         // workers may themselves be waiting for that thread.)
-        let (mut field, packing) = super::netcdf_thread::call(|| self.read_here(name, selection))?;
-        unpack(&mut field.data, packing);
+        let plan = self.plan(name, selection)?;
+        // Plainly stored variables are read in parallel here, without
+        // netCDF-C (io::direct_read); the rest on the netCDF thread.
+        let data = match self.read_direct(&plan) {
+            Some(data) => {
+                super::timings::record_direct();
+                data?
+            }
+            None => super::netcdf_thread::call(|| self.read_here(&plan))?,
+        };
+        let mut field = self.assemble(&plan, selection, data)?;
+        unpack(&mut field.data, self.packings[plan.k]);
         Ok(field)
     }
 }
 
 impl NetcdfSource {
-    fn read_here(&self, name: &str, selection: &Selection) -> Result<(Field, Packing), DataError> {
+    /// What a read takes from the file: the variable and the indices wanted
+    /// along each canonical axis (checked against its coordinates).
+    fn plan(&self, name: &str, selection: &Selection) -> Result<Plan, DataError> {
         let k = self.index_of(name)?;
         let info = &self.variables[k];
-        let layout = &self.layouts[k];
-        let packing = self.packings[k];
 
         // Indices wanted along each canonical axis.
         let (time_indices, level_indices) = super::selected_indices(name, info, selection)?;
@@ -378,11 +432,32 @@ impl NetcdfSource {
             }
             None => ((0..grid.latitudes.len()).collect(), (0..grid.longitudes.len()).collect(), grid.longitudes.clone()),
         };
+        Ok(Plan { k, name: name.to_string(), time_indices, level_indices, lat_indices, lon_indices, out_lons })
+    }
 
+    /// The planned selection read by `io::direct_read`, when the variable
+    /// is stored plainly and the selection is one block in canonical order;
+    /// None to read through netCDF-C.
+    fn read_direct(&self, plan: &Plan) -> Option<Result<Array4<f32>, DataError>> {
+        let storage = self.storages[plan.k].as_ref()?;
+        let layout = &self.layouts[plan.k];
+        let indices = plan.indices();
+        // File dimensions in canonical order only (else netCDF-C reorders).
+        let positions: Vec<usize> = layout.axes.iter().flatten().map(|a| canonical(*a)).collect();
+        if positions.windows(2).any(|w| w[1] <= w[0]) {
+            return None;
+        }
+        let wanted: Vec<&[usize]> = layout.axes.iter().map(|axis| axis.map_or(&[0usize][..], |a| indices[canonical(a)])).collect();
+        super::direct_read::read_block(&self.path, storage, &wanted, plan.shape()).map(|r| r.map_err(|e| netcdf_error(&self.path, format!("cannot read {}: {e}", plan.name))))
+    }
+
+    /// The planned selection read through netCDF-C (on the netCDF thread).
+    fn read_here(&self, plan: &Plan) -> Result<Array4<f32>, DataError> {
+        let (name, layout) = (plan.name.as_str(), &self.layouts[plan.k]);
+        let shape = plan.shape();
+        let indices = plan.indices();
         let file = netcdf::open(&self.path).map_err(|e| netcdf_error(&self.path, e))?;
         let variable = file.variable(name).ok_or_else(|| netcdf_error(&self.path, format!("variable {name} vanished")))?;
-        let shape = (time_indices.len(), level_indices.len(), lat_indices.len(), lon_indices.len());
-        let indices: [&[usize]; 4] = [&time_indices, &level_indices, &lat_indices, &lon_indices];
         let data = match direct_extents(layout, indices) {
             // The common case: one block, dimensions in canonical order. The
             // library writes straight into the array's own buffer (never
@@ -393,20 +468,27 @@ impl NetcdfSource {
             }
             None => self.read_blocks(&variable, layout, shape, indices)?,
         };
+        Ok(data)
+    }
 
+    /// The field of a planned selection, from its values.
+    fn assemble(&self, plan: &Plan, selection: &Selection, data: Array4<f32>) -> Result<Field, DataError> {
+        let (name, info) = (plan.name.as_str(), &self.variables[plan.k]);
+        let grid = &info.grid;
+        let Plan { time_indices, level_indices, lat_indices, lon_indices, out_lons, .. } = plan;
         let times = info.times.as_ref().map(|t| t.select(&time_indices));
         let levels = info.levels.as_ref().map(|l| level_indices.iter().map(|&i| l[i]).collect());
         let out_grid = if let (Some(_), Some(projected)) = (&selection.region, &grid.projection) {
             Arc::new(super::projected::sub_grid(projected, &lat_indices, &lon_indices))
         } else if selection.region.is_some() {
-            Arc::new(Grid::new(lat_indices.iter().map(|&j| grid.latitudes[j]).collect(), out_lons))
+            Arc::new(Grid::new(lat_indices.iter().map(|&j| grid.latitudes[j]).collect(), out_lons.clone()))
         } else {
             grid.clone()
         };
         let mut field = Field::new(name, info.units.clone(), data, times, levels, out_grid).map_err(DataError::Invalid)?;
         field.long_name = info.long_name.clone().unwrap_or_else(|| name.to_string());
         field.standard_name = info.standard_name.clone();
-        Ok((field, packing))
+        Ok(field)
     }
 
     /// Reads a selection made of several blocks (a box across the seam of

@@ -23,6 +23,17 @@ fn sender() -> &'static Mutex<Sender<Job>> {
         std::thread::Builder::new()
             .name("baroc-netcdf".into())
             .spawn(move || {
+                // HDF5 (thread-safe build) keeps its error printing per
+                // thread; netCDF-C switches it off only on the thread that
+                // first called it. netCDF-C probes attributes that may be
+                // absent and reports every failure itself, so HDF5's own
+                // printing on this thread would only repeat noise on stderr.
+                {
+                    let _lock = netcdf_sys::libnetcdf_lock.lock();
+                    // SAFETY: a plain HDF5 setting for the calling thread's
+                    // default error stack, under netCDF's lock.
+                    unsafe { hdf5_metno_sys::h5e::H5Eset_auto2(hdf5_metno_sys::h5e::H5E_DEFAULT, None, std::ptr::null_mut()) };
+                }
                 for job in rx {
                     job();
                 }

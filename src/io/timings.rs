@@ -21,6 +21,7 @@ static NANOSECONDS: AtomicU64 = AtomicU64::new(0);
 static BYTES: AtomicU64 = AtomicU64::new(0);
 static READS: AtomicU64 = AtomicU64::new(0);
 static CACHED: AtomicU64 = AtomicU64::new(0);
+static DIRECT: AtomicU64 = AtomicU64::new(0);
 static MANY_LAYER_PASSES: AtomicU64 = AtomicU64::new(0);
 static MANY_LAYER_LAYERS: AtomicU64 = AtomicU64::new(0);
 static ONE_LAYER_LAYERS: AtomicU64 = AtomicU64::new(0);
@@ -37,6 +38,9 @@ pub struct ReadTotals {
     pub reads: u64,
     /// Reads served from the run's read cache.
     pub cached: u64,
+    /// Reads of the files made in parallel without netCDF-C
+    /// (io::direct_read), counted in `reads` too.
+    pub direct: u64,
 }
 
 fn verbose() -> bool {
@@ -51,6 +55,11 @@ pub fn record_read(name: &str, selection: &Selection, elapsed: Duration, bytes: 
     if verbose() {
         eprintln!("read: {name} {} ({:.1} MB) in {:.3} s", describe(selection), bytes as f64 / 1e6, elapsed.as_secs_f64());
     }
+}
+
+/// Records that a read of the files went through io::direct_read.
+pub fn record_direct() {
+    DIRECT.fetch_add(1, Ordering::Relaxed);
 }
 
 /// Records one read served from the run's read cache.
@@ -81,6 +90,7 @@ pub fn totals() -> ReadTotals {
         bytes: BYTES.load(Ordering::Relaxed),
         reads: READS.load(Ordering::Relaxed),
         cached: CACHED.load(Ordering::Relaxed),
+        direct: DIRECT.load(Ordering::Relaxed),
     }
 }
 
