@@ -239,7 +239,13 @@ impl RawFile {
     /// by netCDF-C (tests/writer_paths.rs). Fails with netCDF-C's message,
     /// HDF5's refusal, or the system's error writing `path` (whose content
     /// is then undefined: the caller writes under a temporary name).
-    pub fn close_into_file(mut self, path: &std::path::Path) -> Result<ImageWritten, String> {
+    pub fn close_into_file(self, path: &std::path::Path) -> Result<ImageWritten, String> {
+        self.close_into_file_by(path, true)
+    }
+
+    /// `close_into_file`, the route from the driver's memory tried only if
+    /// `from_driver_memory` (false: the copying fallback, for the tests).
+    fn close_into_file_by(mut self, path: &std::path::Path, from_driver_memory: bool) -> Result<ImageWritten, String> {
         if !self.in_memory {
             return Err("the file is on disk, not in memory".into());
         }
@@ -255,7 +261,10 @@ impl RawFile {
         let io_error = |e: std::io::Error| crate::atomic::plain_os_error(&e);
         // SAFETY: the lock is held and nothing else holds this file's id, so
         // no HDF5 call runs until the memory is no longer used (below).
-        let own = unsafe { core_driver_memory(file, size) }.and_then(|memory| superblock_as_closed(memory).map(|head| (memory, head)));
+        let own = match from_driver_memory {
+            true => unsafe { core_driver_memory(file, size) }.and_then(|memory| superblock_as_closed(memory).map(|head| (memory, head))),
+            false => None,
+        };
         let written = match own {
             Some((memory, head)) => {
                 let started = std::time::Instant::now();
@@ -633,6 +642,33 @@ mod tests {
         let mut foreign = good;
         foreign[1] = b'h';
         assert!(superblock_as_closed(&foreign).is_none(), "no HDF5 signature");
+    }
+
+    /// Both routes to the file give the same bytes, from a file large enough
+    /// to go past the page cache in several chunks (`atomic::BOUNCE`).
+    #[test]
+    fn both_routes_write_the_same_file() {
+        let build = || {
+            let mut file = RawFile::create_in_memory(1 << 20).unwrap();
+            let x = file.add_dimension("x", 3_000_000).unwrap();
+            let v = file.add_variable("v", Kind::Float, &[x]).unwrap();
+            file.set_no_fill(v).unwrap();
+            file.end_definitions().unwrap();
+            let values: Vec<f32> = (0..3_000_000).map(|i| (i as f32 * 0.37).sin() * 250.0).collect();
+            file.put_floats(v, "v", &[0], &[3_000_000], &values).unwrap();
+            file
+        };
+        let path = |route: &str| std::env::temp_dir().join(format!("baroc-routes-{}-{route}.nc", std::process::id()));
+        crate::io::netcdf_thread::call(|| {
+            let own = build().close_into_file_by(&path("own"), true).unwrap();
+            let copied = build().close_into_file_by(&path("copied"), false).unwrap();
+            assert_eq!((own.route, copied.route), (ImageRoute::DriverMemory, ImageRoute::Copied));
+            assert!(own.bytes > 2 * crate::atomic::BOUNCE && own.bytes == copied.bytes);
+        });
+        assert!(std::fs::read(path("own")).unwrap() == std::fs::read(path("copied")).unwrap());
+        for route in ["own", "copied"] {
+            std::fs::remove_file(path(route)).unwrap();
+        }
     }
 
     /// The core driver's memory, reached through `H5Fget_vfd_handle`, is the
