@@ -333,10 +333,10 @@ fn hdf5_file_named(name: &CStr) -> Result<hdf5_metno_sys::h5i::hid_t, String> {
     file.ok_or_else(|| "the file built in memory was not found among HDF5's open files".to_string())
 }
 
-/// The length of the file's image: HDF5's end of allocated space, what
-/// `H5Fget_file_image` copies when given no buffer (HDF5 reference manual,
-/// H5Fget_file_image: "the size of the buffer required to store the
-/// image"). Fails if HDF5 gives none.
+/// The length of the file's image: HDF5's end of allocated space, which
+/// `H5Fget_file_image` returns when given no buffer (HDF5 reference manual,
+/// H5Fget_file_image, from memory; H5Fint.c `H5F__get_file_image` returns
+/// the end of allocation). Fails if HDF5 gives none.
 fn hdf5_image_size(file: hdf5_metno_sys::h5i::hid_t) -> Result<usize, String> {
     // SAFETY: a query on an open file id; no buffer is passed.
     let size = unsafe { hdf5_metno_sys::h5f::H5Fget_file_image(file, std::ptr::null_mut(), 0) };
@@ -352,8 +352,8 @@ fn hdf5_image_size(file: hdf5_metno_sys::h5i::hid_t) -> Result<usize, String> {
 /// or the driver gives no memory. None is not an error: the caller then
 /// copies the image out instead.
 ///
-/// Source: `H5Fget_vfd_handle` (HDF5 reference manual: "a pointer to the
-/// file handle being used by the low-level virtual file driver"); for the
+/// Source: `H5Fget_vfd_handle` gives the handle the file's virtual file
+/// driver works with (HDF5 reference manual, from memory); for the
 /// core driver, HDF5's H5FDcore.c (`H5FD__core_get_handle`, 1.8 to 1.14)
 /// hands back the address of the driver's memory pointer (`&file->mem`),
 /// checked against `H5Fget_file_image`'s copy by this module's tests. The
