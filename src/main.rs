@@ -427,8 +427,14 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
         let names = baroc::runner::write_results_with(&staged, &outcome, &request, attributes).map_err(|e| e.0.replace(&staged.display().to_string(), &path.display().to_string()))?;
         if timings {
             let (build, file, bytes) = baroc::io::timings::write_totals();
+            let route = match baroc::io::timings::write_routes() {
+                (0, 0) => "none: written by netCDF-C to the file",
+                (_, 0) => "from HDF5's memory",
+                (0, _) => "copied out of HDF5 first",
+                _ => "some copied out of HDF5 first",
+            };
             eprintln!(
-                "timings: write {:.3} s (file image built in memory {build:.3} s, {:.1} MB put in the file {file:.3} s)",
+                "timings: write {:.3} s (file image built in memory {build:.3} s, {:.1} MB put in the file {file:.3} s, {route})",
                 started.elapsed().as_secs_f64(),
                 bytes as f64 / 1e6
             );

@@ -1,6 +1,7 @@
 //! The writer's two ways to the disk give the same file: an output built as
-//! an image in memory and written in one go (the default for outputs up to
-//! `IN_MEMORY_LIMIT`, netCDF-4 files), and one written by netCDF-C straight to its file
+//! an image in memory and written from HDF5's own memory (the default for
+//! outputs up to `IN_MEMORY_LIMIT`, netCDF-4 files; the test checks that
+//! route ran, not the copying fallback), and one written by netCDF-C straight to its file
 //! (`memory_image_limit: Some(0)`), in both file formats. The files are read
 //! back with the netcdf crate (netCDF-C's own reader), and every dimension,
 //! attribute and value compared, NaN written as the _FillValue.
@@ -74,7 +75,16 @@ fn a_file_built_in_memory_equals_one_written_straight_to_disk() {
     for format in [Format::Netcdf4, Format::Classic] {
         let options = |limit| WriteOptions { format, history: "test".into(), global_attributes: vec![("baroc_script".into(), "output x = 1".into())], memory_image_limit: limit };
         let (memory, disk) = (scratch("same", &format!("memory-{format:?}.nc")), scratch("same", &format!("disk-{format:?}.nc")));
+        let routes_before = baroc::io::timings::write_routes();
         write_named_fields(&memory, &named, &options(None)).unwrap();
+        // The netCDF-4 image went straight from HDF5's memory to the file,
+        // not copied out first (the counts are the process's, and the other
+        // tests write at the same time: none of them copies).
+        let (from_memory, copied) = baroc::io::timings::write_routes();
+        assert_eq!(copied, routes_before.1, "no image copied out ({format:?})");
+        if format == Format::Netcdf4 {
+            assert!(from_memory > routes_before.0, "written from HDF5's memory");
+        }
         write_named_fields(&disk, &named, &options(Some(0))).unwrap();
         // Byte for byte, in fact (netCDF-C and HDF5 lay the file out the same
         // way in memory as on disk; the superblock checksum HDF5 computed
@@ -116,6 +126,31 @@ fn a_file_built_in_memory_equals_one_written_straight_to_disk() {
         let _ = std::fs::remove_file(memory);
         let _ = std::fs::remove_file(disk);
     }
+}
+
+/// Larger than the direct write's minimum and than its buffer
+/// (`atomic::BOUNCE`), so the image goes past the page cache in several
+/// chunks, the first with the superblock patched: still byte for byte the
+/// file netCDF-C writes to disk, and read back with the same values.
+#[test]
+fn a_large_file_written_from_hdf5_memory_equals_one_written_straight_to_disk() {
+    let grid = Arc::new(Grid::new((0..181).map(|i| 90.0 - i as f64).collect(), (0..360).map(|j| j as f64).collect()));
+    let field = Field::new("temperature", "K", Array4::from_shape_fn((1, 40, 181, 360), |(_, l, i, j)| 220.0 + l as f32 + (i as f32 * 0.1).cos() * 30.0 + j as f32 * 1e-3), None, Some((0..40).map(|l| 100_000.0 - l as f64 * 2_000.0).collect()), grid)
+        .unwrap();
+    assert!(field.data.len() * 4 > 2 * baroc::atomic::BOUNCE);
+    let named = [("temperature", &field)];
+    let options = |limit| WriteOptions { history: "test".into(), memory_image_limit: limit, ..Default::default() };
+    let (memory, disk) = (scratch("large", "memory.nc"), scratch("large", "disk.nc"));
+    let routes_before = baroc::io::timings::write_routes();
+    write_named_fields(&memory, &named, &options(None)).unwrap();
+    let routes_after = baroc::io::timings::write_routes();
+    assert!(routes_after.0 > routes_before.0 && routes_after.1 == routes_before.1, "written from HDF5's memory, not copied");
+    write_named_fields(&disk, &named, &options(Some(0))).unwrap();
+    assert!(std::fs::read(&memory).unwrap() == std::fs::read(&disk).unwrap(), "the two files differ in their bytes");
+    let back: Vec<f32> = baroc::io::netcdf_thread::call(|| netcdf::open(&memory).unwrap().variable("temperature").unwrap().get_values::<f32, _>(..).unwrap());
+    assert!(back.iter().zip(field.data.iter()).all(|(r, w)| r.to_bits() == w.to_bits()));
+    let _ = std::fs::remove_file(memory);
+    let _ = std::fs::remove_file(disk);
 }
 
 #[test]

@@ -133,13 +133,25 @@ impl std::fmt::Display for LayerPaths {
 static WRITE_BUILD_NANOSECONDS: AtomicU64 = AtomicU64::new(0);
 static WRITE_FILE_NANOSECONDS: AtomicU64 = AtomicU64::new(0);
 static WRITE_BYTES: AtomicU64 = AtomicU64::new(0);
+static WRITES_FROM_DRIVER_MEMORY: AtomicU64 = AtomicU64::new(0);
+static WRITES_COPIED: AtomicU64 = AtomicU64::new(0);
 
 /// Records one output written from a memory image: the time netCDF-C took
-/// to build the image, the time to put it in the file, and its size.
-pub fn record_write(build: Duration, file: Duration, bytes: u64) {
+/// to build the image (with, by the copying route, the copy), the time to
+/// put it in the file, its size, and whether it went straight from HDF5's
+/// memory (`io::netcdf_raw::ImageRoute`).
+pub fn record_write(build: Duration, file: Duration, bytes: u64, from_driver_memory: bool) {
     WRITE_BUILD_NANOSECONDS.fetch_add(build.as_nanos() as u64, Ordering::Relaxed);
     WRITE_FILE_NANOSECONDS.fetch_add(file.as_nanos() as u64, Ordering::Relaxed);
     WRITE_BYTES.fetch_add(bytes, Ordering::Relaxed);
+    let route = if from_driver_memory { &WRITES_FROM_DRIVER_MEMORY } else { &WRITES_COPIED };
+    route.fetch_add(1, Ordering::Relaxed);
+}
+
+/// Outputs written from memory images so far: straight from HDF5's memory,
+/// and copied out first.
+pub fn write_routes() -> (u64, u64) {
+    (WRITES_FROM_DRIVER_MEMORY.load(Ordering::Relaxed), WRITES_COPIED.load(Ordering::Relaxed))
 }
 
 /// Seconds building images, seconds writing them to files, and bytes, of

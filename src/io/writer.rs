@@ -7,8 +7,8 @@
 //!
 //! How the bytes reach the disk: a netCDF-4 output up to `IN_MEMORY_LIMIT` is built
 //! by netCDF-C as an image in memory (`io::netcdf_raw`)
-//! and written to the temporary file in one go past the page cache
-//! (`atomic::write_all_direct`), because a new file written through the
+//! and written to the temporary file straight from HDF5's memory, past the
+//! page cache (`atomic::write_all_direct_with_head`), because a new file written through the
 //! page cache was found to cost several times the rest of a run on virtual
 //! machines (first use of page-cache pages; figures in that function's
 //! comment). Larger outputs are written by netCDF-C straight to the file,
@@ -19,7 +19,7 @@
 
 use std::path::Path;
 
-use super::netcdf_raw::{Image, Kind, RawFile, GLOBAL};
+use super::netcdf_raw::{ImageRoute, ImageWritten, Kind, RawFile, GLOBAL};
 use super::DataError;
 use crate::grid::Field;
 
@@ -89,18 +89,17 @@ pub fn write_named_fields(path: &Path, named: &[(&str, &Field)], options: &Write
     let netcdf4 = options.format == Format::Netcdf4;
     let data_bytes: usize = named.iter().map(|(_, f)| f.data.len() * std::mem::size_of::<f32>()).sum();
     if netcdf4 && data_bytes <= options.memory_image_limit.unwrap_or(IN_MEMORY_LIMIT) {
-        // Built in memory, then written in one go past the page cache
-        // (`atomic::write_all_direct`): see the module comment.
+        // Built in memory, then written from HDF5's memory past the page
+        // cache (`atomic::write_all_direct_with_head`): see the module comment.
         let started = std::time::Instant::now();
-        let image = super::netcdf_thread::call(|| -> Result<Image, String> {
+        let written = super::netcdf_thread::call(|| -> Result<ImageWritten, String> {
             let mut file = RawFile::create_in_memory(data_bytes + HEADER_ROOM)?;
             define_and_write(&mut file, named, options)?;
-            file.close_into_image()
+            file.close_into_file(&temporary)
         })
         .map_err(|e| write_error(path, e))?;
-        let built = started.elapsed();
-        crate::atomic::write_all_direct(&temporary, image.bytes()).map_err(|e| write_error(path, crate::atomic::plain_os_error(&e)))?;
-        super::timings::record_write(built, started.elapsed() - built, image.bytes().len() as u64);
+        let built = started.elapsed().saturating_sub(written.writing);
+        super::timings::record_write(built, written.writing, written.bytes as u64, written.route == ImageRoute::DriverMemory);
     } else {
         super::netcdf_thread::call(|| -> Result<(), String> {
             let mut file = RawFile::create(&temporary, netcdf4)?;
