@@ -476,10 +476,10 @@ impl NetcdfSource {
         let (name, info) = (plan.name.as_str(), &self.variables[plan.k]);
         let grid = &info.grid;
         let Plan { time_indices, level_indices, lat_indices, lon_indices, out_lons, .. } = plan;
-        let times = info.times.as_ref().map(|t| t.select(&time_indices));
+        let times = info.times.as_ref().map(|t| t.select(time_indices));
         let levels = info.levels.as_ref().map(|l| level_indices.iter().map(|&i| l[i]).collect());
         let out_grid = if let (Some(_), Some(projected)) = (&selection.region, &grid.projection) {
-            Arc::new(super::projected::sub_grid(projected, &lat_indices, &lon_indices))
+            Arc::new(super::projected::sub_grid(projected, lat_indices, lon_indices))
         } else if selection.region.is_some() {
             Arc::new(Grid::new(lat_indices.iter().map(|&j| grid.latitudes[j]).collect(), out_lons.clone()))
         } else {
