@@ -206,7 +206,13 @@ impl Case {
     /// `compute`, or if the store holds a vector under the key (a key
     /// clash, an internal error).
     fn shared_field(&self, operation: String, compute: impl FnOnce() -> Result<Field>) -> Result<Arc<Field>> {
-        match self.shared_value(operation, || compute().map(|f| Shared::Field(Arc::new(f))))? {
+        self.shared_field_of(operation, || compute().map(Arc::new))
+    }
+
+    /// As `shared_field`, `compute` giving a field that may itself be
+    /// shared (a value kept under another key too), not copied.
+    fn shared_field_of(&self, operation: String, compute: impl FnOnce() -> Result<Arc<Field>>) -> Result<Arc<Field>> {
+        match self.shared_value(operation, || compute().map(Shared::Field))? {
             Shared::Field(f) => Ok(f),
             Shared::Vector(_) => Err(DiagnosticError::Unsupported("internal: a shared result of the wrong kind".into())),
         }
@@ -298,27 +304,49 @@ impl Case {
 
     /// As `at_pressure`, the field shared with the run's store (no copy).
     pub fn at_pressure_shared(&self, name: &str, pressure: f64, mask_below_ground: bool) -> Result<Arc<Field>> {
-        self.shared_field(format!("at_pressure {name:?} {pressure:?} {mask_below_ground}"), || self.at_pressure_computed(name, pressure, mask_below_ground))
+        self.shared_field_of(format!("at_pressure {name:?} {pressure:?} {mask_below_ground}"), || self.at_pressure_computed(name, pressure, mask_below_ground))
     }
 
-    fn at_pressure_computed(&self, name: &str, pressure: f64, mask_below_ground: bool) -> Result<Field> {
+    /// The geopotential at a pressure is `geopotential_at`'s field, the
+    /// same one (shared under both keys, not copied); any other variable is
+    /// interpolated in ln p. Fails as those do.
+    fn at_pressure_computed(&self, name: &str, pressure: f64, mask_below_ground: bool) -> Result<Arc<Field>> {
         if let Ok((geopotential, _)) = self.geopotential_source() {
             if self.dataset.resolve(name)?.name == geopotential {
-                return self.geopotential_at(pressure, mask_below_ground);
+                return self.geopotential_at_shared(pressure, mask_below_ground);
             }
         }
-        self.interpolated_in_ln_p(name, pressure, mask_below_ground)
+        self.interpolated_in_ln_p(name, pressure, mask_below_ground).map(Arc::new)
     }
 
     /// A variable at one pressure, linear in ln p between the levels around
     /// it (for model-level data, straight from the model levels), masked
     /// below ground when asked; named and described as the variable, with a
-    /// `pressure_level` attribute.
+    /// `pressure_level` attribute. Linear in ln p (field guide,
+    /// "Formulas": interpolation between pressure levels); fails when the
+    /// pressure lies outside the variable's levels or the read fails.
+    ///
+    /// At a data level (one term) the level is read on its own, not kept in
+    /// the run's read store (the value at the pressure is kept instead), and
+    /// becomes the result in place with `apply_weights`'s arithmetic for one
+    /// term, ((0 + w x) * 1) in f64 rounded to f32: the same bits, without a
+    /// second whole field.
     fn interpolated_in_ln_p(&self, name: &str, pressure: f64, mask_below_ground: bool) -> Result<Field> {
         let levels = self.levels_including(name, &[], &[pressure])?;
         let weights = vertical::interpolation_weights(&levels, pressure)?;
-        let (field, weights) = self.read_weighted_on(name, &levels, &weights)?;
-        let mut data = vertical::apply_weights(field.data.view(), &weights, 1.0);
+        let (field, mut data) = match weights.terms.as_slice() {
+            &[(k, w)] => {
+                let mut field = self.dataset.read_with(name, &self.selection_with_levels(Some(vec![levels[k]])), Some(&self.constants))?;
+                let mut data = std::mem::take(&mut field.data).index_axis_move(ndarray::Axis(1), 0);
+                data.par_mapv_inplace(|x| ((0.0 + w * x as f64) * 1.0) as f32);
+                (Arc::new(field), data)
+            }
+            _ => {
+                let (field, weights) = self.read_weighted_on(name, &levels, &weights)?;
+                let data = vertical::apply_weights(field.data.view(), &weights, 1.0);
+                (field, data)
+            }
+        };
         if mask_below_ground {
             if let Some(ps) = self.surface_pressure()? {
                 vertical::mask_below_ground(&mut data, ps.data.index_axis(ndarray::Axis(1), 0), pressure);

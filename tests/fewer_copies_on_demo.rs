@@ -151,3 +151,28 @@ fn shared_results_and_whole_area_crops_reach_the_language_without_a_copy() {
     let i = dz.grid.longitudes.iter().position(|&l| l == part.grid.longitudes[0]).expect("a longitude of the grid");
     assert_eq!(part.data[[0, 0, 0, 0]].to_bits(), dz.data[[0, 0, j, i]].to_bits());
 }
+
+#[test]
+fn a_variable_at_a_data_level_is_the_bits_of_the_weighted_sum_over_the_levels_read() {
+    // At a data level the level becomes the result in place; the reference
+    // is the general path, `apply_weights` of the interpolation weights
+    // (linear in ln p: field guide, "Formulas") over every level read.
+    use baroc::io::Role;
+    use baroc::physics::vertical::{apply_weights, interpolation_weights};
+    for share in [false, true] {
+        let case = case(share);
+        for role in [Role::EastwardWind, Role::Temperature] {
+            let name = case.dataset.find_role(role).expect("the demo has the role").name.clone();
+            let all = case.field(&name).expect("every level");
+            let levels = all.levels.clone().expect("levels");
+            for pressure in [levels[0], 50_000.0, 45_000.0] {
+                let at = case.at_pressure(&name, pressure, false).expect("at a pressure");
+                let weights = interpolation_weights(&levels, pressure).expect("within the levels");
+                let reference = apply_weights(all.data.view(), &weights, 1.0);
+                let reference = at.derived("reference", &at.units, reference.insert_axis(ndarray::Axis(1))).expect("shape");
+                assert_same_bits(&at, &reference);
+                assert!(at.attributes.iter().any(|(k, _)| k == "pressure_level"));
+            }
+        }
+    }
+}
