@@ -100,18 +100,20 @@ fn geopotential_field(z: &Field, data: Array3<f32>, pressure: f64, how: String) 
 }
 
 /// A layer's thickness by the geopotential route from the geopotential at
-/// its boundaries: the data (m), the template field and the `method`.
-fn geopotential_difference(top: Field, bottom: &Field, kind: GeopotentialKind, c: &Constants) -> (Array3<f32>, Field, String) {
+/// its boundaries: the data (m) and the `method` (the caller's `top` serves
+/// as the template of `thickness_field`, which takes only its coordinates).
+/// dz = (Phi_t - Phi_b) / g0, or Z_t - Z_b for heights (field guide,
+/// "Formulas": thickness from geopotential), in f64 then rounded. Never
+/// fails; missing values stay NaN.
+fn geopotential_difference(top: &Field, bottom: &Field, kind: GeopotentialKind, c: &Constants) -> (Array3<f32>, String) {
     let to_metres = match kind {
         GeopotentialKind::Geopotential => 1.0 / c.gravity,
         GeopotentialKind::Height => 1.0,
     };
     let data = Zip::from(top.horizontal_slices()).and(bottom.horizontal_slices()).map_collect(|&a, &b| ((a as f64 - b as f64) * to_metres) as f32);
     let how = |f: &Field| f.attributes.iter().find(|(k, _)| k == "vertical_interpolation").map(|(_, v)| v.clone()).unwrap_or_default();
-    let method = format!("difference of geopotential height at the layer boundaries (top: {}; bottom: {})", how(&top), how(bottom));
-    let mut template = top;
-    template.attributes.retain(|(k, _)| k != "vertical_interpolation" && k != "pressure_level");
-    (data, template, method)
+    let method = format!("difference of geopotential height at the layer boundaries (top: {}; bottom: {})", how(top), how(bottom));
+    (data, method)
 }
 
 fn trim(x: f64) -> String {
@@ -199,28 +201,41 @@ impl Case {
         }
     }
 
-    fn shared_field(&self, operation: String, compute: impl FnOnce() -> Result<Field>) -> Result<Field> {
+    /// The shared field for `operation`, or `compute()`'s (kept when the
+    /// store has room), held with the store rather than copied. Fails as
+    /// `compute`, or if the store holds a vector under the key (a key
+    /// clash, an internal error).
+    fn shared_field(&self, operation: String, compute: impl FnOnce() -> Result<Field>) -> Result<Arc<Field>> {
+        self.shared_field_of(operation, || compute().map(Arc::new))
+    }
+
+    /// As `shared_field`, `compute` giving a field that may itself be
+    /// shared (a value kept under another key too), not copied.
+    fn shared_field_of(&self, operation: String, compute: impl FnOnce() -> Result<Arc<Field>>) -> Result<Arc<Field>> {
         match self.shared_value(operation, || compute().map(Shared::Field))? {
             Shared::Field(f) => Ok(f),
             Shared::Vector(_) => Err(DiagnosticError::Unsupported("internal: a shared result of the wrong kind".into())),
         }
     }
 
-    fn shared_vector(&self, operation: String, compute: impl FnOnce() -> Result<VectorField>) -> Result<VectorField> {
-        match self.shared_value(operation, || compute().map(Shared::Vector))? {
+    /// As `shared_field`, for a vector field.
+    fn shared_vector(&self, operation: String, compute: impl FnOnce() -> Result<VectorField>) -> Result<Arc<VectorField>> {
+        match self.shared_value(operation, || compute().map(|v| Shared::Vector(Arc::new(v))))? {
             Shared::Vector(v) => Ok(v),
             Shared::Field(_) => Err(DiagnosticError::Unsupported("internal: a shared result of the wrong kind".into())),
         }
     }
 
     /// Reads through the run's store when sharing (the same variable and
-    /// selection read once per run, `SharedResults::read`), else directly.
-    fn read_data(&self, name: &str, selection: &Selection) -> Result<Field> {
+    /// selection read once per run, `SharedResults::read_shared`, one copy
+    /// for the store and the caller), else directly. Fails as
+    /// `Dataset::read_with`.
+    fn read_data(&self, name: &str, selection: &Selection) -> Result<Arc<Field>> {
         Ok(match &self.shared {
             // With this case's constants: model-level data use them in the
             // hydrostatic integral.
-            Some(store) => store.read(&self.dataset, name, selection, Some(&self.constants))?,
-            None => self.dataset.read_with(name, selection, Some(&self.constants))?,
+            Some(store) => store.read_shared(&self.dataset, name, selection, Some(&self.constants))?,
+            None => Arc::new(self.dataset.read_with(name, selection, Some(&self.constants))?),
         })
     }
 
@@ -230,7 +245,7 @@ impl Case {
 
     /// Reads a variable (by name or role) over all its levels.
     pub fn field(&self, name: &str) -> Result<Field> {
-        Ok(self.read_data(name, &self.selection)?)
+        Ok(Arc::unwrap_or_clone(self.read_data(name, &self.selection)?))
     }
 
     /// The levels of a variable with `extra` pressures inserted, when the
@@ -262,13 +277,13 @@ impl Case {
 
     /// Reads only the data levels that `weights` need, returning the field
     /// and the weights re-indexed onto the levels read.
-    fn read_weighted(&self, name: &str, weights: &vertical::LevelWeights) -> Result<(Field, vertical::LevelWeights)> {
+    fn read_weighted(&self, name: &str, weights: &vertical::LevelWeights) -> Result<(Arc<Field>, vertical::LevelWeights)> {
         self.read_weighted_on(name, &self.levels_of(name)?, weights)
     }
 
     /// As `read_weighted`, the weights indexing `levels` (which may hold
     /// pressures besides the variable's own, see `levels_including`).
-    fn read_weighted_on(&self, name: &str, levels: &[f64], weights: &vertical::LevelWeights) -> Result<(Field, vertical::LevelWeights)> {
+    fn read_weighted_on(&self, name: &str, levels: &[f64], weights: &vertical::LevelWeights) -> Result<(Arc<Field>, vertical::LevelWeights)> {
         let mut needed: Vec<usize> = weights.terms.iter().map(|t| t.0).collect();
         needed.sort_unstable();
         needed.dedup();
@@ -284,27 +299,54 @@ impl Case {
     /// points are NaN when the data hold surface pressure and
     /// `mask_below_ground` is set.
     pub fn at_pressure(&self, name: &str, pressure: f64, mask_below_ground: bool) -> Result<Field> {
-        self.shared_field(format!("at_pressure {name:?} {pressure:?} {mask_below_ground}"), || self.at_pressure_computed(name, pressure, mask_below_ground))
+        self.at_pressure_shared(name, pressure, mask_below_ground).map(Arc::unwrap_or_clone)
     }
 
-    fn at_pressure_computed(&self, name: &str, pressure: f64, mask_below_ground: bool) -> Result<Field> {
+    /// As `at_pressure`, the field shared with the run's store (no copy).
+    pub fn at_pressure_shared(&self, name: &str, pressure: f64, mask_below_ground: bool) -> Result<Arc<Field>> {
+        self.shared_field_of(format!("at_pressure {name:?} {pressure:?} {mask_below_ground}"), || self.at_pressure_computed(name, pressure, mask_below_ground))
+    }
+
+    /// The geopotential at a pressure is `geopotential_at`'s field, the
+    /// same one (shared under both keys, not copied); any other variable is
+    /// interpolated in ln p. Fails as those do.
+    fn at_pressure_computed(&self, name: &str, pressure: f64, mask_below_ground: bool) -> Result<Arc<Field>> {
         if let Ok((geopotential, _)) = self.geopotential_source() {
             if self.dataset.resolve(name)?.name == geopotential {
-                return self.geopotential_at(pressure, mask_below_ground);
+                return self.geopotential_at_shared(pressure, mask_below_ground);
             }
         }
-        self.interpolated_in_ln_p(name, pressure, mask_below_ground)
+        self.interpolated_in_ln_p(name, pressure, mask_below_ground).map(Arc::new)
     }
 
     /// A variable at one pressure, linear in ln p between the levels around
     /// it (for model-level data, straight from the model levels), masked
     /// below ground when asked; named and described as the variable, with a
-    /// `pressure_level` attribute.
+    /// `pressure_level` attribute. Linear in ln p (field guide,
+    /// "Formulas": interpolation between pressure levels); fails when the
+    /// pressure lies outside the variable's levels or the read fails.
+    ///
+    /// At a data level (one term) the level is read on its own, not kept in
+    /// the run's read store (the value at the pressure is kept instead), and
+    /// becomes the result in place with `apply_weights`'s arithmetic for one
+    /// term, ((0 + w x) * 1) in f64 rounded to f32: the same bits, without a
+    /// second whole field.
     fn interpolated_in_ln_p(&self, name: &str, pressure: f64, mask_below_ground: bool) -> Result<Field> {
         let levels = self.levels_including(name, &[], &[pressure])?;
         let weights = vertical::interpolation_weights(&levels, pressure)?;
-        let (field, weights) = self.read_weighted_on(name, &levels, &weights)?;
-        let mut data = vertical::apply_weights(field.data.view(), &weights, 1.0);
+        let (field, mut data) = match weights.terms.as_slice() {
+            &[(k, w)] => {
+                let mut field = self.dataset.read_with(name, &self.selection_with_levels(Some(vec![levels[k]])), Some(&self.constants))?;
+                let mut data = std::mem::take(&mut field.data).index_axis_move(ndarray::Axis(1), 0);
+                data.par_mapv_inplace(|x| ((0.0 + w * x as f64) * 1.0) as f32);
+                (Arc::new(field), data)
+            }
+            _ => {
+                let (field, weights) = self.read_weighted_on(name, &levels, &weights)?;
+                let data = vertical::apply_weights(field.data.view(), &weights, 1.0);
+                (field, data)
+            }
+        };
         if mask_below_ground {
             if let Some(ps) = self.surface_pressure()? {
                 vertical::mask_below_ground(&mut data, ps.data.index_axis(ndarray::Axis(1), 0), pressure);
@@ -329,6 +371,11 @@ impl Case {
     /// temperature on levels covering the pressure, the piecewise quadratic
     /// in ln p. The result's `vertical_interpolation` attribute says which.
     pub fn geopotential_at(&self, pressure: f64, mask_below_ground: bool) -> Result<Field> {
+        self.geopotential_at_shared(pressure, mask_below_ground).map(Arc::unwrap_or_clone)
+    }
+
+    /// As `geopotential_at`, the field shared with the run's store.
+    fn geopotential_at_shared(&self, pressure: f64, mask_below_ground: bool) -> Result<Arc<Field>> {
         self.shared_field(format!("geopotential_at {pressure:?} {mask_below_ground}"), || self.geopotential_at_computed(pressure, mask_below_ground))
     }
 
@@ -404,16 +451,21 @@ impl Case {
         geopotential_field(&z, data, pressure, method.describe())
     }
 
-    fn surface_pressure(&self) -> Result<Option<Field>> {
+    /// The surface pressure (Pa) of the selection, `None` when the data
+    /// hold none; shared with the run's store unless its units needed
+    /// converting. Fails as the read does.
+    fn surface_pressure(&self) -> Result<Option<Arc<Field>>> {
         match self.dataset.find_role(Role::SurfacePressure) {
             None => Ok(None),
             Some(info) => {
                 let name = info.name.clone();
-                let mut field = self.read_data(&name, &self.selection)?;
+                let field = self.read_data(&name, &self.selection)?;
                 let factor = crate::io::cf::pressure_factor(&field.units).unwrap_or(1.0);
                 if factor != 1.0 {
+                    let mut field = Arc::unwrap_or_clone(field);
                     field.data.mapv_inplace(|p| (p as f64 * factor) as f32);
                     field.units = "Pa".into();
+                    return Ok(Some(Arc::new(field)));
                 }
                 Ok(Some(field))
             }
@@ -446,12 +498,17 @@ impl Case {
 
     /// Geostrophic wind at a pressure level (m s-1).
     pub fn geostrophic_wind(&self, pressure: f64) -> Result<VectorField> {
+        self.geostrophic_wind_shared(pressure).map(Arc::unwrap_or_clone)
+    }
+
+    /// As `geostrophic_wind`, the field shared with the run's store.
+    pub fn geostrophic_wind_shared(&self, pressure: f64) -> Result<Arc<VectorField>> {
         self.shared_vector(format!("geostrophic_wind {pressure:?}"), || self.geostrophic_wind_computed(pressure))
     }
 
     fn geostrophic_wind_computed(&self, pressure: f64) -> Result<VectorField> {
         let (name, kind) = self.geopotential_source()?;
-        let z = self.at_pressure(&name, pressure, false)?;
+        let z = self.at_pressure_shared(&name, pressure, false)?;
         self.geostrophic_wind_of(&z, kind, &format!("at {} hPa", trim(pressure / 100.0)))
     }
 
@@ -474,6 +531,11 @@ impl Case {
 
     /// Hypsometric thickness (m) of a layer by the chosen route.
     pub fn thickness(&self, layer: Layer, route: ThicknessRoute) -> Result<Field> {
+        self.thickness_shared(layer, route).map(Arc::unwrap_or_clone)
+    }
+
+    /// As `thickness`, the field shared with the run's store.
+    pub fn thickness_shared(&self, layer: Layer, route: ThicknessRoute) -> Result<Arc<Field>> {
         self.shared_field(thickness_key(layer, route), || self.thickness_computed(layer, route))
     }
 
@@ -494,7 +556,7 @@ impl Case {
                 let levels = self.levels_including(&t_name, &along, &[layer.bottom, layer.top])?;
                 let factor = c.dry_air_gas_constant / c.gravity;
                 // Reads the levels a rule needs and integrates over them.
-                let integrate = |weights: &vertical::LevelWeights| -> Result<(Array3<f32>, Field)> {
+                let integrate = |weights: &vertical::LevelWeights| -> Result<(Array3<f32>, Arc<Field>)> {
                     let (t, w) = self.read_weighted_on(&t_name, &levels, weights)?;
                     let data = match &humidity_name {
                         Some(q_name) => {
@@ -521,8 +583,9 @@ impl Case {
             }
             ThicknessRoute::Geopotential => {
                 let (_, kind) = self.geopotential_source()?;
-                let (top, bottom) = (self.geopotential_at(layer.top, false)?, self.geopotential_at(layer.bottom, false)?);
-                geopotential_difference(top, &bottom, kind, c)
+                let (top, bottom) = (self.geopotential_at_shared(layer.top, false)?, self.geopotential_at_shared(layer.bottom, false)?);
+                let (data, method) = geopotential_difference(&top, &bottom, kind, c);
+                (data, top, method)
             }
         };
         thickness_field(layer, &template, data, method)
@@ -550,7 +613,7 @@ impl Case {
     /// Layer-mean (virtual) temperature (K) from thickness:
     /// Tbar = g0 dz / (Rd ln(p_b/p_t)).
     pub fn layer_mean_temperature(&self, layer: Layer, route: ThicknessRoute) -> Result<Field> {
-        let dz = self.thickness(layer, route)?;
+        let dz = self.thickness_shared(layer, route)?;
         let factor = self.constants.gravity / (self.constants.dry_air_gas_constant * layer.log_ratio());
         let data = dz.data.mapv(|x| (x as f64 * factor) as f32);
         let mut out = dz.derived(&format!("mean_temperature_{}", layer.tag()), "K", data).map_err(DiagnosticError::Unsupported)?;
@@ -562,11 +625,16 @@ impl Case {
     /// the thickness route from geopotential; the temperature routes take the
     /// layer-mean temperature gradient.
     pub fn thermal_wind(&self, layer: Layer, route: ThicknessRoute) -> Result<VectorField> {
+        self.thermal_wind_shared(layer, route).map(Arc::unwrap_or_clone)
+    }
+
+    /// As `thermal_wind`, the field shared with the run's store.
+    pub fn thermal_wind_shared(&self, layer: Layer, route: ThicknessRoute) -> Result<Arc<VectorField>> {
         self.shared_vector(thermal_wind_key(layer, route), || self.thermal_wind_computed(layer, route))
     }
 
     fn thermal_wind_computed(&self, layer: Layer, route: ThicknessRoute) -> Result<VectorField> {
-        let dz = self.thickness(layer, route)?;
+        let dz = self.thickness_shared(layer, route)?;
         let (u, v) = thermal_wind::thermal_wind_from_thickness(&dz.grid, &self.constants, dz.horizontal_slices(), self.equator_band);
         self.thermal_wind_field(layer, route, &dz, u, v)
     }
@@ -591,7 +659,7 @@ impl Case {
 
     /// Per-level geostrophic shear dV_g/d(ln p) from temperature at a level.
     pub fn geostrophic_shear(&self, pressure: f64) -> Result<VectorField> {
-        let t = self.at_pressure(&self.role_name(Role::Temperature)?, pressure, false)?;
+        let t = self.at_pressure_shared(&self.role_name(Role::Temperature)?, pressure, false)?;
         let (u, v) = thermal_wind::geostrophic_shear_per_log_pressure(&t.grid, &self.constants, t.horizontal_slices(), self.equator_band);
         let at = trim(pressure / 100.0);
         let u = t.derived("geostrophic_shear_eastward", "m s-1", reshape_like(u, &t)).map_err(DiagnosticError::Unsupported)?;
@@ -604,43 +672,57 @@ impl Case {
 
     /// The analysed wind at a pressure.
     pub fn wind(&self, pressure: f64) -> Result<VectorField> {
-        let u = self.at_pressure(&self.role_name(Role::EastwardWind)?, pressure, false)?;
-        let v = self.at_pressure(&self.role_name(Role::NorthwardWind)?, pressure, false)?;
-        self.vector(u, v)
+        let (u, v) = self.wind_components(pressure)?;
+        self.vector(Arc::unwrap_or_clone(u), Arc::unwrap_or_clone(v))
+    }
+
+    /// The analysed wind's components at a pressure, shared with the run's
+    /// store (for callers that only read them). Fails as `at_pressure`.
+    fn wind_components(&self, pressure: f64) -> Result<(Arc<Field>, Arc<Field>)> {
+        let u = self.at_pressure_shared(&self.role_name(Role::EastwardWind)?, pressure, false)?;
+        let v = self.at_pressure_shared(&self.role_name(Role::NorthwardWind)?, pressure, false)?;
+        Ok((u, v))
     }
 
     /// Analysed-wind shear across a layer: V(top) - V(bottom).
     pub fn wind_shear(&self, layer: Layer) -> Result<VectorField> {
-        let (bottom, top) = (self.wind(layer.bottom)?, self.wind(layer.top)?);
+        let ((bottom_u, bottom_v), (top_u, top_v)) = (self.wind_components(layer.bottom)?, self.wind_components(layer.top)?);
         self.vector(
-            named_difference(&top.eastward, &bottom.eastward, &format!("wind_shear_eastward_{}", layer.tag()), &format!("eastward wind shear of the {} layer", layer.label()))?,
-            named_difference(&top.northward, &bottom.northward, &format!("wind_shear_northward_{}", layer.tag()), &format!("northward wind shear of the {} layer", layer.label()))?,
+            named_difference(&top_u, &bottom_u, &format!("wind_shear_eastward_{}", layer.tag()), &format!("eastward wind shear of the {} layer", layer.label()))?,
+            named_difference(&top_v, &bottom_v, &format!("wind_shear_northward_{}", layer.tag()), &format!("northward wind shear of the {} layer", layer.label()))?,
         )
     }
 
     /// Ageostrophic wind V - V_g at a pressure.
     pub fn ageostrophic_wind(&self, pressure: f64) -> Result<VectorField> {
-        let (v, g) = (self.wind(pressure)?, self.geostrophic_wind(pressure)?);
+        let ((u, v), g) = (self.wind_components(pressure)?, self.geostrophic_wind_shared(pressure)?);
         let at = trim(pressure / 100.0);
         self.vector(
-            named_difference(&v.eastward, &g.eastward, "ageostrophic_eastward_wind", &format!("eastward ageostrophic wind at {at} hPa"))?,
-            named_difference(&v.northward, &g.northward, "ageostrophic_northward_wind", &format!("northward ageostrophic wind at {at} hPa"))?,
+            named_difference(&u, &g.eastward, "ageostrophic_eastward_wind", &format!("eastward ageostrophic wind at {at} hPa"))?,
+            named_difference(&v, &g.northward, "ageostrophic_northward_wind", &format!("northward ageostrophic wind at {at} hPa"))?,
         )
     }
 
-    /// Ageostrophic shear (V_t - V_b) - V_T of a layer.
+    /// Ageostrophic shear (V_t - V_b) - V_T of a layer (field guide: the
+    /// part of the analysed shear that thermal-wind balance leaves
+    /// unexplained). Each component is computed in one pass,
+    /// (top - bottom) - thermal in f32 in that order: the same bits as
+    /// `wind_shear` minus `thermal_wind`, without the shear held as a
+    /// whole field. Fails as `wind_shear` and `thermal_wind`, or when
+    /// their grids differ.
     pub fn ageostrophic_shear(&self, layer: Layer, route: ThicknessRoute) -> Result<VectorField> {
-        let (shear, thermal) = (self.wind_shear(layer)?, self.thermal_wind(layer, route)?);
+        let ((bottom_u, bottom_v), (top_u, top_v)) = (self.wind_components(layer.bottom)?, self.wind_components(layer.top)?);
+        let thermal = self.thermal_wind_shared(layer, route)?;
         self.vector(
-            named_difference(&shear.eastward, &thermal.eastward, &format!("ageostrophic_shear_eastward_{}", layer.tag()), &format!("eastward ageostrophic shear of the {} layer", layer.label()))?,
-            named_difference(&shear.northward, &thermal.northward, &format!("ageostrophic_shear_northward_{}", layer.tag()), &format!("northward ageostrophic shear of the {} layer", layer.label()))?,
+            named_shear_less(&top_u, &bottom_u, &thermal.eastward, &format!("ageostrophic_shear_eastward_{}", layer.tag()), &format!("eastward ageostrophic shear of the {} layer", layer.label()))?,
+            named_shear_less(&top_v, &bottom_v, &thermal.northward, &format!("ageostrophic_shear_northward_{}", layer.tag()), &format!("northward ageostrophic shear of the {} layer", layer.label()))?,
         )
     }
 
     /// Geostrophic temperature advection at a level (K s-1).
     pub fn temperature_advection(&self, pressure: f64) -> Result<Field> {
-        let t = self.at_pressure(&self.role_name(Role::Temperature)?, pressure, false)?;
-        let g = self.geostrophic_wind(pressure)?;
+        let t = self.at_pressure_shared(&self.role_name(Role::Temperature)?, pressure, false)?;
+        let g = self.geostrophic_wind_shared(pressure)?;
         let mut out = advect(&t, &g, &self.constants)?;
         out.name = "geostrophic_temperature_advection".into();
         out.long_name = format!("geostrophic temperature advection at {} hPa", trim(pressure / 100.0));
@@ -652,16 +734,35 @@ impl Case {
     /// and Tbar from the thickness of the same geopotential, so that it equals
     /// -(f/(Rd ln(p_b/p_t))) k . (V_b x V_t) (see physics::advection).
     pub fn layer_temperature_advection(&self, layer: Layer) -> Result<Field> {
+        self.layer_temperature_advection_shared(layer).map(Arc::unwrap_or_clone)
+    }
+
+    /// As `layer_temperature_advection`, the field shared with the run's
+    /// store.
+    pub fn layer_temperature_advection_shared(&self, layer: Layer) -> Result<Arc<Field>> {
         self.shared_field(format!("layer_temperature_advection {layer:?}"), || self.layer_temperature_advection_computed(layer))
     }
 
+    /// The mean wind (V_b + V_t)/2 is formed point by point inside the
+    /// advection kernel (`advection::advection_by_mean`, the same f32
+    /// arithmetic as the two mean fields it replaces), so it is never held
+    /// as two whole fields. Fails as `geostrophic_wind` and `thickness`, or
+    /// when the winds and the temperature are on different grids.
     fn layer_temperature_advection_computed(&self, layer: Layer) -> Result<Field> {
-        let (b, t) = (self.geostrophic_wind(layer.bottom)?, self.geostrophic_wind(layer.top)?);
+        let (b, t) = (self.geostrophic_wind_shared(layer.bottom)?, self.geostrophic_wind_shared(layer.top)?);
         let tbar = self.layer_mean_temperature(layer, ThicknessRoute::Geopotential)?;
-        let mean = |a: &Field, b: &Field| -> Array4<f32> { (&a.data + &b.data).mapv(|x| 0.5 * x) };
-        let u = tbar.derived("mean_geostrophic_eastward_wind", "m s-1", mean(&b.eastward, &t.eastward)).map_err(DiagnosticError::Unsupported)?;
-        let v = tbar.derived("mean_geostrophic_northward_wind", "m s-1", mean(&b.northward, &t.northward)).map_err(DiagnosticError::Unsupported)?;
-        let mut out = advect(&tbar, &self.vector(u, v)?, &self.constants)?;
+        for wind in [&b.eastward, &b.northward, &t.eastward, &t.northward] {
+            same_shape(&tbar, wind)?;
+        }
+        let a = advection::advection_by_mean(
+            &tbar.grid,
+            self.constants.earth_radius,
+            tbar.horizontal_slices(),
+            (b.eastward.horizontal_slices(), b.northward.horizontal_slices()),
+            (t.eastward.horizontal_slices(), t.northward.horizontal_slices()),
+        );
+        let mut out = tbar.derived(&format!("advection_of_{}", tbar.name), &per_second(&tbar.units), reshape_like(a, &tbar)).map_err(DiagnosticError::Unsupported)?;
+        out.standard_name = None;
         out.name = format!("layer_temperature_advection_{}", layer.tag());
         out.long_name = format!("layer-mean geostrophic temperature advection of the {} layer", layer.label());
         out.attributes.push(("layer".into(), layer.label()));
@@ -680,9 +781,8 @@ impl Case {
     /// `weak_wind_threshold` attribute so pictures and tables can say why a
     /// value is missing.
     pub fn turning_with(&self, layer: Layer, weak_wind: f64) -> Result<Field> {
-        let (b, t) = (self.geostrophic_wind(layer.bottom)?, self.geostrophic_wind(layer.top)?);
-        let slices = |f: &Field| f.horizontal_slices().to_owned();
-        let angle = thermal_wind::turning_where_defined(slices(&b.eastward).view(), slices(&b.northward).view(), slices(&t.eastward).view(), slices(&t.northward).view(), weak_wind);
+        let (b, t) = (self.geostrophic_wind_shared(layer.bottom)?, self.geostrophic_wind_shared(layer.top)?);
+        let angle = thermal_wind::turning_where_defined(b.eastward.horizontal_slices(), b.northward.horizontal_slices(), t.eastward.horizontal_slices(), t.northward.horizontal_slices(), weak_wind);
         Ok(b.eastward
             .derived(&format!("geostrophic_turning_{}", layer.tag()), "degree", reshape_like(angle, &b.eastward))
             .map_err(DiagnosticError::Unsupported)?
@@ -693,7 +793,7 @@ impl Case {
 
     /// Potential temperature (K) at a pressure.
     pub fn potential_temperature(&self, pressure: f64) -> Result<Field> {
-        let t = self.at_pressure(&self.role_name(Role::Temperature)?, pressure, false)?;
+        let t = self.at_pressure_shared(&self.role_name(Role::Temperature)?, pressure, false)?;
         let data = t.data.mapv(|x| stability::potential_temperature(x as f64, pressure) as f32);
         let mut out = t.derived("potential_temperature", "K", data).map_err(DiagnosticError::Unsupported)?;
         out.long_name = format!("potential temperature at {} hPa", trim(pressure / 100.0));
@@ -704,7 +804,7 @@ impl Case {
     /// Static stability N^2 (s-2) of a layer.
     pub fn static_stability(&self, layer: Layer) -> Result<Field> {
         let t_name = self.role_name(Role::Temperature)?;
-        let (tb, tt) = (self.at_pressure(&t_name, layer.bottom, false)?, self.at_pressure(&t_name, layer.top, false)?);
+        let (tb, tt) = (self.at_pressure_shared(&t_name, layer.bottom, false)?, self.at_pressure_shared(&t_name, layer.top, false)?);
         let tm = self.layer_mean_temperature(layer, ThicknessRoute::Temperature)?;
         let n2 = stability::layer_static_stability(&self.constants, tb.horizontal_slices(), tt.horizontal_slices(), tm.horizontal_slices(), layer.bottom, layer.top);
         Ok(tm
@@ -716,8 +816,8 @@ impl Case {
     /// Maximum Eady growth rate (s-1) of a layer.
     pub fn eady_growth_rate(&self, layer: Layer) -> Result<Field> {
         let n2 = self.static_stability(layer)?;
-        let vt = self.thermal_wind(layer, ThicknessRoute::Temperature)?;
-        let dz = self.thickness(layer, ThicknessRoute::Temperature)?;
+        let vt = self.thermal_wind_shared(layer, ThicknessRoute::Temperature)?;
+        let dz = self.thickness_shared(layer, ThicknessRoute::Temperature)?;
         let sigma = match &n2.grid.projection {
             // A projected grid: the Coriolis parameter at each point's own
             // latitude; the thermal wind already has map-factor derivatives.
@@ -845,10 +945,26 @@ pub fn area_statistics(field: &Field, region: &Region) -> Result<Vec<AreaStatist
     slices.outer_iter().map(|s| sampling::area_statistics(&field.grid, s, region).map_err(DiagnosticError::from)).collect()
 }
 
+/// a - b in f32, named as given, on a's coordinates. Fails when the two
+/// are not on the same grid and shape.
 fn named_difference(a: &Field, b: &Field, name: &str, long_name: &str) -> Result<Field> {
     same_shape(a, b)?;
     let data = &a.data - &b.data;
     let mut out = a.derived(name, &a.units, data).map_err(DiagnosticError::Unsupported)?;
+    out.long_name = long_name.into();
+    out.standard_name = None;
+    Ok(out)
+}
+
+/// (top - bottom) - less in f32, in that order (the same bits as
+/// `named_difference` of `named_difference(top, bottom)` and `less`), in
+/// one pass with no intermediate field; named as given, on top's
+/// coordinates. Fails when the three are not on the same grid and shape.
+fn named_shear_less(top: &Field, bottom: &Field, less: &Field, name: &str, long_name: &str) -> Result<Field> {
+    same_shape(top, bottom)?;
+    same_shape(top, less)?;
+    let data = Zip::from(&top.data).and(&bottom.data).and(&less.data).par_map_collect(|&t, &b, &l| (t - b) - l);
+    let mut out = top.derived(name, &top.units, data).map_err(DiagnosticError::Unsupported)?;
     out.long_name = long_name.into();
     out.standard_name = None;
     Ok(out)

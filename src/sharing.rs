@@ -14,11 +14,14 @@
 //! at the start of every run (a notebook cell, a recipe run), so a file
 //! changed on disk between cells is read afresh.
 //!
-//! A value is served as a clone of the stored one: the same bits as
-//! computing it again (the operations are deterministic), at the price of a
-//! copy, far below a read or a stencil. The store keeps at most `budget`
-//! bytes of field data; beyond it, values are simply not kept (the run is
-//! then as without sharing, never wrong).
+//! A value is held behind an `Arc` and served shared, not copied: the same
+//! bits as computing it again (the operations are deterministic), and the
+//! same memory as the caller's own (`Value::Scalar`/`Value::Vector` hold
+//! the same `Arc`s, so an output that is also a shared intermediate exists
+//! once). Callers that need a value of their own take it with
+//! `Arc::unwrap_or_clone` (a copy only while the store holds it too). The
+//! store keeps at most `budget` bytes of field data; beyond it, values are
+//! simply not kept (the run is then as without sharing, never wrong).
 
 use std::collections::HashMap;
 use std::sync::atomic::{AtomicU64, Ordering};
@@ -38,11 +41,12 @@ pub const DEFAULT_BUDGET: u64 = 1 << 30;
 /// it would hold its memory for the rest of the run.
 pub const READ_SHARE: u64 = 16;
 
-/// A stored value.
+/// A stored value, shared with the callers it is served to (cloning it
+/// clones the `Arc`, never the data).
 #[derive(Clone)]
 pub enum Shared {
-    Field(Field),
-    Vector(VectorField),
+    Field(Arc<Field>),
+    Vector(Arc<VectorField>),
 }
 
 impl Shared {
@@ -172,12 +176,21 @@ impl SharedResults {
         format!("{:p}|{context}|{operation}", Arc::as_ptr(dataset))
     }
 
+    /// A read of `name` (a variable or a role) under `selection`, as a
+    /// field of the caller's own (`read_shared`, copied only when the store
+    /// keeps the read too). Fails as `Dataset::read_with`.
+    pub fn read(&self, dataset: &Arc<Dataset>, name: &str, selection: &Selection, constants: Option<&crate::constants::Constants>) -> Result<Field, DataError> {
+        self.read_shared(dataset, name, selection, constants).map(Arc::unwrap_or_clone)
+    }
+
     /// A read of `name` (a variable or a role) under `selection`: served
     /// from the store when this run has read the same variable, levels,
     /// times and region of the same dataset before (the same bits: a read
     /// is deterministic and the store is emptied between runs), otherwise
-    /// read and kept when it fits (see `READ_SHARE`).
-    pub fn read(&self, dataset: &Arc<Dataset>, name: &str, selection: &Selection, constants: Option<&crate::constants::Constants>) -> Result<Field, DataError> {
+    /// read and kept when it fits (see `READ_SHARE`); the store and the
+    /// caller share one copy. Fails as `Dataset::read_with` (an unknown
+    /// name, a selection outside the data, an unreadable file).
+    pub fn read_shared(&self, dataset: &Arc<Dataset>, name: &str, selection: &Selection, constants: Option<&crate::constants::Constants>) -> Result<Arc<Field>, DataError> {
         let variable = dataset.resolve(name)?.name.clone();
         // The constants belong to the key: model-level data computed by the
         // hydrostatic integral depend on them.
@@ -186,7 +199,7 @@ impl SharedResults {
             crate::io::timings::record_cached(&variable, selection);
             return Ok(field);
         }
-        let field = dataset.read_with(&variable, selection, constants)?;
+        let field = Arc::new(dataset.read_with(&variable, selection, constants)?);
         let mut s = self.lock();
         let size = (field.data.len() * std::mem::size_of::<f32>()) as u64;
         if size <= self.budget / READ_SHARE && s.bytes + size <= self.budget && !s.values.contains_key(&key) {
@@ -199,9 +212,10 @@ impl SharedResults {
         Ok(field)
     }
 
-    /// The stored value for `key`, or `compute()`'s, stored when it fits.
-    /// The lock is not held while computing, so two threads asking for the
-    /// same value at once may both compute it (the same bits either way).
+    /// The stored value for `key`, or `compute()`'s, stored when it fits
+    /// (shared with the caller, not copied). The lock is not held while
+    /// computing, so two threads asking for the same value at once may both
+    /// compute it (the same bits either way). Fails as `compute` does.
     pub fn get_or_compute<E>(&self, dataset: &Arc<Dataset>, key: String, compute: impl FnOnce() -> Result<Shared, E>) -> Result<Shared, E> {
         {
             let s = self.lock();

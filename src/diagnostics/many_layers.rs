@@ -114,8 +114,11 @@ impl Case {
             };
             store.note_many_layer_pass(group.len());
             computed += group.len();
-            for (index, (request, _)) in group.iter().enumerate() {
-                let mut data = thickness.index_axis(ndarray::Axis(1), index).to_owned();
+            let mut thickness_layers = per_layer(thickness).into_iter();
+            let mut wind_layers = winds.map(|(u, v)| (per_layer(u).into_iter(), per_layer(v).into_iter()));
+            for (request, _) in group.iter() {
+                let mut data = thickness_layers.next().expect("one thickness per layer");
+                let wind_layer = wind_layers.as_mut().map(|(u, v)| (u.next().expect("one wind per layer"), v.next().expect("one wind per layer")));
                 if self.integration == vertical::IntegrationRule::Quadratic && data.iter().any(|x| x.is_nan()) {
                     // As `Case::thickness`: the trapezoid over the layer's
                     // own levels (among those read) where a level the
@@ -129,18 +132,17 @@ impl Case {
                     if with_wind {
                         let (u, v) = thermal_wind::thermal_wind_from_thickness(&dz.grid, &self.constants, dz.horizontal_slices(), self.equator_band);
                         let wind = self.thermal_wind_field(request.layer, route, &dz, u, v)?;
-                        store.offer(&self.dataset, self.shared_key(&thermal_wind_key(request.layer, route)), Shared::Vector(wind));
+                        store.offer(&self.dataset, self.shared_key(&thermal_wind_key(request.layer, route)), Shared::Vector(Arc::new(wind)));
                     }
-                    store.offer(&self.dataset, self.shared_key(&thickness_key(request.layer, route)), Shared::Field(dz));
+                    store.offer(&self.dataset, self.shared_key(&thickness_key(request.layer, route)), Shared::Field(Arc::new(dz)));
                     continue;
                 }
                 let dz = thickness_field(request.layer, &t, data, method.clone())?;
-                if let Some((u, v)) = &winds {
-                    let component = |a: &Array4<f32>| a.index_axis(ndarray::Axis(1), index).to_owned();
-                    let wind = self.thermal_wind_field(request.layer, route, &dz, component(u), component(v))?;
-                    store.offer(&self.dataset, self.shared_key(&thermal_wind_key(request.layer, route)), Shared::Vector(wind));
+                if let Some((u, v)) = wind_layer {
+                    let wind = self.thermal_wind_field(request.layer, route, &dz, u, v)?;
+                    store.offer(&self.dataset, self.shared_key(&thermal_wind_key(request.layer, route)), Shared::Vector(Arc::new(wind)));
                 }
-                store.offer(&self.dataset, self.shared_key(&thickness_key(request.layer, route)), Shared::Field(dz));
+                store.offer(&self.dataset, self.shared_key(&thickness_key(request.layer, route)), Shared::Field(Arc::new(dz)));
             }
         }
         Ok(computed)
@@ -198,26 +200,39 @@ impl Case {
         needed.dedup();
         let z = self.read_data(&name, &self.selection_with_levels(Some(needed.iter().map(|&k| z_levels[k]).collect())))?;
         let how = vertical::GeopotentialInterpolation::DataLevel.describe();
-        let mut at_boundaries: Vec<(f64, Field)> = Vec::with_capacity(boundaries.len());
+        let mut at_boundaries: Vec<(f64, Arc<Field>)> = Vec::with_capacity(boundaries.len());
         for &(p, k) in &boundaries {
             let index = needed.iter().position(|&n| n == k).expect("needed");
             let data = vertical::apply_weights(z.data.view(), &vertical::LevelWeights { terms: vec![(index, 1.0)] }, 1.0);
-            let field = geopotential_field(&z, data, p, how.clone())?;
+            let field = Arc::new(geopotential_field(&z, data, p, how.clone())?);
             store.offer(&self.dataset, self.shared_key(&format!("geopotential_at {p:?} false")), Shared::Field(field.clone()));
             at_boundaries.push((p, field));
         }
         let at = |p: f64| &at_boundaries.iter().find(|b| b.0 == p).expect("a boundary").1;
         store.note_many_layer_pass(wanted.len());
         for request in &wanted {
-            let (data, template, method) = geopotential_difference(at(request.layer.top).clone(), at(request.layer.bottom), kind, &self.constants);
-            let dz = thickness_field(request.layer, &template, data, method)?;
+            let (data, method) = geopotential_difference(at(request.layer.top), at(request.layer.bottom), kind, &self.constants);
+            let dz = thickness_field(request.layer, at(request.layer.top), data, method)?;
             if request.thermal_wind {
                 let (u, v) = thermal_wind::thermal_wind_from_thickness(&dz.grid, &self.constants, dz.horizontal_slices(), self.equator_band);
                 let wind = self.thermal_wind_field(request.layer, route, &dz, u, v)?;
-                store.offer(&self.dataset, self.shared_key(&thermal_wind_key(request.layer, route)), Shared::Vector(wind));
+                store.offer(&self.dataset, self.shared_key(&thermal_wind_key(request.layer, route)), Shared::Vector(Arc::new(wind)));
             }
-            store.offer(&self.dataset, self.shared_key(&thickness_key(request.layer, route)), Shared::Field(dz));
+            store.offer(&self.dataset, self.shared_key(&thickness_key(request.layer, route)), Shared::Field(Arc::new(dz)));
         }
         Ok(wanted.len())
     }
+}
+
+/// The layers of a kernel's output [time, layer, lat, lon], each as its own
+/// [time, lat, lon] array in standard layout: a single layer is moved out,
+/// not copied (its memory becomes the result's); several are copied one by
+/// one (a layer of a many-layer array is not contiguous on its own). Never
+/// fails.
+fn per_layer(output: Array4<f32>) -> Vec<Array3<f32>> {
+    let layers = output.dim().1;
+    if layers == 1 && output.is_standard_layout() {
+        return vec![output.index_axis_move(ndarray::Axis(1), 0)];
+    }
+    (0..layers).map(|k| output.index_axis(ndarray::Axis(1), k).to_owned()).collect()
 }

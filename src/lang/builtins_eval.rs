@@ -218,6 +218,10 @@ pub fn call_builtin(
     let ev = &*evaluator;
     let wrap = |r: std::result::Result<Field, DiagnosticError>| r.map(Value::scalar).map_err(|e| engine_error(e, span));
     let wrap_vector = |r: std::result::Result<VectorField, DiagnosticError>| r.map(Value::vector).map_err(|e| engine_error(e, span));
+    // Results the run's store shares: the value holds the store's `Arc`,
+    // no copy of the field.
+    let wrap_shared = |r: std::result::Result<std::sync::Arc<Field>, DiagnosticError>| r.map(Value::Scalar).map_err(|e| engine_error(e, span));
+    let wrap_shared_vector = |r: std::result::Result<std::sync::Arc<VectorField>, DiagnosticError>| r.map(Value::Vector).map_err(|e| engine_error(e, span));
     match name {
         "geostrophic_wind" => {
             options.allow(name, &["equator_band"])?;
@@ -225,7 +229,7 @@ pub fn call_builtin(
             let case = case_of(ev, options.equator_band()?)?;
             let (v, s) = args.get(0);
             if let Some(p) = pressure_of(v) {
-                return wrap_vector(case.geostrophic_wind(p));
+                return wrap_shared_vector(case.geostrophic_wind_shared(p));
             }
             let f = scalar(ev, v, *s, sel, name)?;
             let kind = geopotential_kind(&f.units).ok_or_else(|| {
@@ -250,9 +254,9 @@ pub fn call_builtin(
                 }
             };
             match name {
-                "thickness" => wrap(case.thickness(layer, route)),
+                "thickness" => wrap_shared(case.thickness_shared(layer, route)),
                 "layer_mean_temperature" => wrap(case.layer_mean_temperature(layer, route)),
-                "thermal_wind" => wrap_vector(case.thermal_wind(layer, route)),
+                "thermal_wind" => wrap_shared_vector(case.thermal_wind_shared(layer, route)),
                 _ => wrap_vector(case.ageostrophic_shear(layer, route)),
             }
         }
@@ -291,7 +295,7 @@ pub fn call_builtin(
             args.count(1, "850 hPa  or  1000 hPa to 500 hPa")?;
             let case = case_of(ev, options.equator_band()?)?;
             match &args.get(0).0 {
-                Value::Layer(l) => wrap(case.layer_temperature_advection(*l)),
+                Value::Layer(l) => wrap_shared(case.layer_temperature_advection_shared(*l)),
                 v => match pressure_of(v) {
                     Some(p) => wrap(case.temperature_advection(p)),
                     None => Err(wrong(name, v, args.get(0).1, "a pressure such as 850 hPa or a layer such as 1000 hPa to 500 hPa")),
@@ -353,7 +357,7 @@ pub fn call_builtin(
             match v {
                 Value::Data(d) => {
                     let case = case_of(ev, None)?;
-                    wrap(case.at_pressure(&d.variable, p, false))
+                    wrap_shared(case.at_pressure_shared(&d.variable, p, false))
                 }
                 _ => {
                     let f = scalar(ev, v, *s, sel, name)?;

@@ -970,15 +970,18 @@ impl Evaluator {
     /// (or those of its layer), the context's times and region.
     fn force(&self, v: Value, context: &Context, span: Span) -> Result<Value> {
         match v {
-            Value::Data(d) => Ok(Value::Scalar(Arc::new(self.read_data(&d, context, span)?))),
+            Value::Data(d) => Ok(Value::Scalar(self.read_data(&d, context, span)?)),
             Value::Wind(w) => Ok(Value::vector(
-                VectorField::new(self.read_data(&w.eastward, context, span)?, self.read_data(&w.northward, context, span)?).map_err(|e| error(e, span))?,
+                VectorField::new(Arc::unwrap_or_clone(self.read_data(&w.eastward, context, span)?), Arc::unwrap_or_clone(self.read_data(&w.northward, context, span)?)).map_err(|e| error(e, span))?,
             )),
             other => Ok(other),
         }
     }
 
-    fn read_data(&self, d: &DataRef, context: &Context, span: Span) -> Result<Field> {
+    /// A variable read under the context's selection (and layer), shared
+    /// with the run's store (no copy when the store keeps it). Fails when
+    /// the variable is missing, has no level in the layer, or the read fails.
+    fn read_data(&self, d: &DataRef, context: &Context, span: Span) -> Result<Arc<Field>> {
         let mut selection = context.selection.clone();
         if let Some(layer) = d.layer {
             let info = d.dataset.variable(&d.variable).ok_or_else(|| error(format!("`{}` is not in the dataset", d.variable), span))?;
@@ -992,7 +995,7 @@ impl Evaluator {
         }
         // Through the run's store: a variable read again with the same
         // selection (by another statement, or by a diagnostic) is read once.
-        self.shared.read(&d.dataset, &d.variable, &selection, Some(&self.constants)).map_err(|e| engine_error(e.into(), span))
+        self.shared.read_shared(&d.dataset, &d.variable, &selection, Some(&self.constants)).map_err(|e| engine_error(e.into(), span))
     }
 
     // ----- selection --------------------------------------------------------
@@ -1071,8 +1074,8 @@ impl Evaluator {
         match v {
             Value::Data(d) => {
                 let case = self.case_for(&d.dataset, context);
-                let f = case.at_pressure(&d.variable, p, false).map_err(|e| engine_error(e, span))?;
-                Ok(Value::scalar(f))
+                let f = case.at_pressure_shared(&d.variable, p, false).map_err(|e| engine_error(e, span))?;
+                Ok(Value::Scalar(f))
             }
             Value::Wind(w) => {
                 let case = self.case_for(&w.eastward.dataset, context);
@@ -1444,31 +1447,60 @@ fn intersect(a: &Region, b: &Region) -> Option<Region> {
 }
 
 /// Crops a computed value to a region (values read under the region are
-/// already inside it, so this only cuts what was computed before).
+/// already inside it, so this only cuts what was computed before). A
+/// field the region covers whole is handed back as it is, shared, not
+/// copied (a global area over global data copies nothing); a cut field
+/// takes only the selected points, its other parts (names, units,
+/// coordinates, attributes) copied. Fails, naming the grid, when the
+/// region holds no point of the field.
 fn crop_value(v: Value, region: &Region, span: Span) -> Result<Value> {
-    let crop = |f: &Field| -> Result<Field> {
+    // The cut of one field, or `None` when the region covers it whole.
+    let crop = |f: &Field| -> Result<Option<Field>> {
         if let Some(projected) = &f.grid.projection {
             return crop_projected(f, projected, region, span);
         }
         let lat: Vec<usize> = (0..f.grid.latitudes.len()).filter(|&j| f.grid.latitudes[j] >= region.south - 1e-9 && f.grid.latitudes[j] <= region.north + 1e-9).collect();
         let lon: Vec<usize> = (0..f.grid.longitudes.len()).filter(|&i| region.contains(region.south, f.grid.longitudes[i])).collect();
         if lat.len() == f.grid.latitudes.len() && lon.len() == f.grid.longitudes.len() {
-            return Ok(f.clone());
+            return Ok(None);
         }
         if lat.is_empty() || lon.is_empty() {
             return Err(error("the region holds no points of this field", span).with_help(f.grid.describe()));
         }
         let data = f.data.select(Axis(2), &lat).select(Axis(3), &lon);
         let grid = crate::grid::Grid::new(lat.iter().map(|&j| f.grid.latitudes[j]).collect(), lon.iter().map(|&i| f.grid.longitudes[i]).collect());
-        let mut out = f.clone();
-        out.data = data;
-        out.grid = Arc::new(grid);
-        Ok(out)
+        Ok(Some(with_data_on(f, data, Arc::new(grid))))
     };
     match v {
-        Value::Scalar(f) => Ok(Value::scalar(crop(&f)?)),
-        Value::Vector(w) => Ok(Value::vector(VectorField { eastward: crop(&w.eastward)?, northward: crop(&w.northward)? })),
+        Value::Scalar(f) => Ok(match crop(&f)? {
+            None => Value::Scalar(f),
+            Some(cut) => Value::scalar(cut),
+        }),
+        Value::Vector(w) => match (crop(&w.eastward)?, crop(&w.northward)?) {
+            (None, None) => Ok(Value::Vector(w)),
+            (eastward, northward) => Ok(Value::vector(VectorField {
+                eastward: eastward.unwrap_or_else(|| w.eastward.clone()),
+                northward: northward.unwrap_or_else(|| w.northward.clone()),
+            })),
+        },
         other => Ok(other),
+    }
+}
+
+/// `f` with other data on another grid: its names, units, times, levels
+/// and attributes copied, its data not (the caller's replace them).
+/// Never fails; the caller gives data of the new grid's shape.
+fn with_data_on(f: &Field, data: Array4<f32>, grid: Arc<crate::grid::Grid>) -> Field {
+    Field {
+        name: f.name.clone(),
+        long_name: f.long_name.clone(),
+        units: f.units.clone(),
+        standard_name: f.standard_name.clone(),
+        data,
+        times: f.times.clone(),
+        levels: f.levels.clone(),
+        grid,
+        attributes: f.attributes.clone(),
     }
 }
 
@@ -1479,20 +1511,20 @@ fn crop_value(v: Value, region: &Region, span: Span) -> Result<Value> {
 /// stays a regular grid, so derivatives and maps work on it; cells of the
 /// block outside the box keep their values, and area statistics over the
 /// box count exactly the cells inside (`physics::sampling::area_statistics`).
-fn crop_projected(f: &Field, projected: &crate::projection::ProjectedGrid, region: &Region, span: Span) -> Result<Field> {
+/// `None` when the block is the whole grid (nothing to cut); fails when the
+/// box holds no cell.
+fn crop_projected(f: &Field, projected: &crate::projection::ProjectedGrid, region: &Region, span: Span) -> Result<Option<Field>> {
     let Some((rows, columns)) = crate::io::projected::block_in_box(projected, region.south, region.north, region.west, region.east) else {
         return Err(error("the region holds no points of this field", span).with_help(f.grid.describe()));
     };
     let (ny, nx) = projected.shape();
     if rows.clone().count() == ny && columns.clone().count() == nx {
-        return Ok(f.clone());
+        return Ok(None);
     }
     let rows: Vec<usize> = rows.collect();
     let columns: Vec<usize> = columns.collect();
-    let mut out = f.clone();
-    out.data = f.data.select(Axis(2), &rows).select(Axis(3), &columns);
-    out.grid = Arc::new(crate::io::projected::sub_grid(projected, &rows, &columns));
-    Ok(out)
+    let data = f.data.select(Axis(2), &rows).select(Axis(3), &columns);
+    Ok(Some(with_data_on(f, data, Arc::new(crate::io::projected::sub_grid(projected, &rows, &columns)))))
 }
 
 fn select_times_in_memory(v: Value, wanted: &[f64], span: Span) -> Result<Value> {

@@ -27,6 +27,30 @@ pub fn advection(grid: &Grid, radius: f64, scalar: ArrayView3<f32>, eastward: Ar
     out
 }
 
+/// -Vbar . grad(scalar) on [slice, lat, lon] with Vbar = (V_b + V_t)/2, the
+/// mean of two winds (the layer-mean geostrophic wind of the field guide's
+/// layer advection, from the winds at the layer's bottom and top). The
+/// same bits as `advection` given the mean as two arrays computed in f32,
+/// 0.5 * (bottom + top), which is how the mean is formed here, point by
+/// point, so it is never held as whole fields. NaN where any input is
+/// missing; never fails (the caller checks that the shapes agree; a
+/// mismatch is a caller's error and panics).
+pub fn advection_by_mean(
+    grid: &Grid,
+    radius: f64,
+    scalar: ArrayView3<f32>,
+    bottom: (ArrayView3<f32>, ArrayView3<f32>),
+    top: (ArrayView3<f32>, ArrayView3<f32>),
+) -> Array3<f32> {
+    let (dx, dy) = gradient(grid, radius, scalar);
+    let mut out = dx;
+    Zip::from(&mut out).and(&dy).and(bottom.0).and(bottom.1).and(top.0).and(top.1).par_for_each(|o, &gy, &ub, &vb, &ut, &vt| {
+        let (u, v) = (0.5 * (ub + ut), 0.5 * (vb + vt));
+        *o = -(u as f64 * *o as f64 + v as f64 * gy as f64) as f32;
+    });
+    out
+}
+
 /// Layer-mean temperature advection (K s-1) from the geostrophic winds at the
 /// layer's bottom and top alone: -(f / (Rd ln(p_b/p_t))) k . (V_b x V_t).
 /// Rows inside the equatorial band are NaN (the winds are masked there).
@@ -118,6 +142,34 @@ mod tests {
             // The thermal wind is the difference of the geostrophic winds.
             let (u_t, _) = thermal_wind_from_thickness(&grid, &c, dz.view(), 5.0);
             assert!(((&ut - &ub)[[0, 15, 20]] - u_t[[0, 15, 20]]).abs() < 1e-3);
+        }
+    }
+
+    #[test]
+    fn advection_by_the_mean_wind_is_the_bits_of_advection_by_the_mean_fields() {
+        // The fused kernel against its definition: `advection` given the
+        // mean wind as whole arrays, each 0.5 * (bottom + top) in f32 (how
+        // the layer advection formed it before the mean was fused in;
+        // field guide, layer-mean geostrophic advection). Bits, with a
+        // missing value and the equatorial band (NaN winds) in the case.
+        for shift in [0.0, -45.0] {
+            let c = Constants::default();
+            let (grid, z_bottom, dz) = case(shift);
+            let z_top = &z_bottom + &dz;
+            let (ub, vb) = geostrophic_wind(&grid, &c, z_bottom.view(), GeopotentialKind::Height, 5.0);
+            let (mut ut, vt) = geostrophic_wind(&grid, &c, z_top.view(), GeopotentialKind::Height, 5.0);
+            ut[[0, 7, 9]] = f32::NAN;
+            let tbar = dz.mapv(|d| (c.gravity * d as f64 / (c.dry_air_gas_constant * 2f64.ln())) as f32);
+            let umean = (&ub + &ut).mapv(|x| 0.5 * x);
+            let vmean = (&vb + &vt).mapv(|x| 0.5 * x);
+            let separate = advection(&grid, c.earth_radius, tbar.view(), umean.view(), vmean.view());
+            let fused = advection_by_mean(&grid, c.earth_radius, tbar.view(), (ub.view(), vb.view()), (ut.view(), vt.view()));
+            assert_eq!(fused.dim(), separate.dim());
+            assert!(fused[[0, 7, 9]].is_nan(), "a missing wind gives a missing advection");
+            assert!(fused.iter().filter(|v| v.is_finite()).count() > 300);
+            for (a, b) in fused.iter().zip(separate.iter()) {
+                assert_eq!(a.to_bits(), b.to_bits(), "{a} vs {b}");
+            }
         }
     }
 
