@@ -84,6 +84,9 @@ pub fn steps_per_block(limit: u64, step_bytes: u64) -> usize {
 #[derive(Debug, Clone, PartialEq)]
 pub struct BoundedSummary {
     pub names: Vec<String>,
+    /// The run's tables (area means, values at points: results the NetCDF
+    /// file does not hold), their rows joined across blocks in time order.
+    pub tables: Vec<(String, crate::lang::value::Series)>,
     pub blocks: usize,
     pub steps_per_block: usize,
     pub time_steps: usize,
@@ -108,12 +111,15 @@ pub fn run_to_file(request: &RunRequest, output: &Path, limit: u64, attributes: 
     if blocks == 1 {
         let outcome = crate::runner::run(request)?;
         let names = crate::runner::write_results_within(output, &outcome, request, attributes, Some(image_limit(limit)))?;
-        return Ok(BoundedSummary { names, blocks, steps_per_block: per_block, time_steps: steps.len(), time_step_bytes: step_bytes });
+        let mut tables = Vec::new();
+        join_tables(&mut tables, &outcome);
+        return Ok(BoundedSummary { names, tables, blocks, steps_per_block: per_block, time_steps: steps.len(), time_step_bytes: step_bytes });
     }
     let labels = times.map(|t| t.labels()).unwrap_or_default();
     let label = |i: usize| labels.get(steps[i]).cloned().unwrap_or_else(|| format!("time step {}", steps[i]));
     let mut pieces = Vec::with_capacity(blocks);
     let mut names = Vec::new();
+    let mut tables = Vec::new();
     for index in 0..blocks {
         let shard = Shard { index, count: blocks };
         let block = shard.block(steps.len()).map_err(RunError)?;
@@ -131,6 +137,7 @@ pub fn run_to_file(request: &RunRequest, output: &Path, limit: u64, attributes: 
         // Written under the request's own text, so every piece says the same
         // recipe, as merge checks.
         names = crate::runner::write_results_within(&temporary, &outcome, request, plan.attributes(), Some(image_limit(limit)))?;
+        join_tables(&mut tables, &outcome);
         drop(outcome);
         pieces.push(temporary);
     }
@@ -138,7 +145,24 @@ pub fn run_to_file(request: &RunRequest, output: &Path, limit: u64, attributes: 
     let merge = crate::merge::MergeRequest { record_shards: false, attributes, ..crate::merge::MergeRequest::new(output.to_path_buf(), paths) };
     crate::merge::merge(&merge).map_err(RunError)?;
     drop(pieces);
-    Ok(BoundedSummary { names, blocks, steps_per_block: per_block, time_steps: steps.len(), time_step_bytes: step_bytes })
+    Ok(BoundedSummary { names, tables, blocks, steps_per_block: per_block, time_steps: steps.len(), time_step_bytes: step_bytes })
+}
+
+/// Adds a block's tables to those of the blocks before it: a table seen
+/// first is taken whole, the same table of a later block adds its rows
+/// (blocks come in time order, so the rows stay in time order).
+fn join_tables(tables: &mut Vec<(String, crate::lang::value::Series)>, outcome: &crate::runner::RunOutcome) {
+    use crate::lang::value::Value;
+    for result in &outcome.results {
+        let Value::Series(block) = &result.value else { continue };
+        match tables.iter_mut().find(|(name, _)| *name == result.name) {
+            Some((_, joined)) => {
+                joined.labels.extend(block.labels.iter().cloned());
+                joined.rows.extend(block.rows.iter().cloned());
+            }
+            None => tables.push((result.name.clone(), block.clone())),
+        }
+    }
 }
 
 /// Whether a program's results can be computed block by block of time

@@ -388,6 +388,9 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
             if summary.blocks == 1 { "" } else { "s" },
             summary.steps_per_block
         ));
+        for (name, table) in &summary.tables {
+            out(&format!("{name} (a table, not written to the NetCDF file): {}\n", baroc::display::plain(&baroc::lang::value::Value::Series(table.clone()))));
+        }
         return Ok(());
     }
     // BAROC_TIMINGS=1 prints the split of the run on stderr, for
@@ -458,6 +461,12 @@ fn run(program: ProgramArgs, output: Option<PathBuf>, report: Option<PathBuf>, e
     if output.is_none() && report.is_none() {
         for r in &outcome.results {
             out(&format!("{}: {}\n", r.name, baroc::display::plain(&r.value)));
+        }
+    } else if output.is_some() {
+        // The NetCDF file holds fields; tables (area means, values at a
+        // point) are printed rather than dropped.
+        for r in outcome.results.iter().filter(|r| !matches!(r.value, baroc::lang::value::Value::Scalar(_) | baroc::lang::value::Value::Vector(_))) {
+            out(&format!("{} (a table, not written to the NetCDF file): {}\n", r.name, baroc::display::plain(&r.value)));
         }
     }
     Ok(())
