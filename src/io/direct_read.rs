@@ -26,6 +26,8 @@ use std::path::Path;
 use ndarray::Array4;
 use rayon::prelude::*;
 
+use super::file_check::HDF5_SIGNATURE;
+
 /// Where a variable's values lie in its file (HDF5's view of it).
 #[derive(Debug, Clone)]
 pub(super) struct Storage {
@@ -36,20 +38,15 @@ pub(super) struct Storage {
 }
 
 /// Whether reads may bypass netCDF-C (`BAROC_DIRECT_READ=0` says no).
-pub(super) fn enabled() -> bool {
+fn enabled() -> bool {
     std::env::var("BAROC_DIRECT_READ").map_or(true, |v| v != "0")
 }
-
-/// The HDF5 format signature netCDF-4 files start with (HDF5 file format
-/// specification, section II.A: the superblock's signature, at offset 0
-/// when the file has no user block).
-const HDF5_SIGNATURE: &[u8; 8] = b"\x89HDF\r\n\x1a\n";
 
 /// For each name, where its values lie if they can be read directly (see
 /// the module comment); None for the others, and for every name of a file
 /// that is not netCDF-4 with its superblock at offset 0. Makes HDF5 calls:
-/// the caller is on the netCDF thread, with no netCDF handle on this file
-/// open (HDF5 would otherwise share that handle).
+/// the caller is on the netCDF thread (io::netcdf_thread), with no netCDF
+/// handle on this file open (HDF5 would otherwise share that handle).
 pub(super) fn storage_of(path: &Path, names: &[String]) -> Vec<Option<Storage>> {
     let nothing = || vec![None; names.len()];
     if !enabled() {
@@ -57,34 +54,24 @@ pub(super) fn storage_of(path: &Path, names: &[String]) -> Vec<Option<Storage>> 
     }
     let Ok(file) = std::fs::File::open(path) else { return nothing() };
     let mut signature = [0u8; 8];
-    if read_exact_at(&file, &mut signature, 0).is_err() || &signature != HDF5_SIGNATURE {
+    if read_exact_at(&file, &mut signature, 0).is_err() || signature != HDF5_SIGNATURE {
         return nothing();
     }
     let Some(c_path) = path.to_str().and_then(|p| CString::new(p).ok()) else { return nothing() };
     use hdf5_metno_sys::h5f::{H5Fclose, H5Fopen, H5F_ACC_RDONLY};
     use hdf5_metno_sys::h5p::H5P_DEFAULT;
     let _lock = netcdf_sys::libnetcdf_lock.lock();
-    use hdf5_metno_sys::h5e::{H5Eget_auto2, H5Eset_auto2, H5E_auto2_t, H5E_DEFAULT};
     // SAFETY: HDF5 calls under netCDF's lock, which serialises every HDF5
     // call of the process; every id is closed before the lock is released.
-    // HDF5's automatic error printing is switched off meanwhile (a variable
-    // HDF5 cannot open here is not an error: it is read through netCDF-C)
-    // and restored as it was.
-    unsafe {
-        let mut printer: H5E_auto2_t = None;
-        let mut data: *mut std::ffi::c_void = std::ptr::null_mut();
-        let saved = H5Eget_auto2(H5E_DEFAULT, &mut printer, &mut data) >= 0;
-        H5Eset_auto2(H5E_DEFAULT, None, std::ptr::null_mut());
-        let hdf5 = H5Fopen(c_path.as_ptr(), H5F_ACC_RDONLY, H5P_DEFAULT);
-        let found = if hdf5 < 0 { nothing() } else { names.iter().map(|name| dataset_storage(hdf5, name, &file)).collect() };
-        if hdf5 >= 0 {
-            H5Fclose(hdf5);
-        }
-        if saved {
-            H5Eset_auto2(H5E_DEFAULT, printer, data);
-        }
-        found
+    // (A dataset HDF5 cannot open here is read through netCDF-C; this runs
+    // on the netCDF thread, where HDF5's error printing is off.)
+    let hdf5 = unsafe { H5Fopen(c_path.as_ptr(), H5F_ACC_RDONLY, H5P_DEFAULT) };
+    if hdf5 < 0 {
+        return nothing();
     }
+    let found = names.iter().map(|name| unsafe { dataset_storage(hdf5, name, &file) }).collect();
+    unsafe { H5Fclose(hdf5) };
+    found
 }
 
 /// `storage_of` for one dataset of an open HDF5 file.

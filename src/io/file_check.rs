@@ -15,7 +15,9 @@ use std::io::Read;
 use std::path::Path;
 
 /// The HDF5 format signature (HDF5 file format specification, 2.1).
-const HDF5_SIGNATURE: [u8; 8] = [0x89, b'H', b'D', b'F', b'\r', b'\n', 0x1a, b'\n'];
+/// The HDF5 format signature (HDF5 File Format Specification, "Format
+/// Signature"): the first bytes of every netCDF-4 file without a user block.
+pub(crate) const HDF5_SIGNATURE: [u8; 8] = [0x89, b'H', b'D', b'F', b'\r', b'\n', 0x1a, b'\n'];
 
 /// A problem found by looking at the file's bytes.
 #[derive(Debug, Clone, PartialEq)]

@@ -25,6 +25,8 @@ use std::ffi::{c_int, CStr, CString};
 
 use netcdf_sys as sys;
 
+use super::file_check::HDF5_SIGNATURE;
+
 fn check(status: c_int, what: impl FnOnce() -> String) -> Result<(), String> {
     if status == sys::NC_NOERR {
         return Ok(());
@@ -409,10 +411,6 @@ unsafe fn core_driver_memory<'a>(file: hdf5_metno_sys::h5i::hid_t, size: usize) 
     // the caller's conditions hold.
     Some(unsafe { std::slice::from_raw_parts(memory, size) })
 }
-
-/// The HDF5 file signature (HDF5 File Format Specification, "Format
-/// Signature"), at the file's start when it has no user block.
-const HDF5_SIGNATURE: [u8; 8] = [0x89, b'H', b'D', b'F', b'\r', b'\n', 0x1a, b'\n'];
 
 /// The superblock of an open file's image (`image`, HDF5's own memory) as
 /// the same file has it once closed: the file consistency flags cleared
